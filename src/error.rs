@@ -1,0 +1,215 @@
+//! The one error type of the crate.
+//!
+//! Every fallible public function returns [`Result<T>`](crate::Result). Each variant carries the
+//! data a user needs to act: what was wrong, where (DOF index, step, time, file line) and, in its
+//! message, what to do about it.
+
+use crate::state::State;
+
+/// Convenient alias: `Result<T, tempora::Error>`.
+pub type Result<T> = std::result::Result<T, Error>;
+
+/// An error raised by a user's [`Model`](crate::model::Model) implementation.
+///
+/// The library never inspects the message; it wraps it in [`Error::Model`] together with the
+/// step and time at which the model failed.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum ModelError {
+    /// The model does not implement an optional capability that was asked of it.
+    #[error("the model does not provide `{0}`; implement it or choose an option that does not need it")]
+    NotProvided(&'static str),
+    /// The model could not evaluate a quantity (for example an element turned inside out).
+    #[error("{message}{}", dof.map(|d| format!(" (DOF {d})")).unwrap_or_default())]
+    Failed {
+        /// The user's description of the failure.
+        message: String,
+        /// The DOF concerned, when there is one.
+        dof: Option<usize>,
+    },
+}
+
+impl ModelError {
+    /// A failure with a message and no particular DOF.
+    pub fn failed(message: impl Into<String>) -> Self {
+        ModelError::Failed {
+            message: message.into(),
+            dof: None,
+        }
+    }
+}
+
+/// Everything that can go wrong in tempora.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum Error {
+    /// Two inputs that must have the same length (or a matrix that must be square) do not.
+    #[error("{what}: expected length {expected}, found {found}; pass vectors sized to the model's DOF count")]
+    DimensionMismatch {
+        /// Which input.
+        what: &'static str,
+        /// The length required.
+        expected: usize,
+        /// The length given.
+        found: usize,
+    },
+    /// A DOF index outside `0..n`.
+    #[error("{what}: DOF {dof} is out of range for a model with {n} DOFs (valid: 0..{n})")]
+    DofOutOfRange {
+        /// Where the index came from.
+        what: &'static str,
+        /// The index given.
+        dof: usize,
+        /// The model's DOF count.
+        n: usize,
+    },
+    /// The same DOF is constrained twice.
+    #[error("DOF {dof} is constrained twice; give each DOF at most one constraint")]
+    DuplicateConstraint {
+        /// The DOF.
+        dof: usize,
+    },
+    /// A lumped mass that is zero, negative or not finite on a DOF that is free to move.
+    #[error(
+        "lumped mass at DOF {dof} is {value}, but every free DOF needs a positive finite mass; \
+         fix or prescribe massless DOFs, and note that row-sum lumping of higher-order elements can give \
+         negative masses (use diagonal-scaling lumping in your element code)"
+    )]
+    NonPositiveMass {
+        /// The DOF.
+        dof: usize,
+        /// The offending value.
+        value: f64,
+    },
+    /// A non-finite number (NaN or infinity) in an input.
+    #[error("{what} has a non-finite value ({value}) at index {index}; check the input data")]
+    NonFiniteInput {
+        /// Which input.
+        what: &'static str,
+        /// Index of the first offending entry.
+        index: usize,
+        /// The value.
+        value: f64,
+    },
+    /// A time step that is zero, negative or not finite.
+    #[error("time step {dt} is not valid: it must be positive and finite")]
+    InvalidStep {
+        /// The step given.
+        dt: f64,
+    },
+    /// A step above the stability limit of a conditionally stable scheme.
+    #[error(
+        "time step {dt} is above the stable limit {dt_stable} of the explicit scheme; use dt <= {dt_stable} \
+         (times a safety fraction), or override the check explicitly if you know better"
+    )]
+    StepAboveStableLimit {
+        /// The step asked for.
+        dt: f64,
+        /// The stable limit.
+        dt_stable: f64,
+    },
+    /// A parameter outside its valid range.
+    #[error("parameter `{name}` = {value} is not valid: {expected}")]
+    InvalidParameter {
+        /// The parameter's name.
+        name: &'static str,
+        /// The value given.
+        value: f64,
+        /// What is expected instead.
+        expected: &'static str,
+    },
+    /// A table of values against time that cannot be used.
+    #[error("time table `{what}` is not valid at row {row}: {problem}")]
+    InvalidTable {
+        /// Which table.
+        what: &'static str,
+        /// The first offending row (0-based).
+        row: usize,
+        /// What is wrong with it.
+        problem: &'static str,
+    },
+    /// A sparse matrix that cannot be used.
+    #[error("matrix `{what}` is not valid: {problem}")]
+    InvalidMatrix {
+        /// Which matrix.
+        what: &'static str,
+        /// What is wrong.
+        problem: String,
+    },
+    /// The user's model failed to evaluate a quantity.
+    #[error("the model failed at step {step}, t = {t}: {source}")]
+    Model {
+        /// The step being attempted (the number of steps already taken).
+        step: u64,
+        /// The time at which the model was evaluated.
+        t: f64,
+        /// What the model reported.
+        #[source]
+        source: ModelError,
+    },
+    /// A computed value that is not finite: the run has blown up.
+    #[error(
+        "non-finite {quantity} at DOF {dof} in step {step} (t = {t}); the step was rejected and the last \
+         good state kept. Reduce the step below the stable limit or check the model"
+    )]
+    NonFiniteState {
+        /// Which quantity (displacement, force, acceleration).
+        quantity: &'static str,
+        /// The first DOF with a non-finite value.
+        dof: usize,
+        /// The step being attempted.
+        step: u64,
+        /// The time reached by the rejected step.
+        t: f64,
+    },
+    /// The kinetic energy grew far beyond all energy ever put into the model: numerical instability.
+    #[error(
+        "instability detected in step {step} (t = {t}): kinetic energy {kinetic} exceeds {limit} times the \
+         energy put into the model ({energy_in}); the step was rejected and the last good state kept. \
+         Reduce the step below the stable limit"
+    )]
+    Unstable {
+        /// The step being attempted.
+        step: u64,
+        /// The time reached by the rejected step.
+        t: f64,
+        /// Kinetic energy after the rejected step.
+        kinetic: f64,
+        /// Energy input so far (initial energy plus absolute work of external and constraint forces).
+        energy_in: f64,
+        /// The growth factor that was exceeded.
+        limit: f64,
+    },
+    /// The energy balance error exceeded the user's threshold.
+    #[error(
+        "energy balance broken in step {step} (t = {t}): relative error {relative_error} exceeds the \
+         threshold {threshold}; the step was rejected and the state of step {} kept. Reduce the step or \
+         check the model's forces", step - 1
+    )]
+    EnergyBalance {
+        /// The step at which the balance broke (the rejected step).
+        step: u64,
+        /// The time reached by the rejected step.
+        t: f64,
+        /// The balance error relative to the largest energy term.
+        relative_error: f64,
+        /// The user threshold.
+        threshold: f64,
+        /// The last good state (before the rejected step).
+        last_good: Box<State>,
+    },
+    /// An iterative eigenvalue estimate did not converge.
+    #[error(
+        "eigenvalue estimate did not converge after {iterations} operator products (relative residual \
+         {residual}); raise the iteration limit, loosen the tolerance or use the Gershgorin bound"
+    )]
+    EigenNotConverged {
+        /// Operator products used.
+        iterations: usize,
+        /// Relative residual reached.
+        residual: f64,
+    },
+    /// The operation needs a non-empty model.
+    #[error("the model has no DOFs")]
+    EmptyModel,
+}

@@ -1,0 +1,179 @@
+//! Compressed sparse row matrix with a parallel, allocation-free product.
+//!
+//! Users hand tempora `sprs` matrices; tempora copies them once into this compact form (32-bit
+//! column indices, which cut the memory traffic of the product by about a tenth) and multiplies in
+//! its own row loop, which runs over rayon above a size threshold. sprs's own product runs on one
+//! thread and allocates its result, which a time step must not do.
+
+use rayon::prelude::*;
+use sprs::CsMat;
+
+use super::Parallelism;
+use crate::error::{Error, Result};
+
+/// Rows per parallel work item of the product.
+const ROW_CHUNK: usize = 2048;
+
+/// A square or rectangular CSR matrix of `f64` with 32-bit column indices.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CsrMatrix {
+    nrows: usize,
+    ncols: usize,
+    indptr: Vec<usize>,
+    indices: Vec<u32>,
+    data: Vec<f64>,
+}
+
+impl CsrMatrix {
+    /// Copies a sprs matrix (CSR or CSC) into CSR form, checking every value is finite.
+    ///
+    /// # Errors
+    /// [`Error::InvalidMatrix`] for a non-finite entry or more than `u32::MAX` columns.
+    pub fn from_sprs(what: &'static str, m: &CsMat<f64>) -> Result<Self> {
+        let csr = if m.is_csr() { m.clone() } else { m.to_csr() };
+        if csr.cols() > u32::MAX as usize {
+            return Err(Error::InvalidMatrix {
+                what,
+                problem: format!("{} columns exceed the supported 2^32 - 1", csr.cols()),
+            });
+        }
+        let mut indptr = Vec::with_capacity(csr.rows() + 1);
+        let mut indices = Vec::with_capacity(csr.nnz());
+        let mut data = Vec::with_capacity(csr.nnz());
+        indptr.push(0);
+        for (row, vec) in csr.outer_iterator().enumerate() {
+            for (col, &val) in vec.iter() {
+                if !val.is_finite() {
+                    return Err(Error::InvalidMatrix {
+                        what,
+                        problem: format!("entry ({row}, {col}) is {val}"),
+                    });
+                }
+                indices.push(col as u32);
+                data.push(val);
+            }
+            indptr.push(indices.len());
+        }
+        Ok(CsrMatrix {
+            nrows: csr.rows(),
+            ncols: csr.cols(),
+            indptr,
+            indices,
+            data,
+        })
+    }
+
+    /// Number of rows.
+    pub fn nrows(&self) -> usize {
+        self.nrows
+    }
+
+    /// Number of columns.
+    pub fn ncols(&self) -> usize {
+        self.ncols
+    }
+
+    /// Number of stored entries.
+    pub fn nnz(&self) -> usize {
+        self.data.len()
+    }
+
+    /// The entries of row `i` as `(column, value)` pairs.
+    pub fn row(&self, i: usize) -> impl Iterator<Item = (usize, f64)> + '_ {
+        let r = self.indptr[i]..self.indptr[i + 1];
+        self.indices[r.clone()]
+            .iter()
+            .zip(&self.data[r])
+            .map(|(&c, &v)| (c as usize, v))
+    }
+
+    /// Row sums (the row-sum lumped mass when this is a consistent mass matrix).
+    pub fn row_sums(&self) -> Vec<f64> {
+        (0..self.nrows).map(|i| self.row(i).map(|(_, v)| v).sum()).collect()
+    }
+
+    /// The diagonal entries (zero where none is stored).
+    pub fn diagonal(&self) -> Vec<f64> {
+        (0..self.nrows)
+            .map(|i| self.row(i).filter(|&(c, _)| c == i).map(|(_, v)| v).sum())
+            .collect()
+    }
+
+    /// True when only diagonal entries are stored.
+    pub fn is_diagonal(&self) -> bool {
+        (0..self.nrows).all(|i| self.row(i).all(|(c, _)| c == i))
+    }
+
+    /// `y = A x`, in parallel above `par.threshold` rows; each row is summed in stored order, so the
+    /// result does not depend on the thread count.
+    ///
+    /// # Panics
+    /// When `x.len() != ncols` or `y.len() != nrows`.
+    pub fn mul_vec(&self, x: &[f64], y: &mut [f64], par: Parallelism) {
+        spmv(self, x, y, par);
+    }
+}
+
+/// `y = A x` (see [`CsrMatrix::mul_vec`]).
+///
+/// # Panics
+/// When `x.len() != a.ncols()` or `y.len() != a.nrows()`.
+pub fn spmv(a: &CsrMatrix, x: &[f64], y: &mut [f64], par: Parallelism) {
+    assert_eq!(x.len(), a.ncols, "spmv: x has the wrong length");
+    assert_eq!(y.len(), a.nrows, "spmv: y has the wrong length");
+    let rows = |start: usize, y: &mut [f64]| {
+        for (k, yi) in y.iter_mut().enumerate() {
+            let i = start + k;
+            let (lo, hi) = (a.indptr[i], a.indptr[i + 1]);
+            let mut s = 0.0;
+            for (c, v) in a.indices[lo..hi].iter().zip(&a.data[lo..hi]) {
+                s += v * x[*c as usize];
+            }
+            *yi = s;
+        }
+    };
+    if par.parallel_for(a.nrows) {
+        y.par_chunks_mut(ROW_CHUNK)
+            .enumerate()
+            .for_each(|(c, yc)| rows(c * ROW_CHUNK, yc));
+    } else {
+        rows(0, y);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use sprs::TriMat;
+
+    #[test]
+    fn product_matches_dense_and_is_thread_independent() {
+        let n = 5000;
+        let mut t = TriMat::new((n, n));
+        for i in 0..n {
+            t.add_triplet(i, i, 2.0 + (i % 7) as f64);
+            if i + 1 < n {
+                t.add_triplet(i, i + 1, -1.0);
+                t.add_triplet(i + 1, i, -1.0);
+            }
+        }
+        let a = CsrMatrix::from_sprs("K", &t.to_csr()).unwrap();
+        let x: Vec<f64> = (0..n).map(|i| (i as f64 * 0.37).sin()).collect();
+        let mut y1 = vec![0.0; n];
+        let mut y2 = vec![0.0; n];
+        a.mul_vec(&x, &mut y1, Parallelism::serial());
+        a.mul_vec(&x, &mut y2, Parallelism { threshold: 1 });
+        assert_eq!(y1, y2);
+        let i = 17;
+        let expect = -x[i - 1] + (2.0 + (i % 7) as f64) * x[i] - x[i + 1];
+        assert!((y1[i] - expect).abs() < 1e-14);
+    }
+
+    #[test]
+    fn non_finite_entries_are_refused() {
+        let mut t = TriMat::new((2, 2));
+        t.add_triplet(1, 0, f64::NAN);
+        let e = CsrMatrix::from_sprs("K", &t.to_csr()).unwrap_err();
+        assert!(e.to_string().contains("(1, 0)"), "{e}");
+    }
+}

@@ -1,0 +1,121 @@
+//! Linear-algebra kernels shared by the schemes: deterministic parallel loops, reductions through
+//! one seam, and the sparse matrix-vector product.
+//!
+//! # Determinism
+//! Vectors are cut into fixed chunks of [`CHUNK`] entries whatever the thread count. Each chunk
+//! sums its own entries in order and the chunk sums are added in chunk order, so every dot
+//! product, norm and energy is bit-identical for 1, 2 or any number of threads, and for the serial
+//! and the parallel path alike.
+
+mod csr;
+mod reduce;
+
+pub use csr::{CsrMatrix, spmv};
+pub use reduce::{GlobalReduce, Serial, dot, norm2};
+
+use rayon::prelude::*;
+
+/// Number of vector entries per work chunk (the unit of parallel work and of partial sums).
+pub const CHUNK: usize = 4096;
+
+/// When to run vector loops in parallel.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Parallelism {
+    /// Vectors shorter than this run on the calling thread; longer ones are split over rayon's
+    /// thread pool. Results do not depend on this choice (see the module documentation).
+    pub threshold: usize,
+}
+
+impl Default for Parallelism {
+    /// Parallel from 32,768 entries: below that the loop takes tens of microseconds and the
+    /// hand-off to the pool costs more than it saves (measured on 2 cores; see `docs/performance.md`
+    /// once written).
+    fn default() -> Self {
+        Parallelism { threshold: 32_768 }
+    }
+}
+
+impl Parallelism {
+    /// Always serial.
+    pub fn serial() -> Self {
+        Parallelism {
+            threshold: usize::MAX,
+        }
+    }
+
+    /// True when a loop over `n` entries should run in parallel.
+    pub fn parallel_for(&self, n: usize) -> bool {
+        n >= self.threshold && rayon::current_num_threads() > 1
+    }
+}
+
+/// Number of chunks for `n` entries.
+pub fn chunk_count(n: usize) -> usize {
+    n.div_ceil(CHUNK)
+}
+
+/// Runs `f(start, out1_chunk, out2_chunk, partial)` over the chunks of two equally long output
+/// vectors, in parallel when `parallel`, with one partial-result slot per chunk.
+///
+/// # Panics
+/// When the outputs differ in length or `partials.len() != chunk_count(out1.len())` (a programmer
+/// error inside the crate).
+pub(crate) fn for_chunks2<P, F>(
+    parallel: bool,
+    out1: &mut [f64],
+    out2: &mut [f64],
+    partials: &mut [P],
+    f: F,
+) where
+    P: Send,
+    F: Fn(usize, &mut [f64], &mut [f64], &mut P) + Sync + Send,
+{
+    assert_eq!(out1.len(), out2.len());
+    assert_eq!(partials.len(), chunk_count(out1.len()));
+    if parallel {
+        out1.par_chunks_mut(CHUNK)
+            .zip(out2.par_chunks_mut(CHUNK))
+            .zip(partials.par_iter_mut())
+            .enumerate()
+            .for_each(|(c, ((o1, o2), p))| f(c * CHUNK, o1, o2, p));
+    } else {
+        out1.chunks_mut(CHUNK)
+            .zip(out2.chunks_mut(CHUNK))
+            .zip(partials.iter_mut())
+            .enumerate()
+            .for_each(|(c, ((o1, o2), p))| f(c * CHUNK, o1, o2, p));
+    }
+}
+
+/// Runs `f(start, partial)` over the chunks of a vector of length `n`, read-only, with one
+/// partial-result slot per chunk.
+pub(crate) fn for_chunks_read<P, F>(parallel: bool, n: usize, partials: &mut [P], f: F)
+where
+    P: Send,
+    F: Fn(std::ops::Range<usize>, &mut P) + Sync + Send,
+{
+    assert_eq!(partials.len(), chunk_count(n));
+    let range = |c: usize| c * CHUNK..((c + 1) * CHUNK).min(n);
+    if parallel {
+        partials
+            .par_iter_mut()
+            .enumerate()
+            .for_each(|(c, p)| f(range(c), p));
+    } else {
+        partials
+            .iter_mut()
+            .enumerate()
+            .for_each(|(c, p)| f(range(c), p));
+    }
+}
+
+/// Adds fixed-size partial sums in chunk order.
+pub(crate) fn sum_partials<const K: usize>(partials: &[[f64; K]]) -> [f64; K] {
+    let mut s = [0.0; K];
+    for p in partials {
+        for k in 0..K {
+            s[k] += p[k];
+        }
+    }
+    s
+}

@@ -1,0 +1,84 @@
+//! Global reductions through one seam.
+//!
+//! Every global sum of the schemes (energies, dot products, norms) is finished by a
+//! [`GlobalReduce`]. The default, [`Serial`], is the identity: the model lives in one process. A
+//! distributed backend (for example over MPI) implements the trait by summing the local values of
+//! all ranks, and the schemes need no change.
+
+use super::{CHUNK, Parallelism, chunk_count};
+use rayon::prelude::*;
+
+/// Completes reductions of process-local values into global ones.
+pub trait GlobalReduce: Send + Sync {
+    /// Replaces each entry of `values` by its sum over all processes.
+    fn sum_in_place(&self, values: &mut [f64]);
+    /// The maximum of `value` over all processes.
+    fn max(&self, value: f64) -> f64;
+    /// The minimum of `value` over all processes.
+    fn min(&self, value: f64) -> f64 {
+        -self.max(-value)
+    }
+    /// The sum of `value` over all processes.
+    fn sum(&self, value: f64) -> f64 {
+        let mut v = [value];
+        self.sum_in_place(&mut v);
+        v[0]
+    }
+}
+
+/// One process: every reduction is the identity.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct Serial;
+
+impl GlobalReduce for Serial {
+    fn sum_in_place(&self, _values: &mut [f64]) {}
+    fn max(&self, value: f64) -> f64 {
+        value
+    }
+}
+
+/// Deterministic local dot product `x . y` (chunked, so identical for any thread count).
+///
+/// # Panics
+/// When `x` and `y` differ in length.
+pub fn dot(x: &[f64], y: &[f64], par: Parallelism) -> f64 {
+    assert_eq!(x.len(), y.len(), "dot: vectors differ in length");
+    let chunk_dot = |(a, b): (&[f64], &[f64])| a.iter().zip(b).map(|(p, q)| p * q).sum::<f64>();
+    if par.parallel_for(x.len()) {
+        // Collecting into a Vec allocates; this path is for set-up code (eigenvalue estimates),
+        // not for the per-step loops, which keep their own partial-sum buffers.
+        let partials: Vec<f64> = x
+            .par_chunks(CHUNK)
+            .zip(y.par_chunks(CHUNK))
+            .map(chunk_dot)
+            .collect();
+        partials.iter().sum()
+    } else {
+        let mut s = 0.0;
+        debug_assert!(chunk_count(x.len()) == x.chunks(CHUNK).count());
+        for c in x.chunks(CHUNK).zip(y.chunks(CHUNK)) {
+            s += chunk_dot(c);
+        }
+        s
+    }
+}
+
+/// Deterministic local Euclidean norm.
+pub fn norm2(x: &[f64], par: Parallelism) -> f64 {
+    dot(x, x, par).sqrt()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn dot_is_the_same_serial_and_parallel() {
+        let n = 100_003;
+        let x: Vec<f64> = (0..n).map(|i| ((i * 7919) % 1000) as f64 * 1e-3 - 0.4).collect();
+        let y: Vec<f64> = (0..n).map(|i| ((i * 104_729) % 997) as f64 * 1e-2).collect();
+        let s = dot(&x, &y, Parallelism::serial());
+        let p = dot(&x, &y, Parallelism { threshold: 1 });
+        assert_eq!(s.to_bits(), p.to_bits());
+    }
+}

@@ -1,0 +1,239 @@
+//! The model seam: what a user plugs in.
+//!
+//! A [`Model`] is the user's element loop. tempora never needs to know about elements; it asks the
+//! model for its lumped mass, its internal force `f_int(t, u, v)`, its external force `f_ext(t)`,
+//! its damping and its constraints, always writing into buffers that the caller owns, so that a
+//! time step allocates nothing.
+//!
+//! The equation of motion is
+//!
+//! ```text
+//! M a + C v + f_int(t, u, v) + sum_k f_k(t, u, v) = f_ext(t)
+//! ```
+//!
+//! where the `f_k` are optional *extra* force contributions (hourglass control, contact, ...) that
+//! the user wants accounted separately in the energy ledger.
+//!
+//! # Trial evaluations and history variables
+//!
+//! Force evaluations are *trial* evaluations: a step may be rejected, an implicit solver evaluates
+//! many times per step, and the stable-step estimator may probe perturbed configurations. A model
+//! with history variables (plasticity, damage, friction) must therefore compute trial values in its
+//! force routines and make them permanent only in [`Model::commit`], which the integrator calls
+//! once for every accepted step.
+
+mod constraints;
+mod linear;
+
+pub use constraints::{Constraint, Constraints, Motion, TimeFunction};
+pub use linear::{LinearModel, Load, LoadTable};
+
+use crate::error::ModelError;
+
+/// How a model is damped.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub enum Damping {
+    /// No viscous damping.
+    #[default]
+    None,
+    /// Rayleigh damping `C = a0 M + a1 K`. The integrator forms `C v` from the lumped mass and
+    /// [`Model::stiffness_product`]. The modal damping ratio is
+    /// `xi(omega) = a0 / (2 omega) + a1 omega / 2` (Rayleigh's classical damping; e.g. Chopra,
+    /// *Dynamics of Structures*, ch. 11).
+    Rayleigh {
+        /// Mass-proportional coefficient (1/s).
+        a0: f64,
+        /// Stiffness-proportional coefficient (s).
+        a1: f64,
+    },
+    /// The model computes its own damping force in [`Model::damping_force`].
+    Force,
+}
+
+impl Damping {
+    /// Modal damping ratio at circular frequency `omega`, when the damping type determines it
+    /// (`Some(0)` for no damping, the Rayleigh formula for Rayleigh damping, `None` for a user force).
+    pub fn ratio_at(&self, omega: f64) -> Option<f64> {
+        match *self {
+            Damping::None => Some(0.0),
+            Damping::Rayleigh { a0, a1 } => Some(a0 / (2.0 * omega) + a1 * omega / 2.0),
+            Damping::Force => None,
+        }
+    }
+
+    /// Rayleigh coefficients `(a0, a1)` that give damping ratio `xi1` at circular frequency `w1` and
+    /// `xi2` at `w2` (the usual two-equation solve; Chopra, *Dynamics of Structures*, eq. 11.4.9).
+    ///
+    /// # Errors
+    /// [`crate::Error::InvalidParameter`] when a frequency is not positive and finite, the two are
+    /// equal, or a ratio is negative or not finite.
+    pub fn rayleigh_from_modes(w1: f64, xi1: f64, w2: f64, xi2: f64) -> crate::Result<Damping> {
+        for (name, w) in [("omega_1", w1), ("omega_2", w2)] {
+            if !(w.is_finite() && w > 0.0) {
+                return Err(crate::Error::InvalidParameter {
+                    name,
+                    value: w,
+                    expected: "a positive, finite circular frequency",
+                });
+            }
+        }
+        for (name, xi) in [("xi_1", xi1), ("xi_2", xi2)] {
+            if !(xi.is_finite() && xi >= 0.0) {
+                return Err(crate::Error::InvalidParameter {
+                    name,
+                    value: xi,
+                    expected: "a non-negative, finite damping ratio",
+                });
+            }
+        }
+        if w1 == w2 {
+            return Err(crate::Error::InvalidParameter {
+                name: "omega_2",
+                value: w2,
+                expected: "a frequency different from omega_1",
+            });
+        }
+        // xi_i = a0/(2 w_i) + a1 w_i/2 for i = 1, 2, solved for a0 and a1:
+        // a0 = 2 w1 w2 (xi1 w2 - xi2 w1)/(w2^2 - w1^2), a1 = 2 (xi2 w2 - xi1 w1)/(w2^2 - w1^2).
+        let d = w2 * w2 - w1 * w1;
+        let a0 = 2.0 * w1 * w2 * (xi1 * w2 - xi2 * w1) / d;
+        let a1 = 2.0 * (xi2 * w2 - xi1 * w1) / d;
+        Ok(Damping::Rayleigh { a0, a1 })
+    }
+}
+
+/// The user's model: mass, forces, damping and constraints of `M a + C v + f_int = f_ext`.
+///
+/// Only [`dofs`](Model::dofs), [`lumped_mass`](Model::lumped_mass) and
+/// [`internal_force`](Model::internal_force) are required; everything else has a default
+/// (no external force, no damping, no constraints, no extra forces).
+///
+/// All `out` buffers have length [`dofs`](Model::dofs) and must be *overwritten* (not added to).
+pub trait Model {
+    /// Number of degrees of freedom.
+    fn dofs(&self) -> usize;
+
+    /// The lumped (diagonal) mass, written into `out`.
+    ///
+    /// Every DOF that is free to move needs a positive, finite mass; constrained DOFs may have zero
+    /// mass.
+    fn lumped_mass(&self, out: &mut [f64]);
+
+    /// Internal force `f_int(t, u, v)`, written into `out`.
+    ///
+    /// For the explicit scheme `v` is the lagged half-step velocity `v_{n-1/2}` (see
+    /// [`CentralDifference`](crate::explicit::CentralDifference)).
+    ///
+    /// # Errors
+    /// Whatever the model cannot evaluate (for example an inverted element).
+    fn internal_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError>;
+
+    /// External force `f_ext(t)`, written into `out`. Default: zero.
+    ///
+    /// # Errors
+    /// Whatever the model cannot evaluate.
+    fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), ModelError> {
+        let _ = t;
+        out.fill(0.0);
+        Ok(())
+    }
+
+    /// How the model is damped. Default: [`Damping::None`].
+    fn damping(&self) -> Damping {
+        Damping::None
+    }
+
+    /// The damping force `C v` when [`damping`](Model::damping) is [`Damping::Force`].
+    /// Default: [`ModelError::NotProvided`].
+    ///
+    /// # Errors
+    /// Whatever the model cannot evaluate.
+    fn damping_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        let _ = (t, u, v, out);
+        Err(ModelError::NotProvided("damping_force"))
+    }
+
+    /// The product `K x` of a stiffness matrix with a vector, written into `out`.
+    ///
+    /// `K` is the stiffness the model wants used for Rayleigh damping and for the stable-step
+    /// estimate: the tangent at `u` for a nonlinear model, or its initial stiffness. Default:
+    /// [`ModelError::NotProvided`]; the stable-step estimator then falls back to central finite
+    /// differences of [`internal_force`](Model::internal_force).
+    ///
+    /// # Errors
+    /// Whatever the model cannot evaluate.
+    fn stiffness_product(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        x: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        let _ = (t, u, x, out);
+        Err(ModelError::NotProvided("stiffness_product"))
+    }
+
+    /// Names of the extra force contributions the model reports separately (hourglass control,
+    /// contact, ...). Called once when an integrator is created. Default: none.
+    fn extra_force_names(&self) -> Vec<String> {
+        Vec::new()
+    }
+
+    /// Extra force contribution number `index` (in the order of
+    /// [`extra_force_names`](Model::extra_force_names)), written into `out`. It acts like an
+    /// internal force (it resists motion) and its work is booked under its own name.
+    ///
+    /// # Errors
+    /// Whatever the model cannot evaluate.
+    fn extra_force(
+        &mut self,
+        index: usize,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        let _ = (index, t, u, v, out);
+        Err(ModelError::NotProvided("extra_force"))
+    }
+
+    /// Fixed DOFs and DOFs with a prescribed motion. Default: none.
+    fn constraints(&self) -> &Constraints {
+        Constraints::none()
+    }
+
+    /// The stable step of the explicit scheme from element sizes and wave speeds (for example
+    /// [`element_stable_step`](crate::explicit::element_stable_step) over the model's elements in
+    /// configuration `u`), when the model can give one. Default: `None`, and the estimator uses
+    /// the highest eigenvalue of `M^-1 K` instead.
+    fn element_stable_step(&mut self, t: f64, u: &[f64]) -> Option<f64> {
+        let _ = (t, u);
+        None
+    }
+
+    /// The internal (strain) energy stored at `u` relative to the undeformed state, when the model
+    /// knows it. Used once, at the start of a run, so that the energy ledger also balances for runs
+    /// that start from a deformed configuration. Default: `None` (taken as zero).
+    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
+        let _ = u;
+        None
+    }
+
+    /// Called once for every accepted step, with the time reached: make trial history variables
+    /// permanent. Default: nothing.
+    fn commit(&mut self, t: f64) {
+        let _ = t;
+    }
+}
