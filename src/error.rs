@@ -17,7 +17,9 @@ pub type Result<T> = std::result::Result<T, Error>;
 #[non_exhaustive]
 pub enum ModelError {
     /// The model does not implement an optional capability that was asked of it.
-    #[error("the model does not provide `{0}`; implement it or choose an option that does not need it")]
+    #[error(
+        "the model does not provide `{0}`; implement it or choose an option that does not need it"
+    )]
     NotProvided(&'static str),
     /// The model could not evaluate a quantity (for example an element turned inside out).
     #[error("{message}{}", dof.map(|d| format!(" (DOF {d})")).unwrap_or_default())]
@@ -44,7 +46,9 @@ impl ModelError {
 #[non_exhaustive]
 pub enum Error {
     /// Two inputs that must have the same length (or a matrix that must be square) do not.
-    #[error("{what}: expected length {expected}, found {found}; pass vectors sized to the model's DOF count")]
+    #[error(
+        "{what}: expected length {expected}, found {found}; pass vectors sized to the model's DOF count"
+    )]
     DimensionMismatch {
         /// Which input.
         what: &'static str,

@@ -8,10 +8,12 @@
 #![deny(missing_docs)]
 #![warn(clippy::float_cmp)]
 
+pub mod energy;
 pub mod error;
 pub mod explicit;
 pub mod linalg;
 pub mod model;
+pub mod run;
 pub mod state;
 
 pub use error::{Error, ModelError, Result};

@@ -1,5 +1,9 @@
 //! Explicit time integration: the central-difference method on a lumped mass, and its stable step.
 
+mod central_difference;
 pub mod stable_step;
 
+pub use central_difference::{
+    CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
+};
 pub use stable_step::element_stable_step;

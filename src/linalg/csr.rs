@@ -89,7 +89,9 @@ impl CsrMatrix {
 
     /// Row sums (the row-sum lumped mass when this is a consistent mass matrix).
     pub fn row_sums(&self) -> Vec<f64> {
-        (0..self.nrows).map(|i| self.row(i).map(|(_, v)| v).sum()).collect()
+        (0..self.nrows)
+            .map(|i| self.row(i).map(|(_, v)| v).sum())
+            .collect()
     }
 
     /// The diagonal entries (zero where none is stored).

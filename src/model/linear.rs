@@ -394,7 +394,10 @@ mod tests {
         let mut t = TriMat::new((2, 3));
         t.add_triplet(0, 0, 1.0);
         let e = LinearModel::new(&t.to_csr(), &diag(&[1.0, 1.0])).unwrap_err();
-        assert!(matches!(e, Error::InvalidMatrix { what: "mass", .. }), "{e}");
+        assert!(
+            matches!(e, Error::InvalidMatrix { what: "mass", .. }),
+            "{e}"
+        );
         let e = LinearModel::new(&diag(&[1.0, 1.0]), &diag(&[1.0; 3])).unwrap_err();
         assert!(matches!(e, Error::DimensionMismatch { .. }), "{e}");
         let table = LoadTable::new(vec![0.0], vec![5], vec![1.0]).unwrap();
@@ -402,12 +405,18 @@ mod tests {
             .unwrap()
             .with_load(Load::Table(table))
             .unwrap_err();
-        assert!(matches!(e, Error::DofOutOfRange { dof: 5, n: 2, .. }), "{e}");
+        assert!(
+            matches!(e, Error::DofOutOfRange { dof: 5, n: 2, .. }),
+            "{e}"
+        );
         let e = LinearModel::new(&diag(&[1.0; 2]), &diag(&[1.0; 2]))
             .unwrap()
             .with_rayleigh(-1.0, 0.0)
             .unwrap_err();
-        assert!(matches!(e, Error::InvalidParameter { name: "a0", .. }), "{e}");
+        assert!(
+            matches!(e, Error::InvalidParameter { name: "a0", .. }),
+            "{e}"
+        );
     }
 
     #[test]

@@ -1,0 +1,825 @@
+//! The central-difference method in half-step velocity form on a lumped mass.
+
+use std::fmt;
+use std::sync::Arc;
+
+use crate::energy::EnergyLedger;
+use crate::error::{Error, ModelError, Result};
+use crate::explicit::stable_step::{self, StableStep, StableStepOptions};
+use crate::linalg::{
+    GlobalReduce, Parallelism, Serial, chunk_count, for_chunks_read, for_chunks2, sum_partials,
+};
+use crate::model::{Damping, Model, Motion};
+use crate::run::{Integrator, StepReport};
+use crate::state::{State, check_finite, check_len};
+
+/// How the integrator guards against a step above the stability limit.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub enum StableLimit {
+    /// Estimate the stable step of the model when the integrator is created (see
+    /// [`stable_step::estimate`]) and refuse larger steps.
+    #[default]
+    Estimate,
+    /// Refuse steps above this value (the user knows the model's stable step).
+    Given(f64),
+    /// Do not check (an explicit override: the run may go unstable; the instability guard still
+    /// stops it before values overflow).
+    Unchecked,
+}
+
+/// Which velocity the velocity-dependent forces (damping, rate-dependent internal and extra
+/// forces) at `t_{n+1}` receive.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ForceVelocity {
+    /// The lagged half-step velocity `v_{n+1/2}`: the classical explicit treatment. The damping
+    /// term is then only first-order accurate (the error of a damped run falls like `dt`), and a
+    /// mode of damping ratio `xi` is stable for `omega dt <= 2 (sqrt(1 + xi^2) - xi)`
+    /// (Belytschko, Liu & Moran 2000, sec. 6.2).
+    #[default]
+    Lagged,
+    /// The predicted integer-step velocity `v* = v_{n+1/2} + (dt/2) a_n`, a second-order estimate
+    /// of `v_{n+1}`: the scheme stays second-order accurate with damping, at the price of a smaller
+    /// stable step, `omega dt <= 2 (sqrt(1 + 4 xi^2) - 2 xi)` (derived for tempora from the
+    /// amplification matrix; see `docs/explicit.md`).
+    Predicted,
+}
+
+impl ForceVelocity {
+    /// The critical `omega dt` of a single mode of damping ratio `xi` under this treatment.
+    pub fn critical_omega_dt(self, xi: f64) -> f64 {
+        let x = match self {
+            ForceVelocity::Lagged => xi,
+            ForceVelocity::Predicted => 2.0 * xi,
+        };
+        // 2 (sqrt(1 + x^2) - x), written without cancellation.
+        2.0 / ((1.0 + x * x).sqrt() + x)
+    }
+}
+
+/// Settings of [`CentralDifference`].
+#[derive(Clone)]
+pub struct CentralDifferenceOptions {
+    /// Guard against steps above the stable limit. Default: [`StableLimit::Estimate`].
+    pub stable_limit: StableLimit,
+    /// How the stable step is estimated when `stable_limit` is `Estimate`.
+    pub stable_step: StableStepOptions,
+    /// Reject a step whose relative energy-balance error exceeds this value. Default: `None` (the
+    /// balance is reported, not enforced). Values of 0.01 to 0.05 are common practice; note that a
+    /// stable run's error can reach `(omega dt)^2 / 4` of the energy held in modes near the
+    /// stability limit.
+    pub energy_tolerance: Option<f64>,
+    /// Reject a step whose kinetic energy exceeds this multiple of all the energy put into the model
+    /// (initial kinetic and stored energy plus the absolute work of external and constraint
+    /// forces): a passive model cannot do that, an unstable run soon does. Default 10; set
+    /// `f64::INFINITY` to disable. The guard is inactive while no energy has been put in.
+    pub growth_limit: f64,
+    /// Velocity passed to velocity-dependent forces. Default: [`ForceVelocity::Lagged`].
+    pub force_velocity: ForceVelocity,
+    /// When vector loops run in parallel. Results do not depend on it.
+    pub parallel: Parallelism,
+    /// Completes global sums (the seam for distributed runs). Default: [`Serial`].
+    pub reduce: Arc<dyn GlobalReduce>,
+}
+
+impl Default for CentralDifferenceOptions {
+    fn default() -> Self {
+        CentralDifferenceOptions {
+            stable_limit: StableLimit::Estimate,
+            stable_step: StableStepOptions::default(),
+            energy_tolerance: None,
+            growth_limit: 10.0,
+            force_velocity: ForceVelocity::Lagged,
+            parallel: Parallelism::default(),
+            reduce: Arc::new(Serial),
+        }
+    }
+}
+
+impl fmt::Debug for CentralDifferenceOptions {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.debug_struct("CentralDifferenceOptions")
+            .field("stable_limit", &self.stable_limit)
+            .field("stable_step", &self.stable_step)
+            .field("energy_tolerance", &self.energy_tolerance)
+            .field("growth_limit", &self.growth_limit)
+            .field("force_velocity", &self.force_velocity)
+            .field("parallel", &self.parallel)
+            .finish_non_exhaustive()
+    }
+}
+
+/// Partial sums of the end-of-step loop, per chunk:
+/// `[vh.f_int, vh.f_ext, vh.f_d, v.f_int, v.f_ext, v.f_d, a.f_int, a.f_ext, a.f_d, m v^2]`.
+type EndSums = [f64; 10];
+
+/// Explicit central-difference integrator (half-step velocity form, lumped mass).
+///
+/// One step from `t_n` to `t_{n+1} = t_n + dt`, with `M` the lumped mass:
+///
+/// ```text
+/// v_{n+1/2} = v_n + (dt/2) a_n
+/// u_{n+1}   = u_n + dt v_{n+1/2}
+/// a_{n+1}   = M^-1 ( f_ext(t_{n+1}) - f_int(t_{n+1}, u_{n+1}, v_{n+1/2})
+///                    - C v_{n+1/2} - sum_k f_k(t_{n+1}, u_{n+1}, v_{n+1/2}) )
+/// v_{n+1}   = v_{n+1/2} + (dt/2) a_{n+1}
+/// ```
+///
+/// Eliminating the integer-step velocity gives the classical half-step form
+/// `v_{n+1/2} = v_{n-1/2} + dt_avg a_n` with `dt_avg = (dt_{n-1/2} + dt_{n+1/2}) / 2`, so a varying
+/// step is handled correctly. The start is consistent: `a_0 = M^-1 (f_ext - f_int(u_0, v_0) - C v_0 - ...)`.
+///
+/// **Velocity used by damping and rate-dependent forces.** The internal, damping and extra forces
+/// at `t_{n+1}` receive the lagged half-step velocity `v_{n+1/2}` (at the start, `v_0`). With
+/// this treatment a single mode of damping ratio `xi` is stable for
+/// `omega dt <= 2 (sqrt(1 + xi^2) - xi)`.
+///
+/// **Constraints.** Fixed DOFs keep their initial displacement and zero velocity. At a
+/// prescribed-displacement DOF `u_{n+1} = g(t_{n+1})` and `v_{n+1/2} = (u_{n+1} - u_n)/dt`; at a
+/// prescribed-velocity DOF `v_{n+1/2} = h(t_{n+1/2})`. Their integer-step velocity and acceleration
+/// are centred on a look-ahead half step of the same size, and the reaction
+/// `r = m a - (f_ext - f_int - C v - sum f_k)` is booked as constraint work. At the start the
+/// integrator sets `u = g(t_0)`, `v = h(t_0)` or `v = 0` on those DOFs and takes their `a_0 = 0`.
+///
+/// **Transactions.** A step writes into the integrator's own buffers and swaps them into the state
+/// only when every guard has passed, so a failed step leaves the state and the energy ledger as
+/// they were. A step allocates nothing.
+///
+/// # Reference
+/// Belytschko, Liu & Moran (2000), *Nonlinear Finite Elements for Continua and Structures*, sec. 6.2
+/// (the flowchart of explicit time integration and the energy balance); Hughes (1987), *The Finite
+/// Element Method*, ch. 9.
+pub struct CentralDifference {
+    n: usize,
+    options: CentralDifferenceOptions,
+    mass: Vec<f64>,
+    /// `1/m` on free DOFs, 0 on constrained ones.
+    inv_mass: Vec<f64>,
+    constraints: Vec<(usize, Motion)>,
+    damping: Damping,
+    u_next: Vec<f64>,
+    v_half: Vec<f64>,
+    /// Velocity given to velocity-dependent forces (used only with `ForceVelocity::Predicted`).
+    v_force: Vec<f64>,
+    v_next: Vec<f64>,
+    a_next: Vec<f64>,
+    f_int: Vec<f64>,
+    f_ext: Vec<f64>,
+    f_damp: Vec<f64>,
+    f_extra: Vec<Vec<f64>>,
+    partials: Vec<EndSums>,
+    partials3: Vec<[f64; 3]>,
+    partials1: Vec<[f64; 1]>,
+    reactions: Vec<f64>,
+    ledger: EnergyLedger,
+    trial: EnergyLedger,
+    stable: Option<StableStep>,
+    dt_stable: Option<f64>,
+}
+
+impl fmt::Debug for CentralDifference {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.debug_struct("CentralDifference")
+            .field("dofs", &self.n)
+            .field("options", &self.options)
+            .field("dt_stable", &self.dt_stable)
+            .finish_non_exhaustive()
+    }
+}
+
+fn model_err(step: u64, t: f64) -> impl Fn(ModelError) -> Error {
+    move |source| Error::Model { step, t, source }
+}
+
+impl CentralDifference {
+    /// Creates the integrator for `model` and starts the run from `state`: checks sizes, masses and
+    /// constraints, applies the constraints to the state, computes the consistent initial
+    /// acceleration into `state.a`, opens the energy ledger and, with
+    /// [`StableLimit::Estimate`], estimates the stable step.
+    ///
+    /// # Errors
+    /// [`Error::EmptyModel`], [`Error::DimensionMismatch`], [`Error::NonFiniteInput`],
+    /// [`Error::NonPositiveMass`], constraint errors, [`Error::InvalidParameter`] for bad options or
+    /// Rayleigh coefficients, [`Error::Model`] when the model fails, and the stable-step estimator's
+    /// errors. On error `state` is unchanged.
+    pub fn new<M: Model + ?Sized>(
+        model: &mut M,
+        state: &mut State,
+        options: CentralDifferenceOptions,
+    ) -> Result<Self> {
+        let mut cd = Self::prepare(model, state, options)?;
+        // Work on a copy so that a failure leaves the caller's state untouched.
+        let mut s = state.clone();
+        for (dof, motion) in &cd.constraints {
+            match motion {
+                Motion::Fixed => s.v[*dof] = 0.0,
+                Motion::Displacement(g) => s.u[*dof] = g.value(s.t),
+                Motion::Velocity(h) => s.v[*dof] = h.value(s.t),
+            }
+            s.a[*dof] = 0.0;
+        }
+        check_finite("constrained initial displacement", &s.u)?;
+        check_finite("constrained initial velocity", &s.v)?;
+        cd.u_next.copy_from_slice(&s.u);
+        cd.v_half.copy_from_slice(&s.v);
+        if cd.options.force_velocity == ForceVelocity::Predicted {
+            cd.v_force.copy_from_slice(&s.v);
+        }
+        cd.end_of_step(model, s.step, s.t, 0.0)?;
+        s.a.copy_from_slice(&cd.a_next);
+        // With dt = 0 the trial ledger holds the initial kinetic energy and the pending scalars.
+        std::mem::swap(&mut cd.ledger, &mut cd.trial);
+        let l = &mut cd.ledger;
+        l.initial_kinetic = l.kinetic;
+        l.initial_internal = model.stored_energy(&s.u).unwrap_or(0.0);
+        l.energy_in = l.initial_kinetic + l.initial_internal.abs();
+        if let StableLimit::Estimate = cd.options.stable_limit {
+            cd.reestimate_stable_step(model, &s)?;
+        }
+        *state = s;
+        Ok(cd)
+    }
+
+    /// Continues a run from a saved state and energy ledger (for example from a checkpoint): the
+    /// state's acceleration is taken as it is, so the continued run is bit-identical to an
+    /// uninterrupted one.
+    ///
+    /// # Errors
+    /// As for [`CentralDifference::new`], and [`Error::DimensionMismatch`] when the ledger does not
+    /// match the model's extra forces or constraints.
+    pub fn resume<M: Model + ?Sized>(
+        model: &mut M,
+        state: &State,
+        ledger: EnergyLedger,
+        options: CentralDifferenceOptions,
+    ) -> Result<Self> {
+        let mut cd = Self::prepare(model, state, options)?;
+        check_finite("acceleration", &state.a)?;
+        check_len(
+            "energy ledger extra forces",
+            cd.ledger.extra_work.len(),
+            ledger.extra_work.len(),
+        )?;
+        check_len(
+            "energy ledger extra forces",
+            cd.ledger.extra_work.len(),
+            ledger.extra_names.len(),
+        )?;
+        check_len(
+            "energy ledger extra forces",
+            cd.ledger.extra_work.len(),
+            ledger.pending.extra.len(),
+        )?;
+        check_len(
+            "energy ledger reactions",
+            cd.constraints.len(),
+            ledger.pending.reactions.len(),
+        )?;
+        cd.ledger = ledger;
+        cd.trial = cd.ledger.clone();
+        if let StableLimit::Estimate = cd.options.stable_limit {
+            cd.reestimate_stable_step(model, state)?;
+        }
+        Ok(cd)
+    }
+
+    /// Checks the model and state and allocates every work vector.
+    fn prepare<M: Model + ?Sized>(
+        model: &mut M,
+        state: &State,
+        options: CentralDifferenceOptions,
+    ) -> Result<Self> {
+        let n = model.dofs();
+        if n == 0 {
+            return Err(Error::EmptyModel);
+        }
+        check_len("state displacement", n, state.u.len())?;
+        check_len("state velocity", n, state.v.len())?;
+        check_len("state acceleration", n, state.a.len())?;
+        check_finite("time", &[state.t])?;
+        check_finite("displacement", &state.u)?;
+        check_finite("velocity", &state.v)?;
+        if let StableLimit::Given(dt) = options.stable_limit {
+            if !(dt.is_finite() && dt > 0.0) {
+                return Err(Error::InvalidParameter {
+                    name: "stable_limit",
+                    value: dt,
+                    expected: "a positive, finite step",
+                });
+            }
+        }
+        if let Some(tol) = options.energy_tolerance {
+            if !(tol.is_finite() && tol > 0.0) {
+                return Err(Error::InvalidParameter {
+                    name: "energy_tolerance",
+                    value: tol,
+                    expected: "a positive, finite relative tolerance",
+                });
+            }
+        }
+        if options.growth_limit.is_nan() || options.growth_limit <= 0.0 {
+            return Err(Error::InvalidParameter {
+                name: "growth_limit",
+                value: options.growth_limit,
+                expected: "a positive factor (infinity disables the guard)",
+            });
+        }
+        let mut mass = vec![0.0; n];
+        model.lumped_mass(&mut mass);
+        let mask = model.constraints().validate(n)?;
+        let mut inv_mass = vec![0.0; n];
+        for i in 0..n {
+            let m = mass[i];
+            let ok = if mask[i] {
+                m.is_finite() && m >= 0.0
+            } else {
+                m.is_finite() && m > 0.0
+            };
+            if !ok {
+                return Err(Error::NonPositiveMass { dof: i, value: m });
+            }
+            if !mask[i] {
+                inv_mass[i] = 1.0 / m;
+            }
+        }
+        let constraints: Vec<(usize, Motion)> = model
+            .constraints()
+            .as_slice()
+            .iter()
+            .map(|c| (c.dof, c.motion.clone()))
+            .collect();
+        let damping = model.damping();
+        if let Damping::Rayleigh { a0, a1 } = damping {
+            for (name, v) in [("a0", a0), ("a1", a1)] {
+                if !(v.is_finite() && v >= 0.0) {
+                    return Err(Error::InvalidParameter {
+                        name,
+                        value: v,
+                        expected: "a non-negative, finite Rayleigh coefficient",
+                    });
+                }
+            }
+        }
+        let names = model.extra_force_names();
+        let k = names.len();
+        let ledger = EnergyLedger::new(names, constraints.len());
+        let chunks = chunk_count(n);
+        let dt_stable = match options.stable_limit {
+            StableLimit::Given(dt) => Some(dt),
+            _ => None,
+        };
+        Ok(CentralDifference {
+            n,
+            mass,
+            inv_mass,
+            reactions: vec![0.0; constraints.len()],
+            constraints,
+            damping,
+            u_next: vec![0.0; n],
+            v_half: vec![0.0; n],
+            v_force: if options.force_velocity == ForceVelocity::Predicted {
+                vec![0.0; n]
+            } else {
+                Vec::new()
+            },
+            v_next: vec![0.0; n],
+            a_next: vec![0.0; n],
+            f_int: vec![0.0; n],
+            f_ext: vec![0.0; n],
+            f_damp: vec![0.0; n],
+            f_extra: vec![vec![0.0; n]; k],
+            partials: vec![[0.0; 10]; chunks],
+            partials3: vec![[0.0; 3]; chunks],
+            partials1: vec![[0.0; 1]; chunks],
+            trial: ledger.clone(),
+            ledger,
+            stable: None,
+            dt_stable,
+            options,
+        })
+    }
+
+    /// The energy ledger after the last accepted step.
+    pub fn energy(&self) -> &EnergyLedger {
+        &self.ledger
+    }
+
+    /// The lumped mass the integrator uses.
+    pub fn lumped_mass(&self) -> &[f64] {
+        &self.mass
+    }
+
+    /// The last stable-step estimate, if one was made.
+    pub fn stable_step(&self) -> Option<&StableStep> {
+        self.stable.as_ref()
+    }
+
+    /// The step above which [`step`](Self::step) refuses to go (`None`: unchecked or not known).
+    pub fn stable_limit(&self) -> Option<f64> {
+        match self.options.stable_limit {
+            StableLimit::Unchecked => None,
+            _ => self.dt_stable,
+        }
+    }
+
+    /// Changes how steps are checked against the stable limit.
+    ///
+    /// # Errors
+    /// [`Error::InvalidParameter`] for a `Given` limit that is not positive and finite.
+    pub fn set_stable_limit(&mut self, limit: StableLimit) -> Result<()> {
+        match limit {
+            StableLimit::Given(dt) if !(dt.is_finite() && dt > 0.0) => {
+                return Err(Error::InvalidParameter {
+                    name: "stable_limit",
+                    value: dt,
+                    expected: "a positive, finite step",
+                });
+            }
+            StableLimit::Given(dt) => self.dt_stable = Some(dt),
+            _ => {}
+        }
+        self.options.stable_limit = limit;
+        Ok(())
+    }
+
+    /// Estimates the model's stable step in configuration `state` (see [`stable_step::estimate`])
+    /// and makes its damped critical step the limit that [`step`](Self::step) enforces.
+    ///
+    /// # Errors
+    /// The estimator's errors.
+    pub fn reestimate_stable_step<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &State,
+    ) -> Result<&StableStep> {
+        let s = stable_step::estimate(model, state, &self.options.stable_step)?;
+        self.dt_stable = Some(s.dt_critical_damped);
+        Ok(self.stable.insert(s))
+    }
+
+    /// Advances `state` by one step of size `dt`.
+    ///
+    /// # Errors
+    /// [`Error::InvalidStep`], [`Error::StepAboveStableLimit`], [`Error::DimensionMismatch`] (a
+    /// state or model of another size), [`Error::Model`], [`Error::NonFiniteState`],
+    /// [`Error::Unstable`] and [`Error::EnergyBalance`]. On any error the state and the energy
+    /// ledger are those of the last accepted step.
+    pub fn step<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &mut State,
+        dt: f64,
+    ) -> Result<StepReport> {
+        if !(dt.is_finite() && dt > 0.0) {
+            return Err(Error::InvalidStep { dt });
+        }
+        if let (Some(dt_stable), false) = (
+            self.dt_stable,
+            matches!(self.options.stable_limit, StableLimit::Unchecked),
+        ) {
+            if dt > dt_stable {
+                return Err(Error::StepAboveStableLimit { dt, dt_stable });
+            }
+        }
+        check_len("model DOFs", self.n, model.dofs())?;
+        check_len("state displacement", self.n, state.u.len())?;
+        check_len("state velocity", self.n, state.v.len())?;
+        check_len("state acceleration", self.n, state.a.len())?;
+        let step = state.step + 1;
+        let t_new = state.t + dt;
+        let half = 0.5 * dt;
+
+        // Loop A: half-step velocity and new displacement.
+        {
+            let (u, v, a) = (&state.u, &state.v, &state.a);
+            let par = self.options.parallel.parallel_for(self.n);
+            for_chunks2(
+                par,
+                &mut self.u_next,
+                &mut self.v_half,
+                &mut self.partials1,
+                |start, un, vh, p| {
+                    let end = start + un.len();
+                    let (u, v, a) = (&u[start..end], &v[start..end], &a[start..end]);
+                    let mut s = 0.0;
+                    for j in 0..un.len() {
+                        let h = v[j] + half * a[j];
+                        let x = u[j] + dt * h;
+                        vh[j] = h;
+                        un[j] = x;
+                        s += x;
+                    }
+                    p[0] = s;
+                },
+            );
+        }
+        let mut usum = [sum_partials(&self.partials1)[0]];
+        self.options.reduce.sum_in_place(&mut usum);
+        for (dof, motion) in &self.constraints {
+            let d = *dof;
+            match motion {
+                Motion::Fixed => {
+                    self.u_next[d] = state.u[d];
+                    self.v_half[d] = 0.0;
+                }
+                Motion::Displacement(g) => {
+                    self.u_next[d] = g.value(t_new);
+                    self.v_half[d] = (self.u_next[d] - state.u[d]) / dt;
+                }
+                Motion::Velocity(h) => {
+                    self.v_half[d] = h.value(state.t + half);
+                    self.u_next[d] = state.u[d] + dt * self.v_half[d];
+                }
+            }
+        }
+        if self.options.force_velocity == ForceVelocity::Predicted {
+            for ((vf, vh), a) in self.v_force.iter_mut().zip(&self.v_half).zip(&state.a) {
+                *vf = vh + half * a;
+            }
+        }
+        if !usum[0].is_finite() {
+            let dof = first_non_finite(&self.u_next).unwrap_or(0);
+            return Err(Error::NonFiniteState {
+                quantity: "displacement",
+                dof,
+                step,
+                t: t_new,
+            });
+        }
+
+        // Forces at t_{n+1} and loop B.
+        self.end_of_step(model, step, t_new, dt)?;
+
+        // Guards.
+        let l = &self.trial;
+        if l.energy_in > 0.0 && l.kinetic > self.options.growth_limit * l.energy_in {
+            return Err(Error::Unstable {
+                step,
+                t: t_new,
+                kinetic: l.kinetic,
+                energy_in: l.energy_in,
+                limit: self.options.growth_limit,
+            });
+        }
+        let rel = l.relative_balance_error();
+        if let Some(tol) = self.options.energy_tolerance {
+            if rel > tol {
+                return Err(Error::EnergyBalance {
+                    step,
+                    t: t_new,
+                    relative_error: rel,
+                    threshold: tol,
+                    last_good: Box::new(state.clone()),
+                });
+            }
+        }
+
+        // Commit.
+        std::mem::swap(&mut state.u, &mut self.u_next);
+        std::mem::swap(&mut state.v, &mut self.v_next);
+        std::mem::swap(&mut state.a, &mut self.a_next);
+        state.t = t_new;
+        state.step = step;
+        std::mem::swap(&mut self.ledger, &mut self.trial);
+        model.commit(t_new);
+        Ok(StepReport {
+            step,
+            t: t_new,
+            dt,
+            kinetic: self.ledger.kinetic,
+            relative_balance_error: rel,
+            iterations: 0,
+        })
+    }
+
+    /// Evaluates the forces at `t` on `u_next` (with velocity `v_half`), computes `a_next`,
+    /// `v_next`, the reactions and the trial energy ledger for a step of size `dt` (0 at the start).
+    fn end_of_step<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        step: u64,
+        t: f64,
+        dt: f64,
+    ) -> Result<()> {
+        let err = model_err(step, t);
+        let (u, vh) = (&self.u_next, &self.v_half);
+        // The velocity the forces see.
+        let vf: &[f64] = match self.options.force_velocity {
+            ForceVelocity::Lagged => vh,
+            ForceVelocity::Predicted => &self.v_force,
+        };
+        model.external_force(t, &mut self.f_ext).map_err(&err)?;
+        model
+            .internal_force(t, u, vf, &mut self.f_int)
+            .map_err(&err)?;
+        let (d0, d1, damped) = match self.damping {
+            Damping::None => (0.0, 0.0, false),
+            Damping::Rayleigh { a0, a1 } => {
+                if a1 != 0.0 {
+                    model
+                        .stiffness_product(t, u, vf, &mut self.f_damp)
+                        .map_err(&err)?;
+                } else {
+                    self.f_damp.fill(0.0);
+                }
+                (a0, a1, true)
+            }
+            Damping::Force => {
+                model
+                    .damping_force(t, u, vf, &mut self.f_damp)
+                    .map_err(&err)?;
+                (0.0, 1.0, true)
+            }
+        };
+        for (k, f) in self.f_extra.iter_mut().enumerate() {
+            model.extra_force(k, t, u, vf, f).map_err(&err)?;
+        }
+
+        let half = 0.5 * dt;
+        {
+            let (fi, fe, fd, fx) = (&self.f_int, &self.f_ext, &self.f_damp, &self.f_extra);
+            let (m, minv) = (&self.mass, &self.inv_mass);
+            let par = self.options.parallel.parallel_for(self.n);
+            for_chunks2(
+                par,
+                &mut self.a_next,
+                &mut self.v_next,
+                &mut self.partials,
+                |start, an, vn, p| {
+                    let end = start + an.len();
+                    let (fi, fe, fd) = (&fi[start..end], &fe[start..end], &fd[start..end]);
+                    let (m, minv, vh) = (&m[start..end], &minv[start..end], &vh[start..end]);
+                    let vf = &vf[start..end];
+                    let mut s = [0.0; 10];
+                    for j in 0..an.len() {
+                        let fdj = if damped {
+                            d0 * m[j] * vf[j] + d1 * fd[j]
+                        } else {
+                            0.0
+                        };
+                        let mut f = fe[j] - fi[j] - fdj;
+                        for x in fx {
+                            f -= x[start + j];
+                        }
+                        let a = f * minv[j];
+                        let v = vh[j] + half * a;
+                        an[j] = a;
+                        vn[j] = v;
+                        s[0] += vh[j] * fi[j];
+                        s[1] += vh[j] * fe[j];
+                        s[2] += vh[j] * fdj;
+                        s[3] += v * fi[j];
+                        s[4] += v * fe[j];
+                        s[5] += v * fdj;
+                        s[6] += a * fi[j];
+                        s[7] += a * fe[j];
+                        s[8] += a * fdj;
+                        s[9] += m[j] * v * v;
+                    }
+                    *p = s;
+                },
+            );
+        }
+        let mut sums = sum_partials(&self.partials);
+
+        // Prescribed motions: centred velocity and acceleration, reactions.
+        let mut constraint_power = 0.0;
+        for (j, (dof, motion)) in self.constraints.iter().enumerate() {
+            let d = *dof;
+            let fdj = if damped {
+                d0 * self.mass[d] * vf[d] + d1 * self.f_damp[d]
+            } else {
+                0.0
+            };
+            let mut f = self.f_ext[d] - self.f_int[d] - fdj;
+            for x in &self.f_extra {
+                f -= x[d];
+            }
+            let (v_c, a_c) = match motion {
+                Motion::Fixed => (0.0, 0.0),
+                _ if dt == 0.0 => (vh[d], 0.0),
+                Motion::Displacement(g) => {
+                    let ahead = (g.value(t + dt) - self.u_next[d]) / dt;
+                    (0.5 * (vh[d] + ahead), (ahead - vh[d]) / dt)
+                }
+                Motion::Velocity(h) => {
+                    let ahead = h.value(t + half);
+                    (0.5 * (vh[d] + ahead), (ahead - vh[d]) / dt)
+                }
+            };
+            // The loop computed a = 0 and v = vh here (inverse mass 0); correct the sums.
+            let dv = v_c - vh[d];
+            sums[3] += dv * self.f_int[d];
+            sums[4] += dv * self.f_ext[d];
+            sums[5] += dv * fdj;
+            sums[6] += a_c * self.f_int[d];
+            sums[7] += a_c * self.f_ext[d];
+            sums[8] += a_c * fdj;
+            sums[9] += self.mass[d] * (v_c * v_c - vh[d] * vh[d]);
+            self.a_next[d] = a_c;
+            self.v_next[d] = v_c;
+            let r = self.mass[d] * a_c - f;
+            constraint_power += vh[d] * (self.ledger.pending.reactions[j] + r);
+            self.reactions[j] = r;
+        }
+
+        self.options.reduce.sum_in_place(&mut sums);
+        let mut cp = [constraint_power];
+        self.options.reduce.sum_in_place(&mut cp);
+        let constraint_power = cp[0];
+
+        let l = &mut self.trial;
+        l.copy_from(&self.ledger);
+        let p = &self.ledger.pending;
+        let d_int = half * (p.internal[0] + half * p.internal[1] + sums[0]);
+        let d_ext = half * (p.external[0] + half * p.external[1] + sums[1]);
+        let d_damp = half * (p.damping[0] + half * p.damping[1] + sums[2]);
+        let d_con = half * constraint_power;
+        l.internal_work += d_int;
+        l.external_work += d_ext;
+        l.damping_work += d_damp;
+        l.constraint_work += d_con;
+        l.energy_in += d_ext.abs() + d_con.abs();
+        l.kinetic = 0.5 * sums[9];
+        l.pending.internal = [sums[3], sums[6]];
+        l.pending.external = [sums[4], sums[7]];
+        l.pending.damping = [sums[5], sums[8]];
+        l.pending.reactions.copy_from_slice(&self.reactions);
+
+        // Extra forces: their own dot products, one pass each.
+        let par = self.options.parallel.parallel_for(self.n);
+        for k in 0..self.f_extra.len() {
+            let (fx, an, vn) = (&self.f_extra[k], &self.a_next, &self.v_next);
+            for_chunks_read(par, self.n, &mut self.partials3, |r, p| {
+                let mut s = [0.0; 3];
+                for i in r {
+                    s[0] += vh[i] * fx[i];
+                    s[1] += vn[i] * fx[i];
+                    s[2] += an[i] * fx[i];
+                }
+                *p = s;
+            });
+            let mut s = sum_partials(&self.partials3);
+            self.options.reduce.sum_in_place(&mut s);
+            let pk = self.ledger.pending.extra[k];
+            l.extra_work[k] += half * (pk[0] + half * pk[1] + s[0]);
+            l.pending.extra[k] = [s[1], s[2]];
+        }
+
+        let all_finite = sums.iter().all(|x| x.is_finite())
+            && l.extra_work.iter().all(|x| x.is_finite())
+            && l.pending.extra.iter().flatten().all(|x| x.is_finite())
+            && self.reactions.iter().all(|x| x.is_finite());
+        if !all_finite {
+            let (quantity, dof) = [
+                ("external force", &self.f_ext),
+                ("internal force", &self.f_int),
+                ("damping force", &self.f_damp),
+                ("acceleration", &self.a_next),
+                ("velocity", &self.v_next),
+            ]
+            .into_iter()
+            .chain(self.f_extra.iter().map(|f| ("extra force", f)))
+            .find_map(|(q, x)| first_non_finite(x).map(|d| (q, d)))
+            .unwrap_or(("energy", 0));
+            return Err(Error::NonFiniteState {
+                quantity,
+                dof,
+                step,
+                t,
+            });
+        }
+        Ok(())
+    }
+}
+
+fn first_non_finite(x: &[f64]) -> Option<usize> {
+    x.iter().position(|v| !v.is_finite())
+}
+
+impl Integrator for CentralDifference {
+    fn step<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &mut State,
+        dt: f64,
+    ) -> Result<StepReport> {
+        CentralDifference::step(self, model, state, dt)
+    }
+
+    fn energy(&self) -> &EnergyLedger {
+        &self.ledger
+    }
+
+    fn stable_limit(&self) -> Option<f64> {
+        CentralDifference::stable_limit(self)
+    }
+
+    fn reestimate_stable_step<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &State,
+    ) -> Result<Option<f64>> {
+        CentralDifference::reestimate_stable_step(self, model, state)
+            .map(|s| Some(s.dt_critical_damped))
+    }
+}

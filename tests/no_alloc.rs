@@ -1,0 +1,106 @@
+//! A time step allocates nothing: a counting global allocator watches the steps (after a
+//! warm-up that lets rayon start its threads).
+
+mod common;
+
+use std::alloc::{GlobalAlloc, Layout, System};
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+use tempora::State;
+use tempora::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit};
+use tempora::model::{Constraints, LinearModel, Load, TimeFunction};
+
+struct Counting;
+
+static ALLOCATIONS: AtomicUsize = AtomicUsize::new(0);
+
+unsafe impl GlobalAlloc for Counting {
+    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
+        ALLOCATIONS.fetch_add(1, Ordering::SeqCst);
+        unsafe { System.alloc(layout) }
+    }
+    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
+        unsafe { System.dealloc(ptr, layout) }
+    }
+    unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
+        ALLOCATIONS.fetch_add(1, Ordering::SeqCst);
+        unsafe { System.realloc(ptr, layout, new_size) }
+    }
+}
+
+#[global_allocator]
+static GLOBAL: Counting = Counting;
+
+fn model(n: usize) -> LinearModel {
+    let mut pattern = vec![0.0; n];
+    pattern[n - 1] = 1.0;
+    LinearModel::new(
+        &common::diag(&vec![1.0; n]),
+        &common::chain_stiffness(n, 1.0, false, false),
+    )
+    .unwrap()
+    .with_rayleigh(0.01, 0.01)
+    .unwrap()
+    .with_load(Load::Pattern {
+        pattern,
+        factor: TimeFunction::table(vec![0.0, 1.0], vec![0.0, 1.0]).unwrap(),
+    })
+    .unwrap()
+    .with_constraints(
+        Constraints::new()
+            .fix(1)
+            .prescribe_velocity(0, TimeFunction::Constant(0.1))
+            .prescribe_displacement(2, TimeFunction::function(|t| 0.01 * t)),
+    )
+    .unwrap()
+}
+
+// One test function so that no other test thread allocates while counting.
+#[test]
+fn explicit_steps_allocate_nothing() {
+    for (n, treatment) in [
+        (50, ForceVelocity::Lagged),
+        (50, ForceVelocity::Predicted),
+        (200_000, ForceVelocity::Lagged),
+        (200_000, ForceVelocity::Predicted),
+    ] {
+        if n < 1000 {
+            // Serial path, called from the test's own thread.
+            check(n, treatment);
+        } else {
+            // Parallel path. Called from a thread outside rayon's pool, every parallel loop is
+            // handed over through rayon's injector queue, which allocates a block per 63
+            // hand-offs; from inside the pool (as here) the step allocates nothing at all.
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(2)
+                .build()
+                .unwrap();
+            pool.install(|| check(n, treatment));
+        }
+    }
+}
+
+fn check(n: usize, treatment: ForceVelocity) {
+    {
+        let mut m = model(n);
+        let mut state = State::at_rest(n, 0.0);
+        let opts = CentralDifferenceOptions {
+            stable_limit: StableLimit::Given(1.0),
+            force_velocity: treatment,
+            ..Default::default()
+        };
+        let mut cd = CentralDifference::new(&mut m, &mut state, opts).unwrap();
+        for _ in 0..5 {
+            cd.step(&mut m, &mut state, 0.5).unwrap();
+        }
+        let before = ALLOCATIONS.load(Ordering::SeqCst);
+        for _ in 0..50 {
+            cd.step(&mut m, &mut state, 0.5).unwrap();
+        }
+        let during = ALLOCATIONS.load(Ordering::SeqCst) - before;
+        assert_eq!(
+            during, 0,
+            "n = {n}, {treatment:?}: {during} allocations in 50 steps"
+        );
+    }
+}
