@@ -414,7 +414,7 @@ where
             } => {
                 if reestimate_every > 0
                     && outcome.steps > 0
-                    && outcome.steps % reestimate_every == 0
+                    && outcome.steps.is_multiple_of(reestimate_every)
                 {
                     match integrator.reestimate_stable_step(model, state) {
                         Ok(l) => limit = l.or(limit),

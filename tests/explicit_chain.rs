@@ -40,11 +40,13 @@ fn struck_bar_wave_arrives_after_l_over_c_with_stress_rho_c_v0() {
     let mut cd =
         CentralDifference::new(&mut model, &mut state, CentralDifferenceOptions::default())
             .unwrap();
-    // Lumped two-node bar: omega_max = 2 c / h exactly, so the stable step is h / c
-    // (Belytschko, Liu & Moran 2000, sec. 6.3).
+    // One lumped two-node bar element has omega = 2 c / h, so h / c is the element bound on the
+    // stable step (Belytschko, Liu & Moran 2000, ch. 6); the assembled mesh's omega_max lies just
+    // below 2 c / h (by about (pi / 2n)^2 relative for n elements), so its critical step lies just
+    // above h / c.
     let dt_stable = cd.stable_limit().unwrap();
     assert!(
-        (dt_stable - h / c).abs() < 1e-6 * h / c,
+        dt_stable >= h / c && dt_stable < (1.0 + 1e-4) * h / c,
         "{dt_stable} vs {}",
         h / c
     );
@@ -140,9 +142,10 @@ fn energy_balance_of_an_undamped_chain_does_not_drift() {
             worst_first.max(worst_last) < bound,
             "dt {dt}: {worst_first:e} {worst_last:e}"
         );
-        // No drift: the late errors are no larger than the early ones (plus round-off).
+        // No drift: a steady drift would make the last tenth's error about ten times the first
+        // tenth's; the bounded oscillation (modes beating) leaves them of the same size.
         assert!(
-            worst_last <= 1.05 * worst_first + 1e-12,
+            worst_last <= 2.0 * worst_first + 1e-12,
             "{worst_first:e} -> {worst_last:e}"
         );
     }
@@ -319,13 +322,13 @@ fn named_extra_forces_are_booked_separately_and_the_balance_closes() {
     let mut opts = RunOptions::new(
         0.5,
         StepControl::Auto {
-            safety: 0.5,
+            safety: 0.1,
             reestimate_every: 0,
         },
     );
     opts.record = RecordOptions {
         dofs: Some(vec![n - 1]),
-        every: 10,
+        every: 2,
         velocity: true,
         ..Default::default()
     };
@@ -342,13 +345,19 @@ fn named_extra_forces_are_booked_separately_and_the_balance_closes() {
     assert_eq!(out.record.dofs, vec![n - 1]);
     assert_eq!(out.record.v.len(), out.record.len());
     let l = cd.energy();
-    let contact = l.extra("contact").unwrap();
-    // The wall stopped the chain at some point: it stored energy while in contact, or gave it back.
+    assert!(l.extra("contact").is_some());
+    // The chain reached the wall, and the penalty stored energy while in contact.
     assert!(
         out.record.u_column(0).any(|u| u > 0.05),
         "never reached the wall"
     );
-    assert!(contact.is_finite());
+    let peak_contact = out
+        .record
+        .energy
+        .iter()
+        .map(|e| e.extra)
+        .fold(0.0, f64::max);
+    assert!(peak_contact > 0.1, "peak contact energy {peak_contact}");
     assert!(
         l.relative_balance_error() < 0.01,
         "{}",
@@ -359,4 +368,75 @@ fn named_extra_forces_are_booked_separately_and_the_balance_closes() {
         "{}",
         out.max_relative_balance_error
     );
+}
+
+/// A model that stiffens with time and reports its element stable step: the run loop's automatic
+/// step follows the re-estimates (safety times the current limit).
+struct Stiffening(LinearModel);
+
+impl Model for Stiffening {
+    fn dofs(&self) -> usize {
+        self.0.dofs()
+    }
+    fn lumped_mass(&self, out: &mut [f64]) {
+        self.0.lumped_mass(out)
+    }
+    fn internal_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        self.0.internal_force(t, u, v, out)?;
+        for f in out.iter_mut() {
+            *f *= 1.0 + t;
+        }
+        Ok(())
+    }
+    fn element_stable_step(&mut self, t: f64, _u: &[f64]) -> Option<f64> {
+        // Unit masses, springs k (1 + t): omega_max <= 2 sqrt(4 k (1 + t)) for the chain; the
+        // element step of a spring between two unit masses is 2 / sqrt(2 k (1 + t)) (exact
+        // solution of the two-mass oscillator).
+        Some(2.0 / (2.0 * 100.0 * (1.0 + t)).sqrt())
+    }
+}
+
+#[test]
+fn automatic_steps_follow_the_reestimated_limit() {
+    let n = 5;
+    let inner = LinearModel::new(
+        &common::diag(&vec![1.0; n]),
+        &common::chain_stiffness(n, 100.0, false, false),
+    )
+    .unwrap();
+    let mut model = Stiffening(inner);
+    let mut state = State::new(0.0, vec![0.01, 0.0, 0.0, 0.0, -0.01], vec![0.0; n]).unwrap();
+    let mut cd =
+        CentralDifference::new(&mut model, &mut state, CentralDifferenceOptions::default())
+            .unwrap();
+    let opts = RunOptions::new(
+        3.0,
+        StepControl::Auto {
+            safety: 0.5,
+            reestimate_every: 10,
+        },
+    );
+    let out = run(&mut cd, &mut model, &mut state, &opts, |_| Flow::Continue).unwrap();
+    assert!(matches!(out.stop, StopReason::EndTime), "{:?}", out.stop);
+    let first = 0.5 * 2.0 / 200f64.sqrt();
+    approx::assert_relative_eq!(out.dt_max, first, max_relative = 1e-12);
+    // By t = 3 the stiffness has grown fourfold: the step halves (1 / sqrt(1 + t)), lagging by
+    // at most ten steps. The last step is shortened to land on t_end, so leave it out.
+    let dts: Vec<f64> = out.record.times.windows(2).map(|w| w[1] - w[0]).collect();
+    let late = dts[dts.len() - 2];
+    assert!(
+        late > 0.49 * first && late < 0.55 * first,
+        "{late} vs {first}"
+    );
+    assert!(
+        dts.windows(2).all(|w| w[1] <= w[0] * (1.0 + 1e-12)),
+        "steps must not grow"
+    );
+    assert_eq!(state.t, 3.0);
 }

@@ -298,23 +298,23 @@ impl CentralDifference {
         check_finite("time", &[state.t])?;
         check_finite("displacement", &state.u)?;
         check_finite("velocity", &state.v)?;
-        if let StableLimit::Given(dt) = options.stable_limit {
-            if !(dt.is_finite() && dt > 0.0) {
-                return Err(Error::InvalidParameter {
-                    name: "stable_limit",
-                    value: dt,
-                    expected: "a positive, finite step",
-                });
-            }
+        if let StableLimit::Given(dt) = options.stable_limit
+            && !(dt.is_finite() && dt > 0.0)
+        {
+            return Err(Error::InvalidParameter {
+                name: "stable_limit",
+                value: dt,
+                expected: "a positive, finite step",
+            });
         }
-        if let Some(tol) = options.energy_tolerance {
-            if !(tol.is_finite() && tol > 0.0) {
-                return Err(Error::InvalidParameter {
-                    name: "energy_tolerance",
-                    value: tol,
-                    expected: "a positive, finite relative tolerance",
-                });
-            }
+        if let Some(tol) = options.energy_tolerance
+            && !(tol.is_finite() && tol > 0.0)
+        {
+            return Err(Error::InvalidParameter {
+                name: "energy_tolerance",
+                value: tol,
+                expected: "a positive, finite relative tolerance",
+            });
         }
         if options.growth_limit.is_nan() || options.growth_limit <= 0.0 {
             return Err(Error::InvalidParameter {
@@ -451,7 +451,21 @@ impl CentralDifference {
         model: &mut M,
         state: &State,
     ) -> Result<&StableStep> {
-        let s = stable_step::estimate(model, state, &self.options.stable_step)?;
+        let mut s = stable_step::estimate(model, state, &self.options.stable_step)?;
+        // The damped limit of this integrator's treatment of velocity-dependent forces; for an
+        // element estimate, at the frequency 2 / dt it implies (exact for two-node bars).
+        let omega = s.omega_max.or_else(|| {
+            (s.dt_critical.is_finite() && s.dt_critical > 0.0).then(|| 2.0 / s.dt_critical)
+        });
+        if let Some(w) = omega.filter(|w| *w > 0.0)
+            && let Some(xi) = self
+                .damping
+                .ratio_at(w)
+                .filter(|x| x.is_finite() && *x >= 0.0)
+        {
+            s.xi = Some(xi);
+            s.dt_critical_damped = self.options.force_velocity.critical_omega_dt(xi) / w;
+        }
         self.dt_stable = Some(s.dt_critical_damped);
         Ok(self.stable.insert(s))
     }
@@ -475,10 +489,9 @@ impl CentralDifference {
         if let (Some(dt_stable), false) = (
             self.dt_stable,
             matches!(self.options.stable_limit, StableLimit::Unchecked),
-        ) {
-            if dt > dt_stable {
-                return Err(Error::StepAboveStableLimit { dt, dt_stable });
-            }
+        ) && dt > dt_stable
+        {
+            return Err(Error::StepAboveStableLimit { dt, dt_stable });
         }
         check_len("model DOFs", self.n, model.dofs())?;
         check_len("state displacement", self.n, state.u.len())?;
@@ -561,16 +574,16 @@ impl CentralDifference {
             });
         }
         let rel = l.relative_balance_error();
-        if let Some(tol) = self.options.energy_tolerance {
-            if rel > tol {
-                return Err(Error::EnergyBalance {
-                    step,
-                    t: t_new,
-                    relative_error: rel,
-                    threshold: tol,
-                    last_good: Box::new(state.clone()),
-                });
-            }
+        if let Some(tol) = self.options.energy_tolerance
+            && rel > tol
+        {
+            return Err(Error::EnergyBalance {
+                step,
+                t: t_new,
+                relative_error: rel,
+                threshold: tol,
+                last_good: Box::new(state.clone()),
+            });
         }
 
         // Commit.

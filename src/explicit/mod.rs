@@ -6,4 +6,7 @@ pub mod stable_step;
 pub use central_difference::{
     CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
 };
-pub use stable_step::element_stable_step;
+pub use stable_step::{
+    DEFAULT_SAFETY, EigenOptions, OmegaMaxEstimate, StableStep, StableStepMethod,
+    StableStepOptions, critical_step, element_stable_step, omega_max_gershgorin, omega_max_lanczos,
+};

@@ -76,10 +76,10 @@ mod tests {
     fn dot_is_the_same_serial_and_parallel() {
         let n = 100_003;
         let x: Vec<f64> = (0..n)
-            .map(|i| ((i * 7919) % 1000) as f64 * 1e-3 - 0.4)
+            .map(|i| ((i * 7919usize) % 1000) as f64 * 1e-3 - 0.4)
             .collect();
         let y: Vec<f64> = (0..n)
-            .map(|i| ((i * 104_729) % 997) as f64 * 1e-2)
+            .map(|i| ((i * 104_729usize) % 997) as f64 * 1e-2)
             .collect();
         let s = dot(&x, &y, Parallelism::serial());
         let p = dot(&x, &y, Parallelism { threshold: 1 });

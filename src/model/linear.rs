@@ -76,6 +76,9 @@ impl LoadTable {
     }
 }
 
+/// A user load function: writes `f(t)` into its buffer.
+pub type LoadFn = Arc<dyn Fn(f64, &mut [f64]) + Send + Sync>;
+
 /// The external load of a [`LinearModel`].
 #[derive(Clone, Default)]
 pub enum Load {
@@ -92,7 +95,7 @@ pub enum Load {
         factor: TimeFunction,
     },
     /// A user function writing `f(t)` into its buffer (which it must overwrite).
-    Function(Arc<dyn Fn(f64, &mut [f64]) + Send + Sync>),
+    Function(LoadFn),
 }
 
 impl fmt::Debug for Load {
