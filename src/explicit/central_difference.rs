@@ -129,9 +129,11 @@ type EndSums = [f64; 10];
 /// step is handled correctly. The start is consistent: `a_0 = M^-1 (f_ext - f_int(u_0, v_0) - C v_0 - ...)`.
 ///
 /// **Velocity used by damping and rate-dependent forces.** The internal, damping and extra forces
-/// at `t_{n+1}` receive the lagged half-step velocity `v_{n+1/2}` (at the start, `v_0`). With
-/// this treatment a single mode of damping ratio `xi` is stable for
-/// `omega dt <= 2 (sqrt(1 + xi^2) - xi)`.
+/// at `t_{n+1}` receive, by default, the lagged half-step velocity `v_{n+1/2}` (at the start,
+/// `v_0`); a single mode of damping ratio `xi` is then stable for
+/// `omega dt <= 2 (sqrt(1 + xi^2) - xi)`, and the damping term is first-order accurate. With
+/// [`ForceVelocity::Predicted`] they receive `v_{n+1/2} + (dt/2) a_n`, which keeps the scheme
+/// second order, stable for `omega dt <= 2 (sqrt(1 + 4 xi^2) - 2 xi)` (see `docs/explicit.md`).
 ///
 /// **Constraints.** Fixed DOFs keep their initial displacement and zero velocity. At a
 /// prescribed-displacement DOF `u_{n+1} = g(t_{n+1})` and `v_{n+1/2} = (u_{n+1} - u_n)/dt`; at a
