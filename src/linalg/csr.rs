@@ -78,6 +78,154 @@ impl CsrMatrix {
         self.data.len()
     }
 
+    /// Row pointers: the entries of row `i` are at positions `indptr[i]..indptr[i + 1]`.
+    pub fn indptr(&self) -> &[usize] {
+        &self.indptr
+    }
+
+    /// Column index of each stored entry.
+    pub fn indices(&self) -> &[u32] {
+        &self.indices
+    }
+
+    /// Value of each stored entry.
+    pub fn data(&self) -> &[f64] {
+        &self.data
+    }
+
+    /// Mutable values of the stored entries (the pattern stays fixed).
+    pub fn data_mut(&mut self) -> &mut [f64] {
+        &mut self.data
+    }
+
+    /// True when `other` has exactly the same pattern.
+    pub fn same_pattern(&self, other: &CsrMatrix) -> bool {
+        self.nrows == other.nrows
+            && self.ncols == other.ncols
+            && self.indptr == other.indptr
+            && self.indices == other.indices
+    }
+
+    /// Position of entry `(i, j)` in [`data`](Self::data), if it is stored.
+    pub fn position(&self, i: usize, j: usize) -> Option<usize> {
+        let (lo, hi) = (self.indptr[i], self.indptr[i + 1]);
+        self.indices[lo..hi]
+            .iter()
+            .position(|&c| c as usize == j)
+            .map(|k| lo + k)
+    }
+
+    /// A matrix with the union of the patterns of `mats` (all of the same shape), rows sorted by
+    /// column, every value zero.
+    ///
+    /// # Panics
+    /// When `mats` is empty or the shapes differ (a programmer error).
+    pub fn pattern_union(mats: &[&CsrMatrix]) -> CsrMatrix {
+        let (nrows, ncols) = (mats[0].nrows, mats[0].ncols);
+        assert!(mats.iter().all(|m| m.nrows == nrows && m.ncols == ncols));
+        let mut indptr = Vec::with_capacity(nrows + 1);
+        let mut indices = Vec::new();
+        indptr.push(0);
+        let mut row: Vec<u32> = Vec::new();
+        for i in 0..nrows {
+            row.clear();
+            for m in mats {
+                row.extend_from_slice(&m.indices[m.indptr[i]..m.indptr[i + 1]]);
+            }
+            row.sort_unstable();
+            row.dedup();
+            indices.extend_from_slice(&row);
+            indptr.push(indices.len());
+        }
+        let nnz = indices.len();
+        CsrMatrix {
+            nrows,
+            ncols,
+            indptr,
+            indices,
+            data: vec![0.0; nnz],
+        }
+    }
+
+    /// For each stored entry of `self`, its position in `target` (whose pattern must contain
+    /// this one's). Used to add `self` into `target` repeatedly without searching.
+    ///
+    /// # Panics
+    /// When an entry of `self` is not in `target`'s pattern (a programmer error).
+    pub fn positions_in(&self, target: &CsrMatrix) -> Vec<usize> {
+        let mut map = Vec::with_capacity(self.nnz());
+        for i in 0..self.nrows {
+            for k in self.indptr[i]..self.indptr[i + 1] {
+                let j = self.indices[k] as usize;
+                map.push(
+                    target
+                        .position(i, j)
+                        .expect("positions_in: entry missing from the target pattern"),
+                );
+            }
+        }
+        map
+    }
+
+    /// A diagonal matrix with the given entries.
+    pub fn from_diagonal(d: &[f64]) -> CsrMatrix {
+        let n = d.len();
+        CsrMatrix {
+            nrows: n,
+            ncols: n,
+            indptr: (0..=n).collect(),
+            indices: (0..n as u32).collect(),
+            data: d.to_vec(),
+        }
+    }
+
+    /// A matrix from raw CSR arrays, checked: row pointers non-decreasing from 0 to
+    /// `indices.len()`, column indices in range and strictly increasing within each row, values
+    /// finite.
+    ///
+    /// # Errors
+    /// [`Error::InvalidMatrix`] naming the first problem.
+    pub fn try_from_csr(
+        what: &'static str,
+        nrows: usize,
+        ncols: usize,
+        indptr: Vec<usize>,
+        indices: Vec<u32>,
+        data: Vec<f64>,
+    ) -> Result<Self> {
+        let bad = |problem: String| Err(Error::InvalidMatrix { what, problem });
+        if indptr.len() != nrows + 1 || indptr[0] != 0 || indptr[nrows] != indices.len() {
+            return bad("row pointers do not match the number of rows and entries".into());
+        }
+        if data.len() != indices.len() {
+            return bad("values and column indices differ in number".into());
+        }
+        for i in 0..nrows {
+            if indptr[i + 1] < indptr[i] {
+                return bad(format!("row pointers decrease at row {i}"));
+            }
+            let cols = &indices[indptr[i]..indptr[i + 1]];
+            for (k, &c) in cols.iter().enumerate() {
+                if c as usize >= ncols {
+                    return bad(format!("column {c} out of range in row {i}"));
+                }
+                if k > 0 && c <= cols[k - 1] {
+                    return bad(format!("columns not strictly increasing in row {i}"));
+                }
+            }
+        }
+        if let Some(k) = data.iter().position(|v| !v.is_finite()) {
+            return bad(format!("entry {k} is {}", data[k]));
+        }
+        Ok(CsrMatrix {
+            nrows,
+            ncols,
+            indptr,
+            indices,
+            data,
+        })
+    }
+
     /// The entries of row `i` as `(column, value)` pairs.
     pub fn row(&self, i: usize) -> impl Iterator<Item = (usize, f64)> + '_ {
         let r = self.indptr[i]..self.indptr[i + 1];
