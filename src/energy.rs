@@ -50,6 +50,9 @@ pub struct EnergyLedger {
     pub extra_names: Vec<String>,
     /// Work done against each extra force contribution (same order as `extra_names`).
     pub extra_work: Vec<f64>,
+    /// Energy dissipated by the time-integration scheme itself (implicit schemes; zero for the
+    /// explicit one): the part of the balance that the physical terms do not explain.
+    pub numerical_dissipation: f64,
     /// Energy put into the model: initial kinetic and stored energy plus the absolute work of
     /// external and constraint forces, step by step. The instability guard compares the kinetic
     /// energy with it.
@@ -83,6 +86,7 @@ impl EnergyLedger {
             external_work: 0.0,
             damping_work: 0.0,
             constraint_work: 0.0,
+            numerical_dissipation: 0.0,
             extra_names,
             extra_work: vec![0.0; k],
             energy_in: 0.0,
@@ -103,6 +107,7 @@ impl EnergyLedger {
         self.external_work = other.external_work;
         self.damping_work = other.damping_work;
         self.constraint_work = other.constraint_work;
+        self.numerical_dissipation = other.numerical_dissipation;
         self.extra_work.copy_from_slice(&other.extra_work);
         self.energy_in = other.energy_in;
         self.pending.internal = other.pending.internal;
@@ -132,9 +137,13 @@ impl EnergyLedger {
             .map(|i| self.extra_work[i])
     }
 
-    /// The balance error `T + W_int + W_damp + sum W_k - W_ext - W_constraint - T_0`.
+    /// The balance error `T + W_int + W_damp + sum W_k + D_num - W_ext - W_constraint - T_0`.
     pub fn balance_error(&self) -> f64 {
-        self.kinetic + self.internal_work + self.damping_work + self.extra_total()
+        self.kinetic
+            + self.internal_work
+            + self.damping_work
+            + self.extra_total()
+            + self.numerical_dissipation
             - self.external_work
             - self.constraint_work
             - self.initial_kinetic
@@ -150,7 +159,8 @@ impl EnergyLedger {
             .max(self.initial_internal.abs())
             .max(self.external_work.abs())
             .max(self.damping_work.abs())
-            .max(self.constraint_work.abs());
+            .max(self.constraint_work.abs())
+            .max(self.numerical_dissipation.abs());
         for w in &self.extra_work {
             s = s.max(w.abs());
         }

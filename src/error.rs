@@ -213,6 +213,44 @@ pub enum Error {
         /// Relative residual reached.
         residual: f64,
     },
+    /// Newton's iterations did not reach the tolerances within the iteration limit, even at the
+    /// smallest step the cut-back allows.
+    #[error(
+        "Newton iterations did not converge at t = {t} with step {dt} after {cutbacks} cut-backs \
+         ({iterations} iterations, relative residual {residual}); the state of t = {t} is kept. \
+         Reduce the step, raise the iteration limit or the cut-back count, or loosen the tolerances"
+    )]
+    NewtonNotConverged {
+        /// Time of the last converged state (the state kept).
+        t: f64,
+        /// The smallest step tried.
+        dt: f64,
+        /// Iterations of the last attempt.
+        iterations: usize,
+        /// Relative residual of the last attempt.
+        residual: f64,
+        /// Step halvings tried.
+        cutbacks: u32,
+    },
+    /// Newton's iterations diverged (the residual grew without bound or became non-finite) even at
+    /// the smallest step the cut-back allows.
+    #[error(
+        "Newton iterations diverged at t = {t} with step {dt} after {cutbacks} cut-backs \
+         ({iterations} iterations, relative residual {residual}); the state of t = {t} is kept. \
+         Check the tangent stiffness, reduce the step or enable the line search"
+    )]
+    NewtonDiverged {
+        /// Time of the last converged state (the state kept).
+        t: f64,
+        /// The smallest step tried.
+        dt: f64,
+        /// Iterations of the last attempt.
+        iterations: usize,
+        /// Relative residual when divergence was detected.
+        residual: f64,
+        /// Step halvings tried.
+        cutbacks: u32,
+    },
     /// The operation needs a non-empty model.
     #[error("the model has no DOFs")]
     EmptyModel,

@@ -53,9 +53,12 @@
 pub mod energy;
 pub mod error;
 pub mod explicit;
+pub mod implicit;
 pub mod linalg;
 pub mod model;
+pub mod params;
 pub mod run;
+pub mod spectral;
 pub mod state;
 
 pub use error::{Error, ModelError, Result};

@@ -9,9 +9,11 @@
 
 mod csr;
 mod reduce;
+mod solver;
 
 pub use csr::{CsrMatrix, spmv};
 pub use reduce::{GlobalReduce, Serial, dot, norm2};
+pub use solver::{LinearSolver, SolveInfo};
 
 use rayon::prelude::*;
 

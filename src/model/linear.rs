@@ -358,6 +358,36 @@ impl Model for LinearModel {
         &self.constraints
     }
 
+    fn mass_matrix(&self) -> Option<&CsrMatrix> {
+        Some(&self.mass)
+    }
+
+    fn tangent_pattern(&self) -> Option<&CsrMatrix> {
+        Some(&self.stiffness)
+    }
+
+    fn tangent_stiffness(
+        &mut self,
+        _t: f64,
+        _u: &[f64],
+        _v: &[f64],
+        out: &mut CsrMatrix,
+    ) -> std::result::Result<(), ModelError> {
+        out.data_mut().copy_from_slice(self.stiffness.data());
+        Ok(())
+    }
+
+    fn damping_matrix(&self) -> Option<&CsrMatrix> {
+        match &self.damping {
+            LinearDamping::Matrix(c) => Some(c),
+            _ => None,
+        }
+    }
+
+    fn is_linear(&self) -> bool {
+        true
+    }
+
     fn stored_energy(&self, u: &[f64]) -> Option<f64> {
         let mut ku = vec![0.0; u.len()];
         self.stiffness.mul_vec(u, &mut ku, self.parallel);

@@ -29,6 +29,7 @@ pub use constraints::{Constraint, Constraints, Motion, TimeFunction};
 pub use linear::{LinearModel, Load, LoadFn, LoadTable};
 
 use crate::error::ModelError;
+use crate::linalg::CsrMatrix;
 
 /// How a model is damped.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -230,6 +231,50 @@ pub trait Model {
     fn stored_energy(&self, u: &[f64]) -> Option<f64> {
         let _ = u;
         None
+    }
+
+    /// The consistent mass matrix, when the model has one. Implicit schemes use it; without it
+    /// (the default) they use the lumped mass. The explicit scheme always uses the lumped mass.
+    fn mass_matrix(&self) -> Option<&CsrMatrix> {
+        None
+    }
+
+    /// A matrix whose stored entries are the fixed sparsity pattern of the tangent stiffness
+    /// (values ignored). Implicit schemes need it, with
+    /// [`tangent_stiffness`](Model::tangent_stiffness). Default: `None`.
+    fn tangent_pattern(&self) -> Option<&CsrMatrix> {
+        None
+    }
+
+    /// The tangent stiffness `d f_int / d u` at `(t, u, v)`, written into the values of `out`, whose
+    /// pattern is [`tangent_pattern`](Model::tangent_pattern). Default:
+    /// [`ModelError::NotProvided`].
+    ///
+    /// # Errors
+    /// Whatever the model cannot evaluate.
+    fn tangent_stiffness(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut CsrMatrix,
+    ) -> Result<(), ModelError> {
+        let _ = (t, u, v, out);
+        Err(ModelError::NotProvided("tangent_stiffness"))
+    }
+
+    /// The damping matrix `C` of a [`Damping::Force`] model whose damping force is `C v` with a
+    /// constant `C`; implicit schemes put it in the iteration matrix. Default: `None` (a damping
+    /// force without a matrix enters the residual only, and Newton's convergence becomes linear).
+    fn damping_matrix(&self) -> Option<&CsrMatrix> {
+        None
+    }
+
+    /// True when the internal force is `K u` with a constant `K` and no velocity dependence, and
+    /// there are no extra forces: implicit schemes then solve each step once, with a matrix
+    /// factored once per step size. Default: `false`.
+    fn is_linear(&self) -> bool {
+        false
     }
 
     /// Called once for every accepted step, with the time reached: make trial history variables

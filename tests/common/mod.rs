@@ -52,3 +52,44 @@ pub fn chain_stiffness(n: usize, k: f64, wall_left: bool, wall_right: bool) -> C
     }
     t.to_csr()
 }
+
+/// A dense LU solver for small test problems (nalgebra), standing in for the sparse solvers
+/// where a test wants a solver independent of them.
+pub struct DenseLu {
+    lu: Option<nalgebra::LU<f64, nalgebra::Dyn, nalgebra::Dyn>>,
+}
+
+impl DenseLu {
+    pub fn boxed() -> Box<dyn tempora::linalg::LinearSolver> {
+        Box::new(DenseLu { lu: None })
+    }
+}
+
+impl tempora::linalg::LinearSolver for DenseLu {
+    fn analyze(&mut self, _a: &tempora::linalg::CsrMatrix) -> tempora::Result<()> {
+        Ok(())
+    }
+    fn factor(&mut self, a: &tempora::linalg::CsrMatrix) -> tempora::Result<()> {
+        let n = a.nrows();
+        let mut d = nalgebra::DMatrix::zeros(n, n);
+        for i in 0..n {
+            for (j, v) in a.row(i) {
+                d[(i, j)] += v;
+            }
+        }
+        self.lu = Some(d.lu());
+        Ok(())
+    }
+    fn solve_in_place(&mut self, rhs: &mut [f64]) -> tempora::Result<tempora::linalg::SolveInfo> {
+        let b = nalgebra::DVector::from_column_slice(rhs);
+        let x = self.lu.as_ref().unwrap().solve(&b).unwrap();
+        rhs.copy_from_slice(x.as_slice());
+        Ok(tempora::linalg::SolveInfo {
+            iterations: 0,
+            relative_residual: f64::NAN,
+        })
+    }
+    fn name(&self) -> &'static str {
+        "dense LU (test)"
+    }
+}

@@ -1,0 +1,1142 @@
+//! One integrator for the whole generalised-alpha family.
+
+use std::fmt;
+use std::sync::Arc;
+
+use super::newton::{NewtonOptions, NewtonReport, NewtonVariant};
+use crate::energy::EnergyLedger;
+use crate::error::{Error, ModelError, Result};
+use crate::linalg::{CsrMatrix, GlobalReduce, LinearSolver, Parallelism, Serial};
+use crate::model::{Damping, Model, Motion};
+use crate::params::AlphaParams;
+use crate::run::{Integrator, StepReport};
+use crate::state::{State, check_finite, check_len};
+
+/// Settings of [`AlphaIntegrator`].
+#[derive(Clone)]
+pub struct ImplicitOptions {
+    /// Newton iterations, cut-back and regrowth.
+    pub newton: NewtonOptions,
+    /// Reject a step whose kinetic energy exceeds this multiple of all the energy put into the
+    /// model (see [`CentralDifferenceOptions::growth_limit`](crate::explicit::CentralDifferenceOptions::growth_limit)).
+    /// Default 10.
+    pub growth_limit: f64,
+    /// The growth guard trips only when the kinetic energy, while above the limit, sets this many
+    /// new highs: after a start with high-frequency content, dissipative members overshoot in
+    /// velocity for a step and then decay (Hilber & Hughes 1978, "Collocation, dissipation and
+    /// 'overshoot' for time integration schemes in structural dynamics", *Earthquake Eng. Struct.
+    /// Dyn.* 6), which is not an instability, while an unstable mode keeps setting new highs.
+    /// Default 3.
+    pub growth_patience: u32,
+    /// When matrix products run in parallel.
+    pub parallel: Parallelism,
+    /// Completes global sums (the seam for distributed runs). Default: [`Serial`].
+    pub reduce: Arc<dyn GlobalReduce>,
+}
+
+impl Default for ImplicitOptions {
+    fn default() -> Self {
+        ImplicitOptions {
+            newton: NewtonOptions::default(),
+            growth_limit: 10.0,
+            growth_patience: 3,
+            parallel: Parallelism::default(),
+            reduce: Arc::new(Serial),
+        }
+    }
+}
+
+impl fmt::Debug for ImplicitOptions {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.debug_struct("ImplicitOptions")
+            .field("newton", &self.newton)
+            .field("growth_limit", &self.growth_limit)
+            .field("growth_patience", &self.growth_patience)
+            .field("parallel", &self.parallel)
+            .finish_non_exhaustive()
+    }
+}
+
+/// The mass operator: lumped diagonal or consistent sparse matrix.
+#[derive(Debug, Clone)]
+enum Mass {
+    Lumped(Vec<f64>),
+    Consistent(CsrMatrix),
+}
+
+impl Mass {
+    fn mul(&self, x: &[f64], y: &mut [f64], par: Parallelism) {
+        match self {
+            Mass::Lumped(m) => {
+                for ((yi, mi), xi) in y.iter_mut().zip(m).zip(x) {
+                    *yi = mi * xi;
+                }
+            }
+            Mass::Consistent(m) => m.mul_vec(x, y, par),
+        }
+    }
+
+    /// Row `i` of `M x`.
+    fn row_dot(&self, i: usize, x: &[f64]) -> f64 {
+        match self {
+            Mass::Lumped(m) => m[i] * x[i],
+            Mass::Consistent(m) => m.row(i).map(|(j, v)| v * x[j]).sum(),
+        }
+    }
+
+    fn matrix(&self) -> CsrMatrix {
+        match self {
+            Mass::Lumped(m) => CsrMatrix::from_diagonal(m),
+            Mass::Consistent(m) => m.clone(),
+        }
+    }
+}
+
+/// Outcome of one attempt at a sub-step.
+enum Attempt {
+    Converged(usize),
+    Failed(Error),
+}
+
+/// The generalised-alpha family with Newton-Raphson iterations.
+///
+/// With `x_{n+1-alpha} = (1 - alpha) x_{n+1} + alpha x_n`, each step solves for `u_{n+1}` the
+/// alpha-weighted balance
+///
+/// ```text
+/// R(u_{n+1}) = M a_{n+1-alpha_m} + (1 - alpha_f) g_{n+1} + alpha_f g_n
+///              - (1 - alpha_f) f_ext(t_{n+1}) - alpha_f f_ext(t_n) = 0,
+/// g = f_int(t, u, v) + C v + sum_k f_k,
+/// a_{n+1} = (u_{n+1} - u_n - dt v_n - dt^2 (1/2 - beta) a_n) / (beta dt^2),
+/// v_{n+1} = v_n + dt ((1 - gamma) a_n + gamma a_{n+1}),
+/// ```
+///
+/// by Newton-Raphson with the iteration matrix
+///
+/// ```text
+/// J = (1 - alpha_m)/(beta dt^2) M + (1 - alpha_f) (gamma/(beta dt) C + K_t),
+/// ```
+///
+/// from the predictor `u_{n+1} = u_n + dt v_n + dt^2/2 a_n`. For a linear model
+/// ([`Model::is_linear`]) one solve per step is exact and `J` is factored once per step size (a
+/// new step size refactors numerically and reuses the symbolic analysis). The tangents of extra
+/// forces, and of a damping force without [`Model::damping_matrix`], are left out of `J`.
+///
+/// **Start.** `M a_0 = f_ext(t_0) - C v_0 - f_int(t_0, u_0, v_0) - sum f_k`, solved with the consistent
+/// or lumped mass.
+///
+/// **Constraints** are enforced exactly: a constrained DOF's displacement is set from its motion
+/// in the predictor, and its row and column of `J` are replaced by the identity with a zero
+/// residual, so no correction ever moves it (no penalty). The reaction
+/// `r = M a + C v + f_int + sum f_k - f_ext` at `t_{n+1}` is available from
+/// [`reactions`](AlphaIntegrator::reactions) and its work is booked in the ledger.
+///
+/// **Failure and cut-back.** A sub-step whose iterations do not converge, diverge, or hit a
+/// model or solver failure is retried at half the size, up to `max_cutbacks` times; after
+/// `regrow_after` easy sub-steps the size doubles again. Converged sub-steps are committed to the
+/// state as they are reached; when the cut-backs run out the error is returned and the state is the
+/// last converged one.
+///
+/// **Energy.** The ledger books works by the trapezoidal rule on the displacement increment, which
+/// balances exactly for the trapezoidal rule (average acceleration); for every other member the
+/// difference is booked as numerical dissipation (positive for a dissipative scheme).
+///
+/// # Reference
+/// Chung & Hulbert (1993), "A time integration algorithm for structural dynamics with improved
+/// numerical dissipation: the generalized-alpha method", *J. Appl. Mech.* 60, 371-375;
+/// Hilber, Hughes & Taylor (1977); Newmark (1959); Hughes (1987), *The Finite Element Method*,
+/// ch. 9.
+pub struct AlphaIntegrator {
+    n: usize,
+    params: AlphaParams,
+    options: ImplicitOptions,
+    solver: Box<dyn LinearSolver>,
+    mass: Mass,
+    mass_map: Vec<usize>,
+    damping: Damping,
+    c_matrix: Option<CsrMatrix>,
+    c_map: Vec<usize>,
+    k_t: CsrMatrix,
+    k_map: Vec<usize>,
+    jac: CsrMatrix,
+    con_zero: Vec<usize>,
+    con_diag: Vec<usize>,
+    mask: Vec<bool>,
+    constraints: Vec<(usize, Motion)>,
+    linear: bool,
+    factored_for: Option<f64>,
+    u1: Vec<f64>,
+    v1: Vec<f64>,
+    a1: Vec<f64>,
+    du: Vec<f64>,
+    /// Total correction of this sub-step from the predictor, `u1 - u_pred`.
+    dtot: Vec<f64>,
+    /// Copy of `dtot` during a line search.
+    dsave: Vec<f64>,
+    res: Vec<f64>,
+    mw: Vec<f64>,
+    tmp: Vec<f64>,
+    f_int0: Vec<f64>,
+    f_int1: Vec<f64>,
+    f_ext0: Vec<f64>,
+    f_ext1: Vec<f64>,
+    f_d0: Vec<f64>,
+    f_d1: Vec<f64>,
+    f_x0: Vec<Vec<f64>>,
+    f_x1: Vec<Vec<f64>>,
+    reactions0: Vec<f64>,
+    reactions1: Vec<f64>,
+    ledger: EnergyLedger,
+    trial: EnergyLedger,
+    report: NewtonReport,
+    /// New highs of the kinetic energy while above the growth limit, and the current high.
+    over_limit: (u32, f64),
+}
+
+impl fmt::Debug for AlphaIntegrator {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.debug_struct("AlphaIntegrator")
+            .field("dofs", &self.n)
+            .field("params", &self.params)
+            .field("solver", &self.solver.name())
+            .field("linear", &self.linear)
+            .finish_non_exhaustive()
+    }
+}
+
+fn model_err(step: u64, t: f64) -> impl Fn(ModelError) -> Error {
+    move |source| Error::Model { step, t, source }
+}
+
+impl AlphaIntegrator {
+    /// Creates the integrator and starts the run from `state`: checks the parameters, sizes,
+    /// masses and constraints, applies the constraints to the state, computes the consistent
+    /// initial acceleration into `state.a` and opens the energy ledger. `solver` solves the
+    /// iteration matrix (and, once, the mass matrix for the initial acceleration): a sparse
+    /// Cholesky suits symmetric positive definite problems, an LU unsymmetric tangents.
+    ///
+    /// # Errors
+    /// [`Error::InvalidParameter`] for parameters or options outside their range,
+    /// [`Error::EmptyModel`], [`Error::DimensionMismatch`], [`Error::NonFiniteInput`],
+    /// [`Error::NonPositiveMass`], constraint errors, [`Error::Model`] (also when the model has no
+    /// [`tangent_pattern`](Model::tangent_pattern)), and the solver's errors. On error `state` is
+    /// unchanged.
+    pub fn new<M: Model + ?Sized>(
+        model: &mut M,
+        state: &mut State,
+        params: AlphaParams,
+        solver: Box<dyn LinearSolver>,
+        options: ImplicitOptions,
+    ) -> Result<Self> {
+        let mut it = Self::prepare(model, state, params, solver, options)?;
+        let mut s = state.clone();
+        for (dof, motion) in &it.constraints {
+            match motion {
+                Motion::Fixed => s.v[*dof] = 0.0,
+                Motion::Displacement(g) => s.u[*dof] = g.value(s.t),
+                Motion::Velocity(h) => s.v[*dof] = h.value(s.t),
+            }
+        }
+        check_finite("constrained initial displacement", &s.u)?;
+        check_finite("constrained initial velocity", &s.v)?;
+        it.forces_at(model, &s, s.step)?;
+        // M a0 = f_ext - f_int - f_d - sum f_k on the free DOFs; a0 = 0 on constrained DOFs.
+        let mut rhs = vec![0.0; it.n];
+        for i in 0..it.n {
+            if !it.mask[i] {
+                let mut f = it.f_ext0[i] - it.f_int0[i] - it.f_d0[i];
+                for x in &it.f_x0 {
+                    f -= x[i];
+                }
+                rhs[i] = f;
+            }
+        }
+        match &it.mass {
+            Mass::Lumped(m) => {
+                for i in 0..it.n {
+                    s.a[i] = if it.mask[i] { 0.0 } else { rhs[i] / m[i] };
+                }
+            }
+            Mass::Consistent(m) => {
+                let mut mm =
+                    CsrMatrix::pattern_union(&[m, &CsrMatrix::from_diagonal(&vec![0.0; it.n])]);
+                let map = m.positions_in(&mm);
+                for (k, pos) in map.iter().enumerate() {
+                    mm.data_mut()[*pos] = m.data()[k];
+                }
+                let (zero, diag) = constrained_positions(&mm, &it.mask);
+                for p in zero {
+                    mm.data_mut()[p] = 0.0;
+                }
+                for p in diag {
+                    mm.data_mut()[p] = 1.0;
+                }
+                it.solver.analyze(&mm)?;
+                it.solver.factor(&mm)?;
+                it.solver.solve_in_place(&mut rhs)?;
+                for i in 0..it.n {
+                    s.a[i] = if it.mask[i] { 0.0 } else { rhs[i] };
+                }
+            }
+        }
+        check_finite("initial acceleration", &s.a)?;
+        it.solver.analyze(&it.jac)?;
+        it.reactions_into(&s.a, true);
+        // Ledger at the start.
+        it.mass.mul(&s.v, &mut it.tmp, it.options.parallel);
+        let ke = 0.5
+            * it.options
+                .reduce
+                .sum(s.v.iter().zip(&it.tmp).map(|(a, b)| a * b).sum());
+        let l = &mut it.ledger;
+        l.kinetic = ke;
+        l.initial_kinetic = ke;
+        l.initial_internal = model.stored_energy(&s.u).unwrap_or(0.0);
+        l.energy_in = ke + l.initial_internal.abs();
+        it.trial.copy_from(&it.ledger);
+        *state = s;
+        Ok(it)
+    }
+
+    /// Continues a run from a saved state and energy ledger: the state's acceleration is taken
+    /// as it is, the forces are evaluated at the state, so the continued run is bit-identical to
+    /// an uninterrupted one.
+    ///
+    /// # Errors
+    /// As for [`AlphaIntegrator::new`], and [`Error::DimensionMismatch`] when the ledger does not
+    /// match the model's extra forces or constraints.
+    pub fn resume<M: Model + ?Sized>(
+        model: &mut M,
+        state: &State,
+        ledger: EnergyLedger,
+        params: AlphaParams,
+        solver: Box<dyn LinearSolver>,
+        options: ImplicitOptions,
+    ) -> Result<Self> {
+        let mut it = Self::prepare(model, state, params, solver, options)?;
+        check_finite("acceleration", &state.a)?;
+        check_len(
+            "energy ledger extra forces",
+            it.f_x0.len(),
+            ledger.extra_work.len(),
+        )?;
+        check_len(
+            "energy ledger reactions",
+            it.constraints.len(),
+            ledger.pending.reactions.len(),
+        )?;
+        it.forces_at(model, state, state.step)?;
+        it.solver.analyze(&it.jac)?;
+        it.reactions0.copy_from_slice(&ledger.pending.reactions);
+        it.ledger = ledger;
+        it.trial = it.ledger.clone();
+        Ok(it)
+    }
+
+    fn prepare<M: Model + ?Sized>(
+        model: &mut M,
+        state: &State,
+        params: AlphaParams,
+        solver: Box<dyn LinearSolver>,
+        options: ImplicitOptions,
+    ) -> Result<Self> {
+        params.validate_for_stepping()?;
+        options.newton.validate()?;
+        if options.growth_limit.is_nan() || options.growth_limit <= 0.0 {
+            return Err(Error::InvalidParameter {
+                name: "growth_limit",
+                value: options.growth_limit,
+                expected: "a positive factor (infinity disables the guard)",
+            });
+        }
+        let n = model.dofs();
+        if n == 0 {
+            return Err(Error::EmptyModel);
+        }
+        check_len("state displacement", n, state.u.len())?;
+        check_len("state velocity", n, state.v.len())?;
+        check_len("state acceleration", n, state.a.len())?;
+        check_finite("time", &[state.t])?;
+        check_finite("displacement", &state.u)?;
+        check_finite("velocity", &state.v)?;
+        let mask = model.constraints().validate(n)?;
+        let constraints: Vec<(usize, Motion)> = model
+            .constraints()
+            .as_slice()
+            .iter()
+            .map(|c| (c.dof, c.motion.clone()))
+            .collect();
+        let mass = match model.mass_matrix() {
+            Some(m) => {
+                check_len("mass matrix rows", n, m.nrows())?;
+                check_len("mass matrix columns", n, m.ncols())?;
+                Mass::Consistent(m.clone())
+            }
+            None => {
+                let mut m = vec![0.0; n];
+                model.lumped_mass(&mut m);
+                for i in 0..n {
+                    let ok = if mask[i] {
+                        m[i].is_finite() && m[i] >= 0.0
+                    } else {
+                        m[i].is_finite() && m[i] > 0.0
+                    };
+                    if !ok {
+                        return Err(Error::NonPositiveMass {
+                            dof: i,
+                            value: m[i],
+                        });
+                    }
+                }
+                Mass::Lumped(m)
+            }
+        };
+        let k_t = model.tangent_pattern().cloned().ok_or(Error::Model {
+            step: state.step,
+            t: state.t,
+            source: ModelError::NotProvided("tangent_pattern"),
+        })?;
+        check_len("tangent rows", n, k_t.nrows())?;
+        check_len("tangent columns", n, k_t.ncols())?;
+        let damping = model.damping();
+        if let Damping::Rayleigh { a0, a1 } = damping {
+            for (name, v) in [("a0", a0), ("a1", a1)] {
+                if !(v.is_finite() && v >= 0.0) {
+                    return Err(Error::InvalidParameter {
+                        name,
+                        value: v,
+                        expected: "a non-negative, finite Rayleigh coefficient",
+                    });
+                }
+            }
+        }
+        let c_matrix = match damping {
+            Damping::Force => model.damping_matrix().cloned(),
+            _ => None,
+        };
+        if let Some(c) = &c_matrix {
+            check_len("damping matrix rows", n, c.nrows())?;
+        }
+        let m_mat = mass.matrix();
+        let eye = CsrMatrix::from_diagonal(&vec![1.0; n]);
+        let mut parts: Vec<&CsrMatrix> = vec![&m_mat, &k_t, &eye];
+        if let Some(c) = &c_matrix {
+            parts.push(c);
+        }
+        let jac = CsrMatrix::pattern_union(&parts);
+        let mass_map = m_mat.positions_in(&jac);
+        let k_map = k_t.positions_in(&jac);
+        let c_map = c_matrix
+            .as_ref()
+            .map(|c| c.positions_in(&jac))
+            .unwrap_or_default();
+        let (con_zero, con_diag) = constrained_positions(&jac, &mask);
+        let names = model.extra_force_names();
+        let k = names.len();
+        let ledger = EnergyLedger::new(names, constraints.len());
+        let linear = model.is_linear() && k == 0;
+        let nc = constraints.len();
+        Ok(AlphaIntegrator {
+            n,
+            params,
+            options,
+            solver,
+            mass,
+            mass_map,
+            damping,
+            c_matrix,
+            c_map,
+            k_t,
+            k_map,
+            jac,
+            con_zero,
+            con_diag,
+            mask,
+            constraints,
+            linear,
+            factored_for: None,
+            u1: vec![0.0; n],
+            v1: vec![0.0; n],
+            a1: vec![0.0; n],
+            du: vec![0.0; n],
+            dtot: vec![0.0; n],
+            dsave: vec![0.0; n],
+            res: vec![0.0; n],
+            mw: vec![0.0; n],
+            tmp: vec![0.0; n],
+            f_int0: vec![0.0; n],
+            f_int1: vec![0.0; n],
+            f_ext0: vec![0.0; n],
+            f_ext1: vec![0.0; n],
+            f_d0: vec![0.0; n],
+            f_d1: vec![0.0; n],
+            f_x0: vec![vec![0.0; n]; k],
+            f_x1: vec![vec![0.0; n]; k],
+            reactions0: vec![0.0; nc],
+            reactions1: vec![0.0; nc],
+            trial: ledger.clone(),
+            ledger,
+            report: NewtonReport {
+                residuals: Vec::with_capacity(options_capacity()),
+                ..NewtonReport::default()
+            },
+            over_limit: (0, 0.0),
+        })
+    }
+
+    /// The parameters stepped.
+    pub fn params(&self) -> &AlphaParams {
+        &self.params
+    }
+
+    /// The energy ledger after the last accepted step.
+    pub fn energy(&self) -> &EnergyLedger {
+        &self.ledger
+    }
+
+    /// Reaction forces at the constrained DOFs (in the order of the model's constraints) at the
+    /// last accepted state: `r = M a + C v + f_int + sum f_k - f_ext`.
+    pub fn reactions(&self) -> &[f64] {
+        &self.reactions0
+    }
+
+    /// What the Newton iterations of the last step did.
+    pub fn last_report(&self) -> &NewtonReport {
+        &self.report
+    }
+
+    /// True when the model is stepped on the linear path (one solve per step).
+    pub fn is_linear(&self) -> bool {
+        self.linear
+    }
+
+    /// Evaluates external, internal, damping and extra forces at `state` into the `*0` buffers.
+    fn forces_at<M: Model + ?Sized>(&mut self, model: &mut M, s: &State, step: u64) -> Result<()> {
+        let err = model_err(step, s.t);
+        model.external_force(s.t, &mut self.f_ext0).map_err(&err)?;
+        model
+            .internal_force(s.t, &s.u, &s.v, &mut self.f_int0)
+            .map_err(&err)?;
+        damping_force(
+            model,
+            self.damping,
+            &self.mass,
+            s.t,
+            &s.u,
+            &s.v,
+            &mut self.f_d0,
+            &mut self.tmp,
+            self.options.parallel,
+        )
+        .map_err(&err)?;
+        for (k, f) in self.f_x0.iter_mut().enumerate() {
+            model.extra_force(k, s.t, &s.u, &s.v, f).map_err(&err)?;
+        }
+        for (what, x) in [
+            ("external force", &self.f_ext0),
+            ("internal force", &self.f_int0),
+            ("damping force", &self.f_d0),
+        ] {
+            check_finite(what, x)?;
+        }
+        Ok(())
+    }
+
+    /// Reactions at the constrained DOFs from the `*0` (`start`) or `*1` forces and `acc`.
+    fn reactions_into(&mut self, acc: &[f64], start: bool) {
+        for (j, (dof, _)) in self.constraints.iter().enumerate() {
+            let d = *dof;
+            let (fi, fe, fd, fx) = if start {
+                (&self.f_int0, &self.f_ext0, &self.f_d0, &self.f_x0)
+            } else {
+                (&self.f_int1, &self.f_ext1, &self.f_d1, &self.f_x1)
+            };
+            let mut r = self.mass.row_dot(d, acc) + fi[d] + fd[d] - fe[d];
+            for x in fx {
+                r += x[d];
+            }
+            if start {
+                self.reactions0[j] = r;
+            } else {
+                self.reactions1[j] = r;
+            }
+        }
+    }
+
+    fn sum_dot(&self, x: &[f64], y: &[f64]) -> f64 {
+        let s = x.iter().zip(y).map(|(a, b)| a * b).sum::<f64>();
+        self.options.reduce.sum(s)
+    }
+
+    /// Advances `state` by `dt`, in one or more sub-steps.
+    ///
+    /// # Errors
+    /// [`Error::InvalidStep`], [`Error::DimensionMismatch`], [`Error::NewtonNotConverged`],
+    /// [`Error::NewtonDiverged`], [`Error::Unstable`], and model or solver errors that persist at
+    /// the smallest sub-step. The state is then the last converged one.
+    pub fn step<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &mut State,
+        dt: f64,
+    ) -> Result<StepReport> {
+        if !(dt.is_finite() && dt > 0.0) {
+            return Err(Error::InvalidStep { dt });
+        }
+        check_len("model DOFs", self.n, model.dofs())?;
+        check_len("state displacement", self.n, state.u.len())?;
+        check_len("state velocity", self.n, state.v.len())?;
+        check_len("state acceleration", self.n, state.a.len())?;
+        let t_end = state.t + dt;
+        let nopt = self.options.newton;
+        let mut h = dt;
+        let mut easy = 0u32;
+        self.report.substeps = 0;
+        self.report.cutbacks = 0;
+        self.report.iterations = 0;
+        loop {
+            let remaining = t_end - state.t;
+            if remaining <= 1e-12 * dt {
+                break;
+            }
+            // The last sub-step lands on t_end; when it is the whole step, keep dt itself rather
+            // than (t + dt) - t, which carries the rounding of t.
+            if h >= remaining * (1.0 - 1e-9) {
+                h = if self.report.substeps == 0 && self.report.cutbacks == 0 {
+                    dt
+                } else {
+                    remaining
+                };
+            }
+            match self.substep(model, state, h) {
+                Attempt::Converged(iters) => {
+                    self.report.substeps += 1;
+                    self.report.iterations += iters;
+                    if iters <= nopt.easy_iterations {
+                        easy += 1;
+                        if easy >= nopt.regrow_after && h < dt {
+                            h = (2.0 * h).min(dt);
+                            easy = 0;
+                        }
+                    } else {
+                        easy = 0;
+                    }
+                }
+                Attempt::Failed(e) => {
+                    let recoverable = !matches!(
+                        e,
+                        Error::Unstable { .. }
+                            | Error::DimensionMismatch { .. }
+                            | Error::InvalidParameter { .. }
+                    );
+                    if recoverable && !self.linear && self.report.cutbacks < nopt.max_cutbacks {
+                        self.report.cutbacks += 1;
+                        h *= 0.5;
+                        easy = 0;
+                        continue;
+                    }
+                    return Err(match e {
+                        Error::NewtonNotConverged {
+                            iterations,
+                            residual,
+                            ..
+                        } => Error::NewtonNotConverged {
+                            t: state.t,
+                            dt: h,
+                            iterations,
+                            residual,
+                            cutbacks: self.report.cutbacks,
+                        },
+                        Error::NewtonDiverged {
+                            iterations,
+                            residual,
+                            ..
+                        } => Error::NewtonDiverged {
+                            t: state.t,
+                            dt: h,
+                            iterations,
+                            residual,
+                            cutbacks: self.report.cutbacks,
+                        },
+                        other => other,
+                    });
+                }
+            }
+        }
+        state.t = t_end;
+        Ok(StepReport {
+            step: state.step,
+            t: state.t,
+            dt,
+            kinetic: self.ledger.kinetic,
+            relative_balance_error: self.ledger.relative_balance_error(),
+            iterations: u32::try_from(self.report.iterations).unwrap_or(u32::MAX),
+        })
+    }
+
+    /// One attempt at a sub-step of size `h` from `state`; commits it on convergence.
+    fn substep<M: Model + ?Sized>(&mut self, model: &mut M, state: &mut State, h: f64) -> Attempt {
+        match self.try_substep(model, state, h) {
+            Ok(iters) => Attempt::Converged(iters),
+            Err(e) => Attempt::Failed(e),
+        }
+    }
+
+    fn try_substep<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &mut State,
+        h: f64,
+    ) -> Result<usize> {
+        let (t0, t1) = (state.t, state.t + h);
+        let step = state.step + 1;
+        let p = self.params;
+        let cm = (1.0 - p.alpha_m) / (p.beta * h * h);
+        let cc = p.gamma / (p.beta * h);
+        let nopt = self.options.newton;
+        // Predictor: constant acceleration; constrained DOFs from their motion.
+        for i in 0..self.n {
+            self.u1[i] = state.u[i] + h * state.v[i] + 0.5 * h * h * state.a[i];
+        }
+        self.dtot.fill(0.0);
+        for (dof, motion) in &self.constraints {
+            let d = *dof;
+            let target = match motion {
+                Motion::Fixed => state.u[d],
+                Motion::Displacement(g) => g.value(t1),
+                Motion::Velocity(hv) => state.u[d] + h * hv.value(t0 + 0.5 * h),
+            };
+            self.dtot[d] = target - self.u1[d];
+            self.u1[d] = target;
+        }
+        self.report.residuals.clear();
+        let (mut r_norm, mut f_ref) = self.evaluate(model, state, t1, h, step)?;
+        let mut r_first = r_norm;
+        let mut e_first = f64::NAN;
+        let mut du_norm = f64::INFINITY;
+        let mut last_energy = f64::INFINITY;
+        let mut iterations = 0usize;
+        loop {
+            let rel = r_norm / f_ref.max(f64::MIN_POSITIVE);
+            if self.report.residuals.len() < self.report.residuals.capacity() {
+                self.report.residuals.push(rel);
+            }
+            if !rel.is_finite() {
+                return Err(Error::NewtonDiverged {
+                    t: t0,
+                    dt: h,
+                    iterations,
+                    residual: rel,
+                    cutbacks: 0,
+                });
+            }
+            let converged = if iterations == 0 {
+                r_norm == 0.0 || rel <= 1e-14
+            } else if self.linear {
+                true
+            } else {
+                let step_norm = self.diff_norm(state);
+                rel <= nopt.residual_tolerance
+                    && du_norm <= nopt.displacement_tolerance * step_norm.max(f64::MIN_POSITIVE)
+                    && last_energy <= nopt.energy_tolerance * e_first
+            };
+            if converged {
+                break;
+            }
+            if iterations >= nopt.max_iterations {
+                return Err(Error::NewtonNotConverged {
+                    t: t0,
+                    dt: h,
+                    iterations,
+                    residual: rel,
+                    cutbacks: 0,
+                });
+            }
+            if iterations >= 1 && r_norm > nopt.divergence_factor * r_first {
+                return Err(Error::NewtonDiverged {
+                    t: t0,
+                    dt: h,
+                    iterations,
+                    residual: rel,
+                    cutbacks: 0,
+                });
+            }
+            // Iteration matrix.
+            let rebuild = if self.linear {
+                self.factored_for != Some(h)
+            } else {
+                match nopt.variant {
+                    NewtonVariant::Full => true,
+                    NewtonVariant::Modified { refresh_every } => {
+                        iterations == 0 || (refresh_every > 0 && iterations % refresh_every == 0)
+                    }
+                }
+            };
+            if rebuild {
+                model
+                    .tangent_stiffness(t1, &self.u1, &self.v1, &mut self.k_t)
+                    .map_err(model_err(step, t1))?;
+                check_finite("tangent stiffness", self.k_t.data())?;
+                self.assemble(cm, cc);
+                self.factored_for = None;
+                self.solver.factor(&self.jac)?;
+                if self.linear {
+                    self.factored_for = Some(h);
+                }
+            }
+            // Correction: J du = -R (zero at constrained DOFs).
+            for i in 0..self.n {
+                self.du[i] = -self.res[i];
+            }
+            self.solver.solve_in_place(&mut self.du)?;
+            for (dof, _) in &self.constraints {
+                self.du[*dof] = 0.0;
+            }
+            let energy = self.sum_dot(&self.du, &self.res).abs();
+            if iterations == 0 {
+                e_first = energy;
+            }
+            last_energy = energy;
+            let mut s = 1.0;
+            if nopt.line_search && !self.linear {
+                self.tmp.copy_from_slice(&self.u1);
+                self.dsave.copy_from_slice(&self.dtot);
+                let r_prev = r_norm;
+                for attempt in 0..5 {
+                    for i in 0..self.n {
+                        self.u1[i] = self.tmp[i] + s * self.du[i];
+                        self.dtot[i] = self.dsave[i] + s * self.du[i];
+                    }
+                    let (r, f) = self.evaluate(model, state, t1, h, step)?;
+                    r_norm = r;
+                    f_ref = f;
+                    if r <= (1.0 - 1e-4 * s) * r_prev || attempt == 4 {
+                        break;
+                    }
+                    s *= 0.5;
+                }
+            } else {
+                for i in 0..self.n {
+                    self.u1[i] += self.du[i];
+                    self.dtot[i] += self.du[i];
+                }
+                let (r, f) = self.evaluate(model, state, t1, h, step)?;
+                r_norm = r;
+                f_ref = f;
+            }
+            du_norm = s * self.sum_dot(&self.du, &self.du).sqrt();
+            if iterations == 0 {
+                r_first = r_first.max(r_norm);
+            }
+            iterations += 1;
+        }
+        self.accept(model, state, t1, step)?;
+        Ok(iterations)
+    }
+
+    /// `||u1 - u||` over all DOFs.
+    fn diff_norm(&self, state: &State) -> f64 {
+        let s: f64 = self
+            .u1
+            .iter()
+            .zip(&state.u)
+            .map(|(a, b)| (a - b) * (a - b))
+            .sum();
+        self.options.reduce.sum(s).sqrt()
+    }
+
+    /// Kinematics, forces and residual at the trial `u1`; returns `(||R||, F_ref)` on free DOFs.
+    fn evaluate<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &State,
+        t1: f64,
+        h: f64,
+        step: u64,
+    ) -> Result<(f64, f64)> {
+        let p = self.params;
+        let (u0, v0, a0) = (&state.u, &state.v, &state.a);
+        // With the predictor u_pred = u_n + h v_n + h^2/2 a_n and the correction d = u1 - u_pred,
+        // a1 = a_n + d/(beta h^2) and v1 = v_n + h a_n + gamma d/(beta h): the Newmark relations
+        // written on the correction, which rounds far less than forming them from u1.
+        // Divide rather than multiply by rounded reciprocals: a reciprocal's rounding is the same
+        // every step and biases the energy of the trapezoidal rule steadily (a drift of about one
+        // ulp per step), while the rounding of a division varies and averages out.
+        let bh = p.beta * h;
+        let bh2 = bh * h;
+        for i in 0..self.n {
+            let d = self.dtot[i];
+            self.a1[i] = a0[i] + d / bh2;
+            self.v1[i] = v0[i] + h * a0[i] + (p.gamma * d) / bh;
+        }
+        let err = model_err(step, t1);
+        model.external_force(t1, &mut self.f_ext1).map_err(&err)?;
+        model
+            .internal_force(t1, &self.u1, &self.v1, &mut self.f_int1)
+            .map_err(&err)?;
+        damping_force(
+            model,
+            self.damping,
+            &self.mass,
+            t1,
+            &self.u1,
+            &self.v1,
+            &mut self.f_d1,
+            &mut self.tmp,
+            self.options.parallel,
+        )
+        .map_err(&err)?;
+        for (k, f) in self.f_x1.iter_mut().enumerate() {
+            model
+                .extra_force(k, t1, &self.u1, &self.v1, f)
+                .map_err(&err)?;
+        }
+        // M w with w = (1 - alpha_m) a1 + alpha_m a0.
+        for i in 0..self.n {
+            self.tmp[i] = (1.0 - p.alpha_m) * self.a1[i] + p.alpha_m * a0[i];
+        }
+        self.mass
+            .mul(&self.tmp, &mut self.mw, self.options.parallel);
+        let (af, bf) = (1.0 - p.alpha_f, p.alpha_f);
+        let mut sums = [0.0; 4];
+        for i in 0..self.n {
+            let mut g1 = self.f_int1[i] + self.f_d1[i];
+            let mut g0 = self.f_int0[i] + self.f_d0[i];
+            for (x1, x0) in self.f_x1.iter().zip(&self.f_x0) {
+                g1 += x1[i];
+                g0 += x0[i];
+            }
+            let fe = af * self.f_ext1[i] + bf * self.f_ext0[i];
+            let g = af * g1 + bf * g0;
+            let r = self.mw[i] + g - fe;
+            if self.mask[i] {
+                self.res[i] = 0.0;
+            } else {
+                self.res[i] = r;
+                sums[0] += r * r;
+                sums[1] += self.mw[i] * self.mw[i];
+                sums[2] += g * g;
+                sums[3] += fe * fe;
+            }
+        }
+        self.options.reduce.sum_in_place(&mut sums);
+        let f_ref = sums[1].sqrt().max(sums[2].sqrt()).max(sums[3].sqrt());
+        Ok((sums[0].sqrt(), f_ref))
+    }
+
+    /// Fills the iteration matrix `J` for coefficients `cm = (1-alpha_m)/(beta h^2)` and
+    /// `cc = gamma/(beta h)`.
+    fn assemble(&mut self, cm: f64, cc: f64) {
+        let af = 1.0 - self.params.alpha_f;
+        let (mut s_m, mut s_k) = (cm, af);
+        if let Damping::Rayleigh { a0, a1 } = self.damping {
+            s_m += af * cc * a0;
+            s_k += af * cc * a1;
+        }
+        let data = self.jac.data_mut();
+        data.fill(0.0);
+        let m_vals: &[f64] = match &self.mass {
+            Mass::Lumped(m) => m,
+            Mass::Consistent(m) => m.data(),
+        };
+        for (k, pos) in self.mass_map.iter().enumerate() {
+            data[*pos] += s_m * m_vals[k];
+        }
+        for (k, pos) in self.k_map.iter().enumerate() {
+            data[*pos] += s_k * self.k_t.data()[k];
+        }
+        if let Some(c) = &self.c_matrix {
+            for (k, pos) in self.c_map.iter().enumerate() {
+                data[*pos] += af * cc * c.data()[k];
+            }
+        }
+        for p in &self.con_zero {
+            data[*p] = 0.0;
+        }
+        for p in &self.con_diag {
+            data[*p] = 1.0;
+        }
+    }
+
+    /// Books the converged sub-step in the ledger, checks the guards and commits it.
+    fn accept<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &mut State,
+        t1: f64,
+        step: u64,
+    ) -> Result<()> {
+        for (what, x) in [
+            ("displacement", &self.u1),
+            ("velocity", &self.v1),
+            ("acceleration", &self.a1),
+        ] {
+            if let Some(dof) = x.iter().position(|v| !v.is_finite()) {
+                return Err(Error::NonFiniteState {
+                    quantity: what,
+                    dof,
+                    step,
+                    t: t1,
+                });
+            }
+        }
+        let a1 = std::mem::take(&mut self.a1);
+        self.reactions_into(&a1, false);
+        self.a1 = a1;
+        let mut w = [0.0; 4];
+        for i in 0..self.n {
+            let du = self.u1[i] - state.u[i];
+            w[0] += du * (self.f_int0[i] + self.f_int1[i]);
+            w[1] += du * (self.f_ext0[i] + self.f_ext1[i]);
+            w[2] += du * (self.f_d0[i] + self.f_d1[i]);
+        }
+        for (j, (dof, _)) in self.constraints.iter().enumerate() {
+            let du = self.u1[*dof] - state.u[*dof];
+            w[3] += du * (self.reactions0[j] + self.reactions1[j]);
+        }
+        self.options.reduce.sum_in_place(&mut w);
+        self.mass
+            .mul(&self.v1, &mut self.tmp, self.options.parallel);
+        let ke = 0.5 * self.sum_dot(&self.v1, &self.tmp);
+        let l = &mut self.trial;
+        l.copy_from(&self.ledger);
+        let (d_int, d_ext, d_damp, d_con) = (0.5 * w[0], 0.5 * w[1], 0.5 * w[2], 0.5 * w[3]);
+        let mut d_extra = 0.0;
+        for k in 0..self.f_x0.len() {
+            let s: f64 = (0..self.n)
+                .map(|i| (self.u1[i] - state.u[i]) * (self.f_x0[k][i] + self.f_x1[k][i]))
+                .sum();
+            let s = 0.5 * self.options.reduce.sum(s);
+            l.extra_work[k] += s;
+            d_extra += s;
+        }
+        let d_kin = ke - l.kinetic;
+        l.internal_work += d_int;
+        l.external_work += d_ext;
+        l.damping_work += d_damp;
+        l.constraint_work += d_con;
+        l.numerical_dissipation -= d_kin + d_int + d_damp + d_extra - d_ext - d_con;
+        l.kinetic = ke;
+        l.energy_in += d_ext.abs() + d_con.abs();
+        l.pending.reactions.copy_from_slice(&self.reactions1);
+        let over = l.energy_in > 0.0 && ke > self.options.growth_limit * l.energy_in;
+        let (mut highs, mut high) = self.over_limit;
+        if over {
+            if ke > high {
+                highs += 1;
+                high = ke;
+            }
+        } else {
+            (highs, high) = (0, 0.0);
+        }
+        if highs >= self.options.growth_patience.max(1) {
+            return Err(Error::Unstable {
+                step,
+                t: t1,
+                kinetic: ke,
+                energy_in: l.energy_in,
+                limit: self.options.growth_limit,
+            });
+        }
+        self.over_limit = (highs, high);
+        // Commit.
+        std::mem::swap(&mut state.u, &mut self.u1);
+        std::mem::swap(&mut state.v, &mut self.v1);
+        std::mem::swap(&mut state.a, &mut self.a1);
+        std::mem::swap(&mut self.f_int0, &mut self.f_int1);
+        std::mem::swap(&mut self.f_ext0, &mut self.f_ext1);
+        std::mem::swap(&mut self.f_d0, &mut self.f_d1);
+        std::mem::swap(&mut self.f_x0, &mut self.f_x1);
+        std::mem::swap(&mut self.reactions0, &mut self.reactions1);
+        std::mem::swap(&mut self.ledger, &mut self.trial);
+        state.t = t1;
+        state.step = step;
+        model.commit(t1);
+        Ok(())
+    }
+}
+
+/// Residual-history capacity (one entry per evaluation of a sub-step).
+fn options_capacity() -> usize {
+    256
+}
+
+/// Positions in `a` of the entries in constrained rows or columns: off-diagonal ones (to zero)
+/// and diagonal ones (to set to 1).
+fn constrained_positions(a: &CsrMatrix, mask: &[bool]) -> (Vec<usize>, Vec<usize>) {
+    let (mut zero, mut diag) = (Vec::new(), Vec::new());
+    for i in 0..a.nrows() {
+        for k in a.indptr()[i]..a.indptr()[i + 1] {
+            let j = a.indices()[k] as usize;
+            if mask[i] || mask[j] {
+                if i == j {
+                    diag.push(k);
+                } else {
+                    zero.push(k);
+                }
+            }
+        }
+    }
+    (zero, diag)
+}
+
+/// The damping force `C v` of the model into `out` (`tmp` is scratch).
+#[allow(clippy::too_many_arguments)]
+fn damping_force<M: Model + ?Sized>(
+    model: &mut M,
+    damping: Damping,
+    mass: &Mass,
+    t: f64,
+    u: &[f64],
+    v: &[f64],
+    out: &mut [f64],
+    tmp: &mut [f64],
+    par: Parallelism,
+) -> std::result::Result<(), ModelError> {
+    match damping {
+        Damping::None => {
+            out.fill(0.0);
+            Ok(())
+        }
+        Damping::Rayleigh { a0, a1 } => {
+            if a1 != 0.0 {
+                model.stiffness_product(t, u, v, out)?;
+            } else {
+                out.fill(0.0);
+            }
+            mass.mul(v, tmp, par);
+            for (o, mv) in out.iter_mut().zip(tmp.iter()) {
+                *o = a1 * *o + a0 * mv;
+            }
+            Ok(())
+        }
+        Damping::Force => model.damping_force(t, u, v, out),
+    }
+}
+
+impl Integrator for AlphaIntegrator {
+    fn step<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &mut State,
+        dt: f64,
+    ) -> Result<StepReport> {
+        AlphaIntegrator::step(self, model, state, dt)
+    }
+
+    fn energy(&self) -> &EnergyLedger {
+        &self.ledger
+    }
+
+    fn stable_limit(&self) -> Option<f64> {
+        None
+    }
+
+    fn reestimate_stable_step<M: Model + ?Sized>(
+        &mut self,
+        _model: &mut M,
+        _state: &State,
+    ) -> Result<Option<f64>> {
+        Ok(None)
+    }
+}

@@ -1,0 +1,120 @@
+//! Amplification matrices of the generalised-alpha family.
+
+use nalgebra::{Complex, Matrix3};
+
+use crate::params::AlphaParams;
+
+/// The amplification matrix `A(Omega, xi)` of the generalised-alpha family on the scaled state
+/// `x_n = (u_n, dt v_n, dt^2 a_n)` of one mode (`x_{n+1} = A x_n`), `Omega = omega dt`, `xi` the
+/// physical damping ratio.
+///
+/// With `D = (1 - alpha_m) + 2 xi Omega (1 - alpha_f) gamma + Omega^2 (1 - alpha_f) beta`, every
+/// entry is written over `D` with its numerator simplified by hand, so that no entry is formed as
+/// `1 - (large)/(large)`: the matrix keeps its accuracy at large `Omega` (derivation in
+/// `docs/implicit.md`).
+///
+/// # Reference
+/// Chung & Hulbert (1993), eqs. (9)-(12), for the family; Hughes (1987), *The Finite Element
+/// Method*, sec. 9.3, for the amplification-matrix analysis.
+pub fn alpha_amplification(p: &AlphaParams, omega_dt: f64, xi: f64) -> [[f64; 3]; 3] {
+    let (am, af, b, g) = (p.alpha_m, p.alpha_f, p.beta, p.gamma);
+    let o = omega_dt;
+    let o2 = o * o;
+    let z = 2.0 * xi * o; // 2 xi Omega
+    let d = (1.0 - am) + z * (1.0 - af) * g + o2 * (1.0 - af) * b;
+    // Acceleration row: a_{n+1} = -(c_u U + c_v V + c_a A) / D.
+    let c_u = o2;
+    let c_v = z + o2 * (1.0 - af);
+    let c_a = am + z * (1.0 - af) * (1.0 - g) + o2 * (1.0 - af) * (0.5 - b);
+    [
+        [
+            ((1.0 - am) + z * (1.0 - af) * g - af * b * o2) / d,
+            ((1.0 - am) + z * ((1.0 - af) * g - b)) / d,
+            ((0.5 - b - 0.5 * am) + z * (1.0 - af) * (0.5 * g - b)) / d,
+        ],
+        [
+            -g * c_u / d,
+            ((1.0 - am) - z * g * af + o2 * (1.0 - af) * (b - g)) / d,
+            ((1.0 - g - am) + o2 * (1.0 - af) * (b - 0.5 * g)) / d,
+        ],
+        [-c_u / d, -c_v / d, -c_a / d],
+    ]
+}
+
+/// The three eigenvalues of a 3x3 real matrix.
+pub fn eigenvalues3(a: &[[f64; 3]; 3]) -> [Complex<f64>; 3] {
+    let m = Matrix3::new(
+        a[0][0], a[0][1], a[0][2], a[1][0], a[1][1], a[1][2], a[2][0], a[2][1], a[2][2],
+    );
+    let e = m.complex_eigenvalues();
+    [e[0], e[1], e[2]]
+}
+
+/// The spectral radius (largest eigenvalue modulus, spurious roots included) of the
+/// generalised-alpha family at `omega_dt`, `xi`.
+pub fn spectral_radius(p: &AlphaParams, omega_dt: f64, xi: f64) -> f64 {
+    eigenvalues3(&alpha_amplification(p, omega_dt, xi))
+        .iter()
+        .map(|z| z.norm())
+        .fold(0.0, f64::max)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Direct construction of the amplification matrix by solving the step equations for each
+    /// unit state (independent of the hand-simplified entries).
+    fn direct(p: &AlphaParams, o: f64, xi: f64) -> [[f64; 3]; 3] {
+        let (am, af, b, g) = (p.alpha_m, p.alpha_f, p.beta, p.gamma);
+        let mut m = [[0.0; 3]; 3];
+        for j in 0..3 {
+            let mut x = [0.0; 3];
+            x[j] = 1.0;
+            let (u0, v0, a0) = (x[0], x[1], x[2]);
+            // (1-am) A1 + am A0 + 2 xi O ((1-af) V1 + af V0) + O^2 ((1-af) U1 + af U0) = 0
+            // with U1 = u0 + v0 + (1/2-b) a0 + b A1, V1 = v0 + (1-g) a0 + g A1.
+            let lhs = (1.0 - am) + 2.0 * xi * o * (1.0 - af) * g + o * o * (1.0 - af) * b;
+            let rhs = -(am * a0
+                + 2.0 * xi * o * ((1.0 - af) * (v0 + (1.0 - g) * a0) + af * v0)
+                + o * o * ((1.0 - af) * (u0 + v0 + (0.5 - b) * a0) + af * u0));
+            let a1 = rhs / lhs;
+            m[0][j] = u0 + v0 + (0.5 - b) * a0 + b * a1;
+            m[1][j] = v0 + (1.0 - g) * a0 + g * a1;
+            m[2][j] = a1;
+        }
+        m
+    }
+
+    #[test]
+    fn simplified_entries_equal_the_direct_construction() {
+        let sets = [
+            AlphaParams::average_acceleration(),
+            AlphaParams::linear_acceleration(),
+            AlphaParams::hht(-0.2).unwrap(),
+            AlphaParams::wbz(-0.3).unwrap(),
+            AlphaParams::generalized_alpha(0.6).unwrap(),
+            AlphaParams::raw(0.1, 0.3, 0.4, 0.7).unwrap(),
+        ];
+        for p in &sets {
+            for &(o, xi) in &[(0.01, 0.0), (0.5, 0.05), (3.0, 0.2), (40.0, 0.0)] {
+                let a = alpha_amplification(p, o, xi);
+                let d = direct(p, o, xi);
+                for i in 0..3 {
+                    for j in 0..3 {
+                        assert!((a[i][j] - d[i][j]).abs() < 1e-12, "{p:?} {o} {xi}: {i}{j}");
+                    }
+                }
+            }
+        }
+    }
+
+    /// The trapezoidal rule has spectral radius 1 at every Omega (Hughes 1987, sec. 9.3).
+    #[test]
+    fn trapezoidal_rule_has_unit_spectral_radius() {
+        let p = AlphaParams::average_acceleration();
+        for o in [0.1, 1.0, 10.0, 1e3] {
+            assert!((spectral_radius(&p, o, 0.0) - 1.0).abs() < 1e-9, "{o}");
+        }
+    }
+}
