@@ -2,6 +2,8 @@
 //! example, convergence orders, high-frequency filtering and agreement with the amplification
 //! matrix.
 
+#![allow(clippy::needless_range_loop)]
+
 mod common;
 
 use nalgebra::Complex;
@@ -358,8 +360,11 @@ fn stepped_decay_equals_the_spectral_radius() {
             // omega = 1, so dt = Omega.
             let mut model = common::sdof(1.0, 1.0);
             let mut state = State::new(0.0, vec![1.0], vec![0.3]).unwrap();
-            let mut opts = ImplicitOptions::default();
-            opts.growth_limit = f64::INFINITY; // linear acceleration at Omega = 8 is unstable
+            // Linear acceleration at Omega = 8 is unstable: let it grow.
+            let opts = ImplicitOptions {
+                growth_limit: f64::INFINITY,
+                ..Default::default()
+            };
             let mut it =
                 AlphaIntegrator::new(&mut model, &mut state, p, common::DenseLu::boxed(), opts)
                     .unwrap();

@@ -171,7 +171,8 @@ pub struct AlphaIntegrator {
     du: Vec<f64>,
     /// Total correction of this sub-step from the predictor, `u1 - u_pred`.
     dtot: Vec<f64>,
-    /// Copy of `dtot` during a line search.
+    /// Copies of `u1` and `dtot` during a line search.
+    usave: Vec<f64>,
     dsave: Vec<f64>,
     res: Vec<f64>,
     mw: Vec<f64>,
@@ -460,6 +461,7 @@ impl AlphaIntegrator {
             a1: vec![0.0; n],
             du: vec![0.0; n],
             dtot: vec![0.0; n],
+            usave: vec![0.0; n],
             dsave: vec![0.0; n],
             res: vec![0.0; n],
             mw: vec![0.0; n],
@@ -768,7 +770,7 @@ impl AlphaIntegrator {
                 match nopt.variant {
                     NewtonVariant::Full => true,
                     NewtonVariant::Modified { refresh_every } => {
-                        iterations == 0 || (refresh_every > 0 && iterations % refresh_every == 0)
+                        iterations == 0 || (refresh_every > 0 && iterations.is_multiple_of(refresh_every))
                     }
                 }
             };
@@ -799,12 +801,12 @@ impl AlphaIntegrator {
             last_energy = energy;
             let mut s = 1.0;
             if nopt.line_search && !self.linear {
-                self.tmp.copy_from_slice(&self.u1);
+                self.usave.copy_from_slice(&self.u1);
                 self.dsave.copy_from_slice(&self.dtot);
                 let r_prev = r_norm;
                 for attempt in 0..5 {
                     for i in 0..self.n {
-                        self.u1[i] = self.tmp[i] + s * self.du[i];
+                        self.u1[i] = self.usave[i] + s * self.du[i];
                         self.dtot[i] = self.dsave[i] + s * self.du[i];
                     }
                     let (r, f) = self.evaluate(model, state, t1, h, step)?;
@@ -855,7 +857,7 @@ impl AlphaIntegrator {
         step: u64,
     ) -> Result<(f64, f64)> {
         let p = self.params;
-        let (u0, v0, a0) = (&state.u, &state.v, &state.a);
+        let (v0, a0) = (&state.v, &state.a);
         // With the predictor u_pred = u_n + h v_n + h^2/2 a_n and the correction d = u1 - u_pred,
         // a1 = a_n + d/(beta h^2) and v1 = v_n + h a_n + gamma d/(beta h): the Newmark relations
         // written on the correction, which rounds far less than forming them from u1.

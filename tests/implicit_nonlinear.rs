@@ -1,0 +1,233 @@
+//! The implicit family on nonlinear problems: a hardening oscillator against a tight-tolerance
+//! reference from SciPy (committed data), Newton's quadratic convergence, modified Newton, line
+//! search, cut-back and failure at the smallest step.
+
+mod common;
+
+use common::Duffing;
+use tempora::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions, NewtonVariant};
+use tempora::model::Model;
+use tempora::params::AlphaParams;
+use tempora::{Error, ModelError, State};
+
+fn start(p: AlphaParams, newton: NewtonOptions) -> (Duffing, State, AlphaIntegrator) {
+    let mut model = Duffing::reference();
+    let mut state = State::new(0.0, vec![0.5], vec![0.0]).unwrap();
+    let opts = ImplicitOptions {
+        newton,
+        ..Default::default()
+    };
+    let it =
+        AlphaIntegrator::new(&mut model, &mut state, p, common::DenseLu::boxed(), opts).unwrap();
+    (model, state, it)
+}
+
+/// Largest deviation from the reference at its output times (every 0.1 s) for step `dt`.
+fn max_error(p: AlphaParams, dt: f64) -> f64 {
+    let reference = common::duffing_reference();
+    let (mut model, mut state, mut it) = start(p, NewtonOptions::default());
+    let per_row = (0.1 / dt).round() as usize;
+    let mut err: f64 = 0.0;
+    for row in &reference[1..] {
+        for _ in 0..per_row {
+            it.step(&mut model, &mut state, dt).unwrap();
+        }
+        assert!((state.t - row.0).abs() < 1e-9);
+        err = err.max((state.u[0] - row.1).abs());
+    }
+    err
+}
+
+/// Hardening oscillator m u'' + c u' + k u + k3 u^3 = F0 sin(w t) (our own parameters) against
+/// SciPy's DOP853 at rtol 1e-13, cross-checked by Radau (tests/data/duffing_reference.py, output
+/// committed in tests/data/duffing_reference.csv): the error falls at second order and is small.
+#[test]
+fn hardening_oscillator_matches_the_scipy_reference() {
+    for p in [
+        AlphaParams::average_acceleration(),
+        AlphaParams::hht(-0.1).unwrap(),
+        AlphaParams::generalized_alpha(0.7).unwrap(),
+    ] {
+        let errs: Vec<f64> = [0.02, 0.01, 0.005]
+            .iter()
+            .map(|&dt| max_error(p, dt))
+            .collect();
+        for w in errs.windows(2) {
+            let slope = (w[0] / w[1]).log2();
+            assert!(
+                (slope - 2.0).abs() < 0.15,
+                "{p:?}: slope {slope}, errors {errs:?}"
+            );
+        }
+        assert!(errs[2] < 2e-3, "{p:?}: {errs:?}");
+    }
+}
+
+/// Full Newton converges quadratically: on a hard step the estimated order
+/// log(r_{k+1}/r_k) / log(r_k/r_{k-1}) is near 2 (Newton's method with an exact Jacobian; e.g.
+/// Dennis & Schnabel 1983, *Numerical Methods for Unconstrained Optimization*, thm. 5.2.1).
+#[test]
+fn full_newton_converges_quadratically() {
+    let newton = NewtonOptions {
+        residual_tolerance: 1e-13,
+        displacement_tolerance: 1e-13,
+        ..Default::default()
+    };
+    let (mut model, mut state, mut it) = start(AlphaParams::average_acceleration(), newton);
+    model.f0 = 30.0; // drive it hard so that steps need several iterations
+    let mut best: Option<Vec<f64>> = None;
+    for _ in 0..20 {
+        it.step(&mut model, &mut state, 0.25).unwrap();
+        let r = it.last_report().residuals.clone();
+        if best.as_ref().is_none_or(|b| r.len() > b.len()) {
+            best = Some(r);
+        }
+    }
+    let r = best.unwrap();
+    // The residuals above round-off level of the longest iteration history.
+    let useful: Vec<f64> = r.into_iter().filter(|x| *x > 1e-12).collect();
+    assert!(useful.len() >= 3, "too few iterations to judge: {useful:?}");
+    let n = useful.len();
+    let order = (useful[n - 1] / useful[n - 2]).ln() / (useful[n - 2] / useful[n - 3]).ln();
+    assert!(
+        order > 1.7,
+        "convergence order {order}, residuals {useful:?}"
+    );
+}
+
+/// Modified Newton and the line search reach the same solution as full Newton (to the
+/// tolerances); modified Newton needs more iterations (linear convergence).
+#[test]
+fn modified_newton_and_line_search_reach_the_same_solution() {
+    let tight = NewtonOptions {
+        residual_tolerance: 1e-11,
+        displacement_tolerance: 1e-11,
+        max_iterations: 60,
+        ..Default::default()
+    };
+    let run = |newton: NewtonOptions| {
+        let (mut model, mut state, mut it) = start(AlphaParams::hht(-0.2).unwrap(), newton);
+        model.f0 = 10.0;
+        let mut iters = 0usize;
+        for _ in 0..40 {
+            let r = it.step(&mut model, &mut state, 0.1).unwrap();
+            iters += r.iterations as usize;
+        }
+        (state.u[0], iters)
+    };
+    let (u_full, it_full) = run(tight);
+    let (u_mod, it_mod) = run(NewtonOptions {
+        variant: NewtonVariant::Modified { refresh_every: 0 },
+        ..tight
+    });
+    let (u_mod3, _) = run(NewtonOptions {
+        variant: NewtonVariant::Modified { refresh_every: 3 },
+        ..tight
+    });
+    let (u_ls, _) = run(NewtonOptions {
+        line_search: true,
+        ..tight
+    });
+    for u in [u_mod, u_mod3, u_ls] {
+        assert!((u - u_full).abs() < 1e-8, "{u} vs {u_full}");
+    }
+    assert!(it_mod > it_full, "modified {it_mod} vs full {it_full}");
+}
+
+/// With few iterations allowed, a large step is cut back and regrown, and still reaches its end.
+#[test]
+fn hard_steps_are_cut_back_and_regrown() {
+    let newton = NewtonOptions {
+        max_iterations: 4,
+        ..Default::default()
+    };
+    let (mut model, mut state, mut it) = start(AlphaParams::average_acceleration(), newton);
+    model.f0 = 40.0;
+    let mut cut = 0;
+    let mut sub = 0;
+    for _ in 0..10 {
+        it.step(&mut model, &mut state, 0.5).unwrap();
+        cut += it.last_report().cutbacks;
+        sub += it.last_report().substeps;
+    }
+    assert!(cut > 0, "no cut-back happened");
+    assert!(sub > 10, "no sub-steps were taken");
+    assert!((state.t - 5.0).abs() < 1e-12);
+}
+
+/// A model that fails beyond a time: the failure persists at the smallest step, the error is the
+/// model's, typed, and the state is the last converged one.
+struct Breaks(Duffing, f64);
+
+impl Model for Breaks {
+    fn dofs(&self) -> usize {
+        1
+    }
+    fn lumped_mass(&self, out: &mut [f64]) {
+        self.0.lumped_mass(out)
+    }
+    fn internal_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        if t > self.1 {
+            return Err(ModelError::failed("material point failed"));
+        }
+        self.0.internal_force(t, u, v, out)
+    }
+    fn tangent_pattern(&self) -> Option<&tempora::linalg::CsrMatrix> {
+        self.0.tangent_pattern()
+    }
+    fn tangent_stiffness(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut tempora::linalg::CsrMatrix,
+    ) -> Result<(), ModelError> {
+        self.0.tangent_stiffness(t, u, v, out)
+    }
+}
+
+#[test]
+fn failure_at_the_smallest_step_keeps_the_last_converged_state() {
+    let mut model = Breaks(Duffing::reference(), 0.35);
+    let mut state = State::new(0.0, vec![0.5], vec![0.0]).unwrap();
+    let mut it = AlphaIntegrator::new(
+        &mut model,
+        &mut state,
+        AlphaParams::average_acceleration(),
+        common::DenseLu::boxed(),
+        ImplicitOptions::default(),
+    )
+    .unwrap();
+    it.step(&mut model, &mut state, 0.2).unwrap();
+    let e = it.step(&mut model, &mut state, 0.2).unwrap_err();
+    assert!(matches!(e, Error::Model { .. }), "{e}");
+    // Sub-steps up to t <= 0.35 converged and were kept; nothing beyond.
+    assert!(state.t > 0.2 && state.t <= 0.35, "t = {}", state.t);
+    assert!(state.u[0].is_finite());
+
+    // Newton that cannot converge (one iteration on a nonlinear step): typed error, state kept.
+    let (mut model, mut state, mut it) = start(
+        AlphaParams::average_acceleration(),
+        NewtonOptions {
+            max_iterations: 1,
+            max_cutbacks: 2,
+            ..Default::default()
+        },
+    );
+    let before = state.clone();
+    let e = it.step(&mut model, &mut state, 0.5).unwrap_err();
+    match e {
+        Error::NewtonNotConverged { cutbacks, dt, .. } => {
+            assert_eq!(cutbacks, 2);
+            assert!((dt - 0.125).abs() < 1e-15);
+        }
+        other => panic!("{other}"),
+    }
+    assert_eq!(state, before);
+}
