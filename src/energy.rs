@@ -18,8 +18,13 @@
 //! The balance is
 //!
 //! ```text
-//! error = T + W_int + W_damp + sum_k W_k - W_ext - W_constraint - T_0,
+//! error = T + W_int + W_damp + sum_k W_k + D_num - W_ext - W_constraint - T_0,
 //! ```
+//!
+//! where `D_num` is the energy removed by the time-integration scheme itself: zero for the
+//! explicit scheme; for the implicit family the difference between the trapezoidal bookkeeping and
+//! the step, which is zero for the trapezoidal rule and positive for dissipative members
+//! (see `docs/implicit.md`).
 //!
 //! where `W_int` is the work done against the internal forces since the start, so the internal
 //! (stored plus dissipated) energy is `E_int = E_int,0 + W_int`. The relative error divides by the

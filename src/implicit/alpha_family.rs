@@ -770,7 +770,8 @@ impl AlphaIntegrator {
                 match nopt.variant {
                     NewtonVariant::Full => true,
                     NewtonVariant::Modified { refresh_every } => {
-                        iterations == 0 || (refresh_every > 0 && iterations.is_multiple_of(refresh_every))
+                        iterations == 0
+                            || (refresh_every > 0 && iterations.is_multiple_of(refresh_every))
                     }
                 }
             };
