@@ -11,7 +11,11 @@ use tempora::State;
 use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
 use tempora::model::LinearModel;
 use tempora::params::AlphaParams;
-use tempora::spectral::{alpha_amplification, spectral_radius};
+use tempora::spectral::{Scheme, alpha_amplification};
+
+fn spectral_radius(p: &AlphaParams, omega_dt: f64, xi: f64) -> f64 {
+    tempora::spectral::spectral_radius(&Scheme::Alpha(*p), omega_dt, xi)
+}
 
 fn integrator(model: &mut LinearModel, state: &mut State, p: AlphaParams) -> AlphaIntegrator {
     AlphaIntegrator::new(

@@ -1,7 +1,25 @@
-//! Spectral analysis of the time-integration schemes: amplification matrices and their
-//! eigenvalues. Depends only on the parameter type, so the coefficients analysed are the
-//! coefficients stepped.
+//! Stability and accuracy analysis of any parameter set: amplification matrices, spectral
+//! radius, algorithmic damping, period error, high-frequency limit, critical step, order of
+//! accuracy, verdicts with their reasons, inverse design and sweeps.
+//!
+//! Depends only on the parameter types ([`AlphaParams`](crate::params::AlphaParams) and
+//! [`ForceVelocity`](crate::explicit::ForceVelocity)) that the integrators step with, so the
+//! coefficients analysed are the coefficients stepped. Derivations are in `docs/spectral.md`.
 
 mod amplification;
+mod bounds;
+mod metrics;
+mod scheme;
+mod sweep;
 
-pub use amplification::{alpha_amplification, eigenvalues3, spectral_radius};
+pub use amplification::{alpha_amplification, eigenvalues3};
+pub use bounds::{
+    CheckContext, SCAN_LIMIT, Stability, Verdict, bracket_check, check, omega_crit_closed_form,
+};
+pub use metrics::{
+    INSTABILITY_MARGIN, Metrics, characteristic_polynomial, eigenvalues, largest_step_for_damping,
+    largest_step_for_period_error, metrics, omega_crit_numeric, order_of_accuracy, rho_inf,
+    spectral_radius,
+};
+pub use scheme::{Parameters, Scheme, cd_amplification};
+pub use sweep::{log_space, newmark_stability_map, sweep};

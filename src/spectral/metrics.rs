@@ -1,0 +1,254 @@
+//! Spectral radius, principal roots, algorithmic damping, period error, high-frequency limit,
+//! critical `Omega` and order of accuracy of a scheme.
+
+use nalgebra::Complex;
+use serde::{Deserialize, Serialize};
+
+use super::amplification::eigenvalues3;
+use super::scheme::Scheme;
+use crate::error::{Error, Result};
+
+/// What the amplification matrix says at one `Omega = omega dt`.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Metrics {
+    /// `Omega = omega dt`.
+    pub omega: f64,
+    /// Largest eigenvalue modulus, spurious roots included.
+    pub spectral_radius: f64,
+    /// Algorithmic damping ratio `xi_bar` of the principal pair
+    /// `exp(Omega_bar (-xi_bar +/- i))`; `None` where the principal roots are real.
+    pub damping_ratio: Option<f64>,
+    /// Relative period error `Omega / Omega_bar - 1`; `None` where the principal roots are real.
+    pub period_error: Option<f64>,
+    /// The principal root with positive imaginary part, `None` where the roots are real.
+    #[serde(skip)]
+    pub principal: Option<Complex<f64>>,
+}
+
+/// The three eigenvalues of the scheme's amplification matrix.
+pub fn eigenvalues(scheme: &Scheme, omega_dt: f64, xi: f64) -> [Complex<f64>; 3] {
+    eigenvalues3(&scheme.amplification(omega_dt, xi))
+}
+
+/// The largest eigenvalue modulus.
+pub fn spectral_radius(scheme: &Scheme, omega_dt: f64, xi: f64) -> f64 {
+    eigenvalues(scheme, omega_dt, xi)
+        .iter()
+        .map(|z| z.norm())
+        .fold(0.0, f64::max)
+}
+
+/// Spectral radius, principal pair, damping ratio and period error at `omega_dt`.
+///
+/// The principal pair is the complex-conjugate pair (the third root of these schemes is real and
+/// spurious); with `z = exp(Omega_bar (-xi_bar + i))`, `Omega_bar = arg z` and
+/// `xi_bar = -ln|z| / Omega_bar` (Hughes 1987, *The Finite Element Method*, sec. 9.3; Chung &
+/// Hulbert 1993).
+pub fn metrics(scheme: &Scheme, omega_dt: f64, xi: f64) -> Metrics {
+    let ev = eigenvalues(scheme, omega_dt, xi);
+    let rho = ev.iter().map(|z| z.norm()).fold(0.0, f64::max);
+    // Complex roots come in conjugate pairs; a pair is complex when its imaginary part is more
+    // than round-off.
+    let principal = ev
+        .iter()
+        .filter(|z| z.im > 1e-12 * z.norm().max(1e-300))
+        .max_by(|a, b| a.norm().total_cmp(&b.norm()))
+        .copied();
+    let (damping_ratio, period_error) = match principal {
+        Some(z) => {
+            let omega_bar = z.arg();
+            (
+                Some(-z.norm().ln() / omega_bar),
+                Some(omega_dt / omega_bar - 1.0),
+            )
+        }
+        None => (None, None),
+    };
+    Metrics {
+        omega: omega_dt,
+        spectral_radius: rho,
+        damping_ratio,
+        period_error,
+        principal,
+    }
+}
+
+/// Coefficients `[1, c2, c1, c0]` of the characteristic polynomial
+/// `det(z I - A) = z^3 + c2 z^2 + c1 z + c0` at `omega_dt`, `xi`.
+pub fn characteristic_polynomial(scheme: &Scheme, omega_dt: f64, xi: f64) -> [f64; 4] {
+    let a = scheme.amplification(omega_dt, xi);
+    let trace = a[0][0] + a[1][1] + a[2][2];
+    let minors = a[0][0] * a[1][1] - a[0][1] * a[1][0] + a[0][0] * a[2][2] - a[0][2] * a[2][0]
+        + a[1][1] * a[2][2]
+        - a[1][2] * a[2][1];
+    let det = a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1])
+        - a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0])
+        + a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0]);
+    [1.0, -trace, minors, -det]
+}
+
+/// The high-frequency spectral radius `rho_inf = lim rho(Omega)` as `Omega -> infinity`, or
+/// `None` when the spectral radius grows without bound (explicit schemes).
+///
+/// Computed from the limit matrix in closed form, not from an eigen-solver at a large `Omega`
+/// (where the limit is a double or triple root, a general solver loses half or two thirds of the
+/// digits). For the family with `beta > 0`, `alpha_f < 1`, the limit matrix on
+/// `(u, dt v, dt^2 a)` is block triangular: one root `-alpha_f / (1 - alpha_f)`, and the two roots
+/// of `z^2 - T z + P` with `T = (2 beta - gamma - 1/2)/beta` and
+/// `P = (beta - gamma/2 - (beta - gamma)(1/2 - beta))/beta^2`; a double root is taken as `T/2`
+/// (see `docs/spectral.md`).
+pub fn rho_inf(scheme: &Scheme) -> Option<f64> {
+    let p = match scheme {
+        Scheme::CentralDifference(_) => return None,
+        Scheme::Alpha(p) if p.beta == 0.0 => return None,
+        Scheme::Alpha(p) => p,
+    };
+    let (af, b, g) = (p.alpha_f, p.beta, p.gamma);
+    let z1 = -af / (1.0 - af);
+    let t = (2.0 * b - g - 0.5) / b;
+    let q = (b - 0.5 * g - (b - g) * (0.5 - b)) / (b * b);
+    let disc = t * t - 4.0 * q;
+    let scale = t * t + 4.0 * q.abs();
+    let pair = if disc.abs() <= 1e-12 * scale.max(f64::MIN_POSITIVE) {
+        // Double root.
+        (0.5 * t).abs()
+    } else if disc > 0.0 {
+        let s = disc.sqrt();
+        (0.5 * (t + s)).abs().max((0.5 * (t - s)).abs())
+    } else {
+        // Complex pair: modulus sqrt(P).
+        q.sqrt()
+    };
+    Some(z1.abs().max(pair))
+}
+
+/// Options of the critical-`Omega` search.
+const OMEGA_SCAN_START: f64 = 1e-3;
+const OMEGA_SCAN_FACTOR: f64 = 1.05;
+/// The spectral radius must exceed 1 by this much to count as unstable (round-off margin, so that
+/// sets with `rho = 1` exactly, like the trapezoidal rule, are not reported unstable).
+pub const INSTABILITY_MARGIN: f64 = 1e-9;
+
+/// The smallest `Omega` at which the spectral radius exceeds `1 + INSTABILITY_MARGIN`, found by a
+/// geometric scan from `1e-3` up to `omega_max_scan` followed by bisection to full precision;
+/// `None` when the scan finds none.
+///
+/// This is the numerical path; an unconditional-stability verdict rests on the published bounds
+/// and the limit analysis ([`check`](super::check)), not on this scan.
+pub fn omega_crit_numeric(scheme: &Scheme, xi: f64, omega_max_scan: f64) -> Option<f64> {
+    let unstable = |o: f64| spectral_radius(scheme, o, xi) > 1.0 + INSTABILITY_MARGIN;
+    if unstable(OMEGA_SCAN_START) {
+        return Some(0.0);
+    }
+    let mut lo = OMEGA_SCAN_START;
+    let mut hi = lo;
+    loop {
+        hi *= OMEGA_SCAN_FACTOR;
+        if hi > omega_max_scan {
+            return None;
+        }
+        if unstable(hi) {
+            break;
+        }
+        lo = hi;
+    }
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        if unstable(mid) {
+            hi = mid;
+        } else {
+            lo = mid;
+        }
+    }
+    Some(0.5 * (lo + hi))
+}
+
+/// Order of accuracy from the local truncation error: the characteristic polynomial evaluated at
+/// the exact root `exp(lambda dt)` (`lambda = omega (-xi + i sqrt(1 - xi^2))`) falls like
+/// `Omega^(k + 2)` for a scheme of order `k` (Hughes 1987, sec. 9.1). Measured at
+/// `Omega = 0.01` and `0.005`, without and with physical damping, and the smaller order kept.
+pub fn order_of_accuracy(scheme: &Scheme) -> u32 {
+    let residual = |o: f64, xi: f64| {
+        let c = characteristic_polynomial(scheme, o, xi);
+        let lam = Complex::new(-xi * o, o * (1.0 - xi * xi).sqrt());
+        let z = lam.exp();
+        (((z + c[1]) * z + c[2]) * z + c[3]).norm()
+    };
+    let mut order = u32::MAX;
+    for xi in [0.0, 0.1] {
+        let (r1, r2) = (residual(0.01, xi), residual(0.005, xi));
+        let slope = (r1 / r2).log2();
+        let k = (slope - 2.0).round().max(0.0) as u32;
+        order = order.min(k);
+    }
+    order
+}
+
+/// The largest step for which the period error at circular frequency `omega` stays within
+/// `target` (e.g. 0.01 for 1 percent), by bisection on `Omega` (the period error grows with
+/// `Omega` over the range where the roots are complex).
+///
+/// # Errors
+/// [`Error::InvalidParameter`] for a non-positive or non-finite `omega` or `target`.
+pub fn largest_step_for_period_error(
+    scheme: &Scheme,
+    omega: f64,
+    xi: f64,
+    target: f64,
+) -> Result<f64> {
+    largest_step(omega, target, |o| {
+        metrics(scheme, o, xi).period_error.map(f64::abs)
+    })
+}
+
+/// The largest step for which the algorithmic damping ratio at circular frequency `omega` stays
+/// within `target`.
+///
+/// # Errors
+/// [`Error::InvalidParameter`] for a non-positive or non-finite `omega` or `target`.
+pub fn largest_step_for_damping(scheme: &Scheme, omega: f64, xi: f64, target: f64) -> Result<f64> {
+    largest_step(omega, target, |o| {
+        metrics(scheme, o, xi).damping_ratio.map(|d| (d).abs())
+    })
+}
+
+fn largest_step(omega: f64, target: f64, measure: impl Fn(f64) -> Option<f64>) -> Result<f64> {
+    for (name, v) in [("omega", omega), ("target", target)] {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(Error::InvalidParameter {
+                name,
+                value: v,
+                expected: "a positive, finite value",
+            });
+        }
+    }
+    let ok = |o: f64| measure(o).is_some_and(|m| m <= target);
+    // Grow until the measure fails, then bisect.
+    let mut lo = 1e-6;
+    if !ok(lo) {
+        return Ok(0.0);
+    }
+    let mut hi = lo;
+    while ok(hi) {
+        lo = hi;
+        hi *= 1.5;
+        if hi > 1e6 {
+            return Ok(hi / omega);
+        }
+    }
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        if ok(mid) {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    Ok(lo / omega)
+}

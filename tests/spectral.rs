@@ -1,0 +1,217 @@
+//! Spectral analysis against the published closed forms.
+
+use proptest::prelude::*;
+use tempora::explicit::ForceVelocity;
+use tempora::params::AlphaParams;
+use tempora::spectral::{
+    CheckContext, Scheme, Stability, check, metrics, omega_crit_closed_form, omega_crit_numeric,
+    order_of_accuracy, rho_inf, spectral_radius,
+};
+
+fn alpha(p: AlphaParams) -> Scheme {
+    Scheme::Alpha(p)
+}
+
+fn crit(s: &Scheme, xi: f64) -> Option<f64> {
+    match check(s, xi, &CheckContext::default()).unwrap().stability {
+        Stability::Conditional { omega_crit } => Some(omega_crit),
+        _ => None,
+    }
+}
+
+/// Central difference: Omega_crit = 2 and omega_bar dt = 2 asin(Omega / 2) (Hughes 1987, *The
+/// Finite Element Method*, sec. 9.3).
+#[test]
+fn central_difference_limit_and_dispersion() {
+    let s = Scheme::CentralDifference(ForceVelocity::Lagged);
+    assert!((crit(&s, 0.0).unwrap() - 2.0).abs() < 1e-9);
+    for o in [0.1f64, 0.5, 1.0, 1.5, 1.9] {
+        let m = metrics(&s, o, 0.0);
+        let expected = o / (2.0 * (o / 2.0).asin()) - 1.0;
+        assert!((m.period_error.unwrap() - expected).abs() < 1e-12, "{o}");
+        assert!((m.spectral_radius - 1.0).abs() < 1e-9);
+        assert!(m.damping_ratio.unwrap().abs() < 1e-9);
+    }
+    assert_eq!(rho_inf(&s), None);
+    assert_eq!(
+        order_of_accuracy(&Scheme::CentralDifference(ForceVelocity::Predicted)),
+        2
+    );
+    // Lagged damping velocity: first order with damping (docs/explicit.md).
+    assert_eq!(order_of_accuracy(&s), 1);
+}
+
+/// Damped central difference: Omega_crit = 2 (sqrt(1 + xi^2) - xi) with the damping force at the
+/// lagged half-step velocity (Belytschko, Liu & Moran 2000), 2 (sqrt(1 + 4 xi^2) - 2 xi) with the
+/// predicted velocity (derived in docs/explicit.md); explicit Newmark (beta = 0, damping centred)
+/// keeps 2 for every xi (from the Newmark closed form with beta = 0, gamma = 1/2).
+#[test]
+fn damped_explicit_limits_depend_on_the_damping_treatment() {
+    for xi in [0.0f64, 0.05, 0.2, 0.5, 1.0] {
+        let lag = crit(&Scheme::CentralDifference(ForceVelocity::Lagged), xi).unwrap();
+        let pred = crit(&Scheme::CentralDifference(ForceVelocity::Predicted), xi).unwrap();
+        let centred = crit(&alpha(AlphaParams::newmark(0.0, 0.5).unwrap()), xi).unwrap();
+        assert!(
+            (lag - 2.0 * ((1.0 + xi * xi).sqrt() - xi)).abs() < 1e-8,
+            "{xi}: {lag}"
+        );
+        assert!(
+            (pred - 2.0 * ((1.0 + 4.0 * xi * xi).sqrt() - 2.0 * xi)).abs() < 1e-8,
+            "{xi}: {pred}"
+        );
+        assert!((centred - 2.0).abs() < 1e-8, "{xi}: {centred}");
+    }
+}
+
+/// Trapezoidal rule: spectral radius 1 for all Omega, omega_bar dt = 2 atan(Omega / 2), and no
+/// false Omega_crit from round-off (Hughes 1987, sec. 9.3).
+#[test]
+fn trapezoidal_rule_is_neutral_at_every_omega() {
+    let s = alpha(AlphaParams::average_acceleration());
+    for o in [1e-3f64, 0.1, 1.0, 10.0, 1e3, 1e5] {
+        let m = metrics(&s, o, 0.0);
+        assert!(
+            (m.spectral_radius - 1.0).abs() < 1e-9,
+            "{o}: {}",
+            m.spectral_radius
+        );
+        if o < 1e3 {
+            let expected = o / (2.0 * (o / 2.0).atan()) - 1.0;
+            assert!(
+                (m.period_error.unwrap() - expected).abs() < 1e-9 * (1.0 + expected),
+                "{o}"
+            );
+        }
+    }
+    let v = check(&s, 0.0, &CheckContext::default()).unwrap();
+    assert_eq!(v.stability, Stability::Unconditional);
+    assert_eq!(v.rho_inf, Some(1.0));
+    assert!(!v.dissipative);
+    assert_eq!(v.order, 2);
+    assert_eq!(omega_crit_numeric(&s, 0.0, 1e4), None);
+}
+
+/// Newmark with gamma = 1/2: Omega_crit = 1 / sqrt(gamma/2 - beta): linear acceleration sqrt(12),
+/// Fox-Goodwin sqrt(6) (Hughes 1987, sec. 9.1); the bracketing search agrees with the closed form.
+#[test]
+fn newmark_critical_omega_matches_the_closed_form() {
+    for (p, expected) in [
+        (AlphaParams::linear_acceleration(), 12f64.sqrt()),
+        (AlphaParams::fox_goodwin(), 6f64.sqrt()),
+    ] {
+        let s = alpha(p);
+        let c = crit(&s, 0.0).unwrap();
+        assert!((c - expected).abs() < 1e-9 * expected, "{c} vs {expected}");
+        assert!((omega_crit_closed_form(&s, 0.0).unwrap() - expected).abs() < 1e-14);
+    }
+    // Damped, gamma > 1/2: the closed form (Hughes 1987, sec. 9.1; formula from memory, checked
+    // here against the independent bracketing search).
+    let s = alpha(AlphaParams::newmark(0.2, 0.6).unwrap());
+    for xi in [0.0f64, 0.1, 0.3] {
+        let c = crit(&s, xi).unwrap();
+        let closed = omega_crit_closed_form(&s, xi).unwrap();
+        assert!(
+            (c - closed).abs() < 1e-8 * closed,
+            "xi {xi}: {c} vs {closed}"
+        );
+    }
+    // gamma < 1/2 is unstable, gamma > 1/2 first order.
+    let v = check(
+        &alpha(AlphaParams::newmark(0.3, 0.4).unwrap()),
+        0.0,
+        &CheckContext::default(),
+    )
+    .unwrap();
+    assert_eq!(v.stability, Stability::Unstable);
+    assert_eq!(
+        order_of_accuracy(&alpha(AlphaParams::newmark(0.3025, 0.6).unwrap())),
+        1
+    );
+}
+
+/// Generalised-alpha: rho_inf from the limiting matrix equals the requested value to 1e-12 and
+/// the order is 2 for every rho_inf in [0, 1] (Chung & Hulbert 1993).
+#[test]
+fn generalized_alpha_reaches_the_requested_rho_inf() {
+    for k in 0..=20 {
+        let r = k as f64 / 20.0;
+        let s = alpha(AlphaParams::generalized_alpha(r).unwrap());
+        assert!((rho_inf(&s).unwrap() - r).abs() < 1e-12, "{r}");
+        let v = check(&s, 0.0, &CheckContext::default()).unwrap();
+        assert_eq!(v.order, 2, "{r}");
+        assert_eq!(v.stability, Stability::Unconditional, "{r}");
+        assert_eq!(v.dissipative, r < 1.0);
+        // The finite-Omega spectral radius approaches rho_inf only slowly (a triple root,
+        // ~ Omega^(-2/3)), so compare loosely at Omega = 1e4.
+        assert!((spectral_radius(&s, 1e4, 0.0) - r).abs() < 0.05, "{r}");
+    }
+}
+
+/// HHT-alpha: unconditionally stable over [-1/3, 0], rho_inf = (1 + alpha)/(1 - alpha) in the
+/// original sign convention (Hilber, Hughes & Taylor 1977); WBZ likewise with
+/// rho_inf = (1 + alpha_m)/(1 - alpha_m) (Wood, Bossak & Zienkiewicz 1980).
+#[test]
+fn hht_and_wbz_limits() {
+    for k in 0..=10 {
+        let a = -k as f64 / 30.0;
+        let s = alpha(AlphaParams::hht(a).unwrap());
+        assert!(
+            (rho_inf(&s).unwrap() - (1.0 + a) / (1.0 - a)).abs() < 1e-12,
+            "{a}"
+        );
+        let v = check(&s, 0.0, &CheckContext::default()).unwrap();
+        assert_eq!(v.stability, Stability::Unconditional);
+        assert_eq!(v.order, 2);
+        let w = alpha(AlphaParams::wbz(a).unwrap());
+        assert!(
+            (rho_inf(&w).unwrap() - (1.0 + a) / (1.0 - a)).abs() < 1e-12,
+            "{a}"
+        );
+        assert_eq!(
+            check(&w, 0.0, &CheckContext::default()).unwrap().stability,
+            Stability::Unconditional
+        );
+    }
+}
+
+/// The context: a step above the limit of a conditional set is flagged, and the step that keeps
+/// the period error within 1 percent at a frequency of interest is reported.
+#[test]
+fn verdicts_in_context() {
+    let s = alpha(AlphaParams::linear_acceleration());
+    let ctx = CheckContext {
+        omega_max: Some(1000.0),
+        dt: Some(0.004),
+        omega_interest: Some(10.0),
+        period_error_target: None,
+    };
+    let v = check(&s, 0.0, &ctx).unwrap();
+    assert!((v.dt_stable.unwrap() - 12f64.sqrt() / 1000.0).abs() < 1e-12);
+    assert_eq!(v.step_stable, Some(false));
+    let dt_acc = v.dt_accuracy.unwrap();
+    let pe = metrics(&s, 10.0 * dt_acc, 0.0).period_error.unwrap();
+    assert!((pe.abs() - 0.01).abs() < 1e-9, "{pe}");
+    assert!(v.reasons.iter().any(|r| r.contains("Newmark 1959")));
+    assert!(check(&s, -0.1, &ctx).is_err());
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(64))]
+    /// For random valid sets, sampled Omega below the reported Omega_crit give a spectral radius
+    /// <= 1 + 1e-12 and Omega just above it gives more than 1.
+    #[test]
+    fn below_omega_crit_is_stable_and_above_is_not(
+        beta in 0.0f64..0.24,
+        gamma in 0.5f64..0.7,
+        xi in 0.0f64..0.3,
+        fractions in proptest::collection::vec(0.01f64..0.999, 8),
+    ) {
+        let s = alpha(AlphaParams::newmark(beta, gamma).unwrap());
+        if let Some(c) = crit(&s, xi) {
+            for f in fractions {
+                prop_assert!(spectral_radius(&s, f * c, xi) <= 1.0 + 1e-12, "f {f} c {c}");
+            }
+            prop_assert!(spectral_radius(&s, c * (1.0 + 1e-6), xi) > 1.0);
+        }
+    }
+}
