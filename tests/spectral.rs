@@ -215,3 +215,52 @@ proptest! {
         }
     }
 }
+
+/// A sweep equals the pointwise metrics, whatever the thread count; the stability map over the
+/// (beta, gamma) plane shows the three Newmark regions (Newmark 1959; Hughes 1987, sec. 9.1).
+#[test]
+fn sweeps_and_stability_map() {
+    use tempora::spectral::{log_space, newmark_stability_map, sweep};
+    let schemes = [
+        alpha(AlphaParams::average_acceleration()),
+        alpha(AlphaParams::hht(-0.2).unwrap()),
+        Scheme::CentralDifference(ForceVelocity::Lagged),
+    ];
+    let omegas = log_space(0.01, 100.0, 300);
+    assert_eq!(omegas.len(), 300);
+    assert!((omegas[0] - 0.01).abs() < 1e-15 && (omegas[299] - 100.0).abs() < 1e-12);
+    let one = rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build()
+        .unwrap();
+    let two = rayon::ThreadPoolBuilder::new()
+        .num_threads(2)
+        .build()
+        .unwrap();
+    let a = one.install(|| sweep(&schemes, &omegas, 0.05));
+    let b = two.install(|| sweep(&schemes, &omegas, 0.05));
+    assert_eq!(a, b);
+    for (s, row) in schemes.iter().zip(&a) {
+        for (o, m) in omegas.iter().zip(row) {
+            assert_eq!(*m, metrics(s, *o, 0.05));
+        }
+    }
+    let map = newmark_stability_map(&[0.1, 0.25, 0.3], &[0.4, 0.5], 0.0).unwrap();
+    assert_eq!(map[1][1], Stability::Unconditional);
+    assert!(matches!(map[0][1], Stability::Conditional { .. }));
+    assert_eq!(map[2][0], Stability::Unstable);
+    assert!(newmark_stability_map(&[-0.1], &[0.5], 0.0).is_err());
+}
+
+/// Inverse design: the largest step for a damping target gives exactly that algorithmic damping
+/// at the frequency of interest (bisection on the computed metric).
+#[test]
+fn largest_step_for_a_damping_target() {
+    use tempora::spectral::largest_step_for_damping;
+    let s = alpha(AlphaParams::hht(-0.3).unwrap());
+    let w = 20.0;
+    let dt = largest_step_for_damping(&s, w, 0.0, 0.01).unwrap();
+    let d = metrics(&s, w * dt, 0.0).damping_ratio.unwrap();
+    assert!((d - 0.01).abs() < 1e-9, "{d}");
+    assert!(largest_step_for_damping(&s, -1.0, 0.0, 0.01).is_err());
+}
