@@ -118,3 +118,45 @@ fn damped_sdof_converges_at_the_order_of_its_damping_treatment() {
         assert!((s - 1.0).abs() < 0.1, "lagged: slope {s}");
     }
 }
+
+/// Stepping agrees with the spectral analysis: the central-difference state of a damped SDOF,
+/// projected on the left eigenvector of the dominant eigenvalue of its amplification matrix
+/// (docs/spectral.md), decays at exactly the spectral radius, for both damping treatments
+/// (the stepped map is the matrix, so c_n = c_0 z^n).
+#[test]
+fn stepped_decay_equals_the_spectral_radius() {
+    use tempora::spectral::{Scheme, cd_amplification, eigenvalues3, spectral_radius};
+    for fv in [ForceVelocity::Lagged, ForceVelocity::Predicted] {
+        for (omega_dt, xi) in [(0.3f64, 0.05f64), (1.2, 0.1), (1.7, 0.02)] {
+            let a = cd_amplification(fv, omega_dt, xi);
+            let z = *eigenvalues3(&a)
+                .iter()
+                .max_by(|x, y| x.norm().total_cmp(&y.norm()))
+                .unwrap();
+            let rho = spectral_radius(&Scheme::CentralDifference(fv), omega_dt, xi);
+            let l = common::left_eigenvector(&a, z);
+            // m = k = 1: omega = 1, dt = Omega, c = 2 xi.
+            let mut model = common::sdof(1.0, 1.0).with_rayleigh(2.0 * xi, 0.0).unwrap();
+            let mut state = State::new(0.0, vec![1.0], vec![0.2]).unwrap();
+            let opts = CentralDifferenceOptions {
+                force_velocity: fv,
+                ..unchecked()
+            };
+            let mut cd = CentralDifference::new(&mut model, &mut state, opts).unwrap();
+            let project = |s: &State| {
+                let x = [s.u[0], omega_dt * s.v[0], omega_dt * omega_dt * s.a[0]];
+                l[0] * x[0] + l[1] * x[1] + l[2] * x[2]
+            };
+            let c0 = project(&state);
+            let n = 40;
+            for _ in 0..n {
+                cd.step(&mut model, &mut state, omega_dt).unwrap();
+            }
+            let measured = (project(&state).norm() / c0.norm()).powf(1.0 / n as f64);
+            assert!(
+                (measured - rho).abs() < 1e-9,
+                "{fv:?} Omega {omega_dt} xi {xi}: measured {measured}, predicted {rho}"
+            );
+        }
+    }
+}

@@ -6,7 +6,6 @@
 
 mod common;
 
-use nalgebra::Complex;
 use tempora::State;
 use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
 use tempora::model::LinearModel;
@@ -309,31 +308,6 @@ fn spurious_stiff_mode_is_filtered_at_the_predicted_rate() {
     }
 }
 
-/// A left eigenvector of the real 3x3 matrix `a` for its (simple) eigenvalue `z`: a null vector of
-/// `A^T - z I`, the cross product of two of its rows.
-fn left_eigenvector(a: &[[f64; 3]; 3], z: Complex<f64>) -> [Complex<f64>; 3] {
-    let b = |i: usize, j: usize| {
-        Complex::new(a[j][i], 0.0) - if i == j { z } else { Complex::new(0.0, 0.0) }
-    };
-    let cross = |r: [Complex<f64>; 3], s: [Complex<f64>; 3]| {
-        [
-            r[1] * s[2] - r[2] * s[1],
-            r[2] * s[0] - r[0] * s[2],
-            r[0] * s[1] - r[1] * s[0],
-        ]
-    };
-    let rows: Vec<[Complex<f64>; 3]> = (0..3).map(|i| [b(i, 0), b(i, 1), b(i, 2)]).collect();
-    // The pair of rows giving the largest cross product is the best conditioned.
-    [(0, 1), (0, 2), (1, 2)]
-        .iter()
-        .map(|&(i, j)| cross(rows[i], rows[j]))
-        .max_by(|p, q| {
-            let n = |v: &[Complex<f64>; 3]| v.iter().map(|c| c.norm_sqr()).sum::<f64>();
-            n(p).total_cmp(&n(q))
-        })
-        .unwrap()
-}
-
 /// Stepped decay of a mode equals the spectral radius the amplification matrix predicts (ties
 /// the integrator to the spectral analysis; Hughes 1987, sec. 9.3): projecting the stepped state
 /// x_n = (u, dt v, dt^2 a) on the left eigenvector of the dominant eigenvalue z gives
@@ -356,7 +330,7 @@ fn stepped_decay_equals_the_spectral_radius() {
                 .unwrap();
             let rho = spectral_radius(&p, omega_dt, 0.0);
             assert!((z.norm() - rho).abs() < 1e-14);
-            let l = left_eigenvector(&a, z);
+            let l = common::left_eigenvector(&a, z);
             let project = |s: &State| {
                 let x = [s.u[0], omega_dt * s.v[0], omega_dt * omega_dt * s.a[0]];
                 l[0] * x[0] + l[1] * x[1] + l[2] * x[2]

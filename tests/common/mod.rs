@@ -189,3 +189,37 @@ pub fn duffing_reference() -> Vec<(f64, f64, f64)> {
         })
         .collect()
 }
+
+/// A left eigenvector of the real 3x3 matrix `a` for its (simple) eigenvalue `z`: a null vector of
+/// `A^T - z I`, the cross product of two of its rows.
+pub fn left_eigenvector(
+    a: &[[f64; 3]; 3],
+    z: nalgebra::Complex<f64>,
+) -> [nalgebra::Complex<f64>; 3] {
+    let b = |i: usize, j: usize| {
+        nalgebra::Complex::new(a[j][i], 0.0)
+            - if i == j {
+                z
+            } else {
+                nalgebra::Complex::new(0.0, 0.0)
+            }
+    };
+    let cross = |r: [nalgebra::Complex<f64>; 3], s: [nalgebra::Complex<f64>; 3]| {
+        [
+            r[1] * s[2] - r[2] * s[1],
+            r[2] * s[0] - r[0] * s[2],
+            r[0] * s[1] - r[1] * s[0],
+        ]
+    };
+    let rows: Vec<[nalgebra::Complex<f64>; 3]> =
+        (0..3).map(|i| [b(i, 0), b(i, 1), b(i, 2)]).collect();
+    // The pair of rows giving the largest cross product is the best conditioned.
+    [(0, 1), (0, 2), (1, 2)]
+        .iter()
+        .map(|&(i, j)| cross(rows[i], rows[j]))
+        .max_by(|p, q| {
+            let n = |v: &[nalgebra::Complex<f64>; 3]| v.iter().map(|c| c.norm_sqr()).sum::<f64>();
+            n(p).total_cmp(&n(q))
+        })
+        .unwrap()
+}
