@@ -254,4 +254,128 @@ pub enum Error {
     /// The operation needs a non-empty model.
     #[error("the model has no DOFs")]
     EmptyModel,
+    /// A matrix given to a solver for symmetric positive definite matrices is not positive
+    /// definite (numerically): a non-positive pivot or diagonal entry, a pivot lost to rounding, or
+    /// a search direction of non-positive curvature.
+    #[error(
+        "the matrix given to the {solver} solver is not symmetric positive definite{}{}; use the \
+         sparse LU solver for indefinite or unsymmetric matrices, or check the constraints (an \
+         unrestrained rigid-body mode makes a stiffness singular) and the step (a negative tangent \
+         needs a smaller step or a mass/damping term)",
+        row.map(|r| format!(" (detected at row {r})")).unwrap_or_default(),
+        value.map(|v| format!(" (pivot, diagonal or curvature {v:e})")).unwrap_or_default()
+    )]
+    NotPositiveDefinite {
+        /// The solver's name.
+        solver: &'static str,
+        /// The row (in the caller's numbering) at which it was detected, when one row is to blame.
+        row: Option<usize>,
+        /// The offending value (pivot, diagonal entry or curvature `p^T A p`), when known.
+        value: Option<f64>,
+    },
+    /// A matrix given to a solver for symmetric matrices is not symmetric.
+    #[error(
+        "the matrix given to the {solver} solver is not symmetric: entry ({row}, {col}) = \
+         {value:e} but ({col}, {row}) = {transposed:e}; use the sparse LU solver for unsymmetric \
+         matrices"
+    )]
+    NotSymmetric {
+        /// The solver's name.
+        solver: &'static str,
+        /// Row of the first offending entry.
+        row: usize,
+        /// Column of the first offending entry.
+        col: usize,
+        /// The value at `(row, col)`.
+        value: f64,
+        /// The value at `(col, row)`.
+        transposed: f64,
+    },
+    /// A matrix is singular, structurally or numerically, so the solution is not defined or has
+    /// no correct digits.
+    #[error(
+        "the matrix given to the {solver} solver is singular: {evidence}; check that every DOF is \
+         restrained (supports, constraints, mass) and that no row or column is empty"
+    )]
+    SingularMatrix {
+        /// The solver's name.
+        solver: &'static str,
+        /// How the singularity showed itself.
+        evidence: Singularity,
+    },
+    /// An iterative solver did not reach its tolerance within its iteration limit.
+    #[error(
+        "the iterative solver did not converge in {iterations} iterations (relative residual \
+         {relative_residual:e}); raise the iteration limit, loosen the tolerance, or use a direct \
+         solver (the matrix may be badly conditioned)"
+    )]
+    SolverNotConverged {
+        /// Iterations done.
+        iterations: usize,
+        /// Relative residual `||b - A x|| / ||b||` reached.
+        relative_residual: f64,
+    },
+    /// A solver's methods were called out of order.
+    #[error(
+        "the {solver} solver is not ready: call `{missing}` first (analyze once per pattern, then \
+         factor for each new set of values, then solve_in_place; a failed factor must be repeated)"
+    )]
+    SolverNotReady {
+        /// The solver's name.
+        solver: &'static str,
+        /// The method that must be called (successfully) first.
+        missing: &'static str,
+    },
+    /// The sparse factorisation backend ran out of memory or of index range.
+    #[error(
+        "the {solver} solver could not factorise the matrix: {reason}; the factor does not fit, so \
+         use the conjugate-gradient solver or a smaller model"
+    )]
+    SolverOutOfResources {
+        /// The solver's name.
+        solver: &'static str,
+        /// What ran out ("out of memory", "index overflow").
+        reason: &'static str,
+    },
+}
+
+/// How a solver found a matrix singular (see [`Error::SingularMatrix`]).
+#[derive(Debug, Clone, Copy, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum Singularity {
+    /// The elimination found no candidate pivot: the pattern itself is singular.
+    #[error("no pivot is available for row {row} (structurally singular pattern)")]
+    NoPivot {
+        /// The row (in the caller's numbering) for which no pivot was found.
+        row: usize,
+    },
+    /// The solution has a non-finite entry: a pivot was exactly zero.
+    #[error("the solution is not finite at index {index} (a zero pivot)")]
+    NonFiniteSolution {
+        /// The first non-finite entry of the solution.
+        index: usize,
+    },
+    /// The lower bound `||A|| ||x|| / ||b||` (infinity norms) of the condition number exceeds
+    /// the limit above which the solution has no correct digits left.
+    #[error(
+        "the condition number is at least {lower_bound:e}, above the limit {limit:e} (numerically \
+         singular)"
+    )]
+    IllConditioned {
+        /// `||A||_inf ||x||_inf / ||b||_inf`, a lower bound of the condition number.
+        lower_bound: f64,
+        /// The limit that was exceeded.
+        limit: f64,
+    },
+    /// The computed solution does not satisfy the equations: `||b - A x||_2 / ||b||_2` is above
+    /// the limit (a singular system without solution).
+    #[error(
+        "the relative residual of the solution is {relative_residual:e}, above the limit {limit:e}"
+    )]
+    Residual {
+        /// `||b - A x||_2 / ||b||_2` reached.
+        relative_residual: f64,
+        /// The limit that was exceeded.
+        limit: f64,
+    },
 }

@@ -57,6 +57,11 @@ fn model(n: usize) -> LinearModel {
 
 // One test function so that no other test thread allocates while counting.
 #[test]
+fn steps_allocate_nothing() {
+    explicit_steps_allocate_nothing();
+    implicit_linear_steps_allocate_nothing();
+}
+
 fn explicit_steps_allocate_nothing() {
     for (n, treatment) in [
         (50, ForceVelocity::Lagged),
@@ -103,4 +108,43 @@ fn check(n: usize, treatment: ForceVelocity) {
             "n = {n}, {treatment:?}: {during} allocations in 50 steps"
         );
     }
+}
+
+/// The implicit linear path allocates nothing per step either (after the first step, which
+/// factors the matrix: faer sets up its matrix-product kernels on first use). Called from the one
+/// test function, so that no other test thread allocates while counting.
+fn implicit_linear_steps_allocate_nothing() {
+    use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
+    use tempora::linalg::SparseCholesky;
+    use tempora::params::AlphaParams;
+    let n = 2000;
+    let mut m = LinearModel::new(
+        &common::dense_band_mass(n),
+        &common::chain_stiffness(n, 1.0e4, true, false),
+    )
+    .unwrap()
+    .with_rayleigh(0.1, 1e-4)
+    .unwrap()
+    .with_constraints(
+        Constraints::new().prescribe_displacement(n - 1, TimeFunction::function(|t| 1e-3 * t)),
+    )
+    .unwrap();
+    let mut state = State::at_rest(n, 0.0);
+    let mut it = AlphaIntegrator::new(
+        &mut m,
+        &mut state,
+        AlphaParams::hht(-0.1).unwrap(),
+        Box::new(SparseCholesky::new()),
+        ImplicitOptions::default(),
+    )
+    .unwrap();
+    for _ in 0..3 {
+        it.step(&mut m, &mut state, 0.01).unwrap();
+    }
+    let before = ALLOCATIONS.load(Ordering::SeqCst);
+    for _ in 0..20 {
+        it.step(&mut m, &mut state, 0.01).unwrap();
+    }
+    let during = ALLOCATIONS.load(Ordering::SeqCst) - before;
+    assert_eq!(during, 0, "{during} allocations in 20 implicit steps");
 }

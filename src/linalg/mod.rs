@@ -7,13 +7,19 @@
 //! product, norm and energy is bit-identical for 1, 2 or any number of threads, and for the serial
 //! and the parallel path alike.
 
+mod cg;
+mod cholesky;
 mod csr;
+mod lu;
 mod reduce;
 mod solver;
 
+pub use cg::{CgOptions, ConjugateGradient};
+pub use cholesky::{PIVOT_LOSS_FACTOR, SparseCholesky};
 pub use csr::{CsrMatrix, spmv};
+pub use lu::{LU_RESIDUAL_LIMIT, SparseLu};
 pub use reduce::{GlobalReduce, Serial, dot, norm2};
-pub use solver::{LinearSolver, SolveInfo};
+pub use solver::{LinearSolver, SYMMETRY_TOLERANCE, SolveInfo};
 
 use rayon::prelude::*;
 

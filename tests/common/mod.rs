@@ -223,3 +223,15 @@ pub fn left_eigenvector(
         })
         .unwrap()
 }
+
+/// A consistent (tridiagonal) mass matrix of a chain of two-node bar elements with unit element
+/// mass: (1/6) [[2, 1], [1, 2]] per element, assembled.
+pub fn dense_band_mass(n: usize) -> CsMat<f64> {
+    let mut t = TriMat::new((n, n));
+    for e in 0..n - 1 {
+        for (i, j, v) in [(0, 0, 2.0), (0, 1, 1.0), (1, 0, 1.0), (1, 1, 2.0)] {
+            t.add_triplet(e + i, e + j, v / 6.0);
+        }
+    }
+    t.to_csr()
+}
