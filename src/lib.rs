@@ -61,6 +61,7 @@ pub mod linalg;
 pub mod model;
 pub mod params;
 pub mod run;
+mod setup;
 pub mod spectral;
 pub mod state;
 

@@ -4,13 +4,16 @@ use std::fmt;
 use std::sync::Arc;
 
 use crate::energy::EnergyLedger;
-use crate::error::{Error, ModelError, Result};
+use crate::error::{Error, Result};
 use crate::explicit::stable_step::{self, StableStep, StableStepOptions};
 use crate::linalg::{
     GlobalReduce, Parallelism, Serial, chunk_count, for_chunks_read, for_chunks2, sum_partials,
 };
 use crate::model::{Damping, Model, Motion};
 use crate::run::{Integrator, StepReport};
+use crate::setup::{
+    Setup, check_growth_limit, check_lumped_mass, constrained_start, model_err, setup,
+};
 use crate::state::{State, check_finite, check_len};
 
 /// How the integrator guards against a step above the stability limit.
@@ -188,10 +191,6 @@ impl fmt::Debug for CentralDifference {
     }
 }
 
-fn model_err(step: u64, t: f64) -> impl Fn(ModelError) -> Error {
-    move |source| Error::Model { step, t, source }
-}
-
 impl CentralDifference {
     /// Creates the integrator for `model` and starts the run from `state`: checks sizes, masses and
     /// constraints, applies the constraints to the state, computes the consistent initial
@@ -210,17 +209,7 @@ impl CentralDifference {
     ) -> Result<Self> {
         let mut cd = Self::prepare(model, state, options)?;
         // Work on a copy so that a failure leaves the caller's state untouched.
-        let mut s = state.clone();
-        for (dof, motion) in &cd.constraints {
-            match motion {
-                Motion::Fixed => s.v[*dof] = 0.0,
-                Motion::Displacement(g) => s.u[*dof] = g.value(s.t),
-                Motion::Velocity(h) => s.v[*dof] = h.value(s.t),
-            }
-            s.a[*dof] = 0.0;
-        }
-        check_finite("constrained initial displacement", &s.u)?;
-        check_finite("constrained initial velocity", &s.v)?;
+        let mut s = constrained_start(&cd.constraints, state)?;
         cd.u_next.copy_from_slice(&s.u);
         cd.v_half.copy_from_slice(&s.v);
         if cd.options.force_velocity == ForceVelocity::Predicted {
@@ -290,16 +279,8 @@ impl CentralDifference {
         state: &State,
         options: CentralDifferenceOptions,
     ) -> Result<Self> {
-        let n = model.dofs();
-        if n == 0 {
-            return Err(Error::EmptyModel);
-        }
-        check_len("state displacement", n, state.u.len())?;
-        check_len("state velocity", n, state.v.len())?;
-        check_len("state acceleration", n, state.a.len())?;
-        check_finite("time", &[state.t])?;
-        check_finite("displacement", &state.u)?;
-        check_finite("velocity", &state.v)?;
+        let setup = setup(model, state)?;
+        let n = setup.n;
         if let StableLimit::Given(dt) = options.stable_limit
             && !(dt.is_finite() && dt > 0.0)
         {
@@ -318,50 +299,21 @@ impl CentralDifference {
                 expected: "a positive, finite relative tolerance",
             });
         }
-        if options.growth_limit.is_nan() || options.growth_limit <= 0.0 {
-            return Err(Error::InvalidParameter {
-                name: "growth_limit",
-                value: options.growth_limit,
-                expected: "a positive factor (infinity disables the guard)",
-            });
-        }
+        check_growth_limit(options.growth_limit)?;
         let mut mass = vec![0.0; n];
         model.lumped_mass(&mut mass);
-        let mask = model.constraints().validate(n)?;
-        let mut inv_mass = vec![0.0; n];
-        for i in 0..n {
-            let m = mass[i];
-            let ok = if mask[i] {
-                m.is_finite() && m >= 0.0
-            } else {
-                m.is_finite() && m > 0.0
-            };
-            if !ok {
-                return Err(Error::NonPositiveMass { dof: i, value: m });
-            }
-            if !mask[i] {
-                inv_mass[i] = 1.0 / m;
-            }
-        }
-        let constraints: Vec<(usize, Motion)> = model
-            .constraints()
-            .as_slice()
+        check_lumped_mass(&mass, &setup.mask)?;
+        let inv_mass: Vec<f64> = mass
             .iter()
-            .map(|c| (c.dof, c.motion.clone()))
+            .zip(&setup.mask)
+            .map(|(m, fixed)| if *fixed { 0.0 } else { 1.0 / m })
             .collect();
-        let damping = model.damping();
-        if let Damping::Rayleigh { a0, a1 } = damping {
-            for (name, v) in [("a0", a0), ("a1", a1)] {
-                if !(v.is_finite() && v >= 0.0) {
-                    return Err(Error::InvalidParameter {
-                        name,
-                        value: v,
-                        expected: "a non-negative, finite Rayleigh coefficient",
-                    });
-                }
-            }
-        }
-        let names = model.extra_force_names();
+        let Setup {
+            constraints,
+            damping,
+            extra_names: names,
+            ..
+        } = setup;
         let k = names.len();
         let ledger = EnergyLedger::new(names, constraints.len());
         let chunks = chunk_count(n);

@@ -10,6 +10,9 @@ use crate::linalg::{CsrMatrix, GlobalReduce, LinearSolver, Parallelism, Serial};
 use crate::model::{Damping, Model, Motion};
 use crate::params::AlphaParams;
 use crate::run::{Integrator, StepReport};
+use crate::setup::{
+    Setup, check_growth_limit, check_lumped_mass, constrained_start, model_err, setup,
+};
 use crate::state::{State, check_finite, check_len};
 
 /// Settings of [`AlphaIntegrator`].
@@ -205,10 +208,6 @@ impl fmt::Debug for AlphaIntegrator {
     }
 }
 
-fn model_err(step: u64, t: f64) -> impl Fn(ModelError) -> Error {
-    move |source| Error::Model { step, t, source }
-}
-
 impl AlphaIntegrator {
     /// Creates the integrator and starts the run from `state`: checks the parameters, sizes,
     /// masses and constraints, applies the constraints to the state, computes the consistent
@@ -230,16 +229,7 @@ impl AlphaIntegrator {
         options: ImplicitOptions,
     ) -> Result<Self> {
         let mut it = Self::prepare(model, state, params, solver, options)?;
-        let mut s = state.clone();
-        for (dof, motion) in &it.constraints {
-            match motion {
-                Motion::Fixed => s.v[*dof] = 0.0,
-                Motion::Displacement(g) => s.u[*dof] = g.value(s.t),
-                Motion::Velocity(h) => s.v[*dof] = h.value(s.t),
-            }
-        }
-        check_finite("constrained initial displacement", &s.u)?;
-        check_finite("constrained initial velocity", &s.v)?;
+        let mut s = constrained_start(&it.constraints, state)?;
         it.forces_at(model, &s, s.step)?;
         // M a0 = f_ext - f_int - f_d - sum f_k on the free DOFs; a0 = 0 on constrained DOFs.
         let mut rhs = vec![0.0; it.n];
@@ -343,30 +333,14 @@ impl AlphaIntegrator {
     ) -> Result<Self> {
         params.validate_for_stepping()?;
         options.newton.validate()?;
-        if options.growth_limit.is_nan() || options.growth_limit <= 0.0 {
-            return Err(Error::InvalidParameter {
-                name: "growth_limit",
-                value: options.growth_limit,
-                expected: "a positive factor (infinity disables the guard)",
-            });
-        }
-        let n = model.dofs();
-        if n == 0 {
-            return Err(Error::EmptyModel);
-        }
-        check_len("state displacement", n, state.u.len())?;
-        check_len("state velocity", n, state.v.len())?;
-        check_len("state acceleration", n, state.a.len())?;
-        check_finite("time", &[state.t])?;
-        check_finite("displacement", &state.u)?;
-        check_finite("velocity", &state.v)?;
-        let mask = model.constraints().validate(n)?;
-        let constraints: Vec<(usize, Motion)> = model
-            .constraints()
-            .as_slice()
-            .iter()
-            .map(|c| (c.dof, c.motion.clone()))
-            .collect();
+        check_growth_limit(options.growth_limit)?;
+        let Setup {
+            n,
+            mask,
+            constraints,
+            damping,
+            extra_names: names,
+        } = setup(model, state)?;
         let mass = match model.mass_matrix() {
             Some(m) => {
                 check_len("mass matrix rows", n, m.nrows())?;
@@ -376,19 +350,7 @@ impl AlphaIntegrator {
             None => {
                 let mut m = vec![0.0; n];
                 model.lumped_mass(&mut m);
-                for i in 0..n {
-                    let ok = if mask[i] {
-                        m[i].is_finite() && m[i] >= 0.0
-                    } else {
-                        m[i].is_finite() && m[i] > 0.0
-                    };
-                    if !ok {
-                        return Err(Error::NonPositiveMass {
-                            dof: i,
-                            value: m[i],
-                        });
-                    }
-                }
+                check_lumped_mass(&m, &mask)?;
                 Mass::Lumped(m)
             }
         };
@@ -399,18 +361,6 @@ impl AlphaIntegrator {
         })?;
         check_len("tangent rows", n, k_t.nrows())?;
         check_len("tangent columns", n, k_t.ncols())?;
-        let damping = model.damping();
-        if let Damping::Rayleigh { a0, a1 } = damping {
-            for (name, v) in [("a0", a0), ("a1", a1)] {
-                if !(v.is_finite() && v >= 0.0) {
-                    return Err(Error::InvalidParameter {
-                        name,
-                        value: v,
-                        expected: "a non-negative, finite Rayleigh coefficient",
-                    });
-                }
-            }
-        }
         let c_matrix = match damping {
             Damping::Force => model.damping_matrix().cloned(),
             _ => None,
@@ -432,7 +382,6 @@ impl AlphaIntegrator {
             .map(|c| c.positions_in(&jac))
             .unwrap_or_default();
         let (con_zero, con_diag) = constrained_positions(&jac, &mask);
-        let names = model.extra_force_names();
         let k = names.len();
         let ledger = EnergyLedger::new(names, constraints.len());
         let linear = model.is_linear() && k == 0;

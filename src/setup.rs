@@ -1,0 +1,107 @@
+//! Checks and set-up shared by the integrators: the model and the starting state are validated
+//! the same way whichever scheme steps them.
+
+use crate::error::{Error, ModelError, Result};
+use crate::model::{Damping, Model, Motion};
+use crate::state::{State, check_finite, check_len};
+
+/// What every integrator needs to know about a model before its first step.
+pub(crate) struct Setup {
+    /// DOF count.
+    pub n: usize,
+    /// `true` at constrained DOFs.
+    pub mask: Vec<bool>,
+    /// The constrained DOFs and their motions, in the model's order.
+    pub constraints: Vec<(usize, Motion)>,
+    /// The model's damping (Rayleigh coefficients checked).
+    pub damping: Damping,
+    /// Names of the extra force contributions.
+    pub extra_names: Vec<String>,
+}
+
+/// Validates the model's size, constraints and damping and the state's sizes and values.
+pub(crate) fn setup<M: Model + ?Sized>(model: &M, state: &State) -> Result<Setup> {
+    let n = model.dofs();
+    if n == 0 {
+        return Err(Error::EmptyModel);
+    }
+    check_len("state displacement", n, state.u.len())?;
+    check_len("state velocity", n, state.v.len())?;
+    check_len("state acceleration", n, state.a.len())?;
+    check_finite("time", &[state.t])?;
+    check_finite("displacement", &state.u)?;
+    check_finite("velocity", &state.v)?;
+    let mask = model.constraints().validate(n)?;
+    let constraints = model
+        .constraints()
+        .as_slice()
+        .iter()
+        .map(|c| (c.dof, c.motion.clone()))
+        .collect();
+    let damping = model.damping();
+    if let Damping::Rayleigh { a0, a1 } = damping {
+        for (name, v) in [("a0", a0), ("a1", a1)] {
+            if !(v.is_finite() && v >= 0.0) {
+                return Err(Error::InvalidParameter {
+                    name,
+                    value: v,
+                    expected: "a non-negative, finite Rayleigh coefficient",
+                });
+            }
+        }
+    }
+    Ok(Setup {
+        n,
+        mask,
+        constraints,
+        damping,
+        extra_names: model.extra_force_names(),
+    })
+}
+
+/// Checks a lumped mass: positive and finite on free DOFs, non-negative and finite on
+/// constrained ones.
+pub(crate) fn check_lumped_mass(mass: &[f64], mask: &[bool]) -> Result<()> {
+    for (i, (&m, &fixed)) in mass.iter().zip(mask).enumerate() {
+        let ok = m.is_finite() && if fixed { m >= 0.0 } else { m > 0.0 };
+        if !ok {
+            return Err(Error::NonPositiveMass { dof: i, value: m });
+        }
+    }
+    Ok(())
+}
+
+/// Checks the growth-guard factor of the options.
+pub(crate) fn check_growth_limit(limit: f64) -> Result<()> {
+    if limit.is_nan() || limit <= 0.0 {
+        return Err(Error::InvalidParameter {
+            name: "growth_limit",
+            value: limit,
+            expected: "a positive factor (infinity disables the guard)",
+        });
+    }
+    Ok(())
+}
+
+/// A copy of `state` with the constraints applied at its time: `v = 0` at fixed DOFs, `u = g(t)`
+/// at prescribed-displacement DOFs, `v = h(t)` at prescribed-velocity DOFs, and `a = 0` at all of
+/// them.
+pub(crate) fn constrained_start(constraints: &[(usize, Motion)], state: &State) -> Result<State> {
+    let mut s = state.clone();
+    for (dof, motion) in constraints {
+        match motion {
+            Motion::Fixed => s.v[*dof] = 0.0,
+            Motion::Displacement(g) => s.u[*dof] = g.value(s.t),
+            Motion::Velocity(h) => s.v[*dof] = h.value(s.t),
+        }
+        s.a[*dof] = 0.0;
+    }
+    check_finite("constrained initial displacement", &s.u)?;
+    check_finite("constrained initial velocity", &s.v)?;
+    Ok(s)
+}
+
+/// Wraps a model failure with the step and time at which it happened.
+pub(crate) fn model_err(step: u64, t: f64) -> impl Fn(ModelError) -> Error {
+    move |source| Error::Model { step, t, source }
+}
