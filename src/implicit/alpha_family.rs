@@ -31,6 +31,12 @@ pub struct ImplicitOptions {
     /// Dyn.* 6), which is not an instability, while an unstable mode keeps setting new highs.
     /// Default 3.
     pub growth_patience: u32,
+    /// Linear path: refine each solution once with the residual of the assembled matrix (one
+    /// more evaluation and solve per step). A factor reused for many steps carries the same
+    /// rounding into every solve, which makes the trapezoidal rule drift in energy by about one
+    /// ulp per step (about 7e-12 relative over 10^4 steps at `omega dt = 5` with the sparse
+    /// Cholesky); one refinement makes the rounding vary from step to step again. Default: off.
+    pub refine_linear: bool,
     /// When matrix products run in parallel.
     pub parallel: Parallelism,
     /// Completes global sums (the seam for distributed runs). Default: [`Serial`].
@@ -43,6 +49,7 @@ impl Default for ImplicitOptions {
             newton: NewtonOptions::default(),
             growth_limit: 10.0,
             growth_patience: 3,
+            refine_linear: false,
             parallel: Parallelism::default(),
             reduce: Arc::new(Serial),
         }
@@ -55,6 +62,7 @@ impl fmt::Debug for ImplicitOptions {
             .field("newton", &self.newton)
             .field("growth_limit", &self.growth_limit)
             .field("growth_patience", &self.growth_patience)
+            .field("refine_linear", &self.refine_linear)
             .field("parallel", &self.parallel)
             .finish_non_exhaustive()
     }
@@ -684,7 +692,7 @@ impl AlphaIntegrator {
             let converged = if iterations == 0 {
                 r_norm == 0.0 || rel <= 1e-14
             } else if self.linear {
-                true
+                iterations > usize::from(self.options.refine_linear)
             } else {
                 let step_norm = self.diff_norm(state);
                 rel <= nopt.residual_tolerance
