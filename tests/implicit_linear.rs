@@ -37,7 +37,8 @@ fn average_acceleration_conserves_energy_and_has_the_trapezoidal_period() {
     use tempora::linalg::{LinearSolver, SparseCholesky};
     let (m, k) = (3.0f64, 27.0f64);
     let w = (k / m).sqrt();
-    let solvers: [(fn() -> Box<dyn LinearSolver>, bool); 2] = [
+    type MakeSolver = fn() -> Box<dyn LinearSolver>;
+    let solvers: [(MakeSolver, bool); 2] = [
         (common::DenseLu::boxed, false),
         (|| Box::new(SparseCholesky::new()), true),
     ];
