@@ -34,11 +34,13 @@ fn central_difference_limit_and_dispersion() {
     }
     assert_eq!(rho_inf(&s), None);
     assert_eq!(
-        order_of_accuracy(&Scheme::CentralDifference(ForceVelocity::Predicted)),
+        order_of_accuracy(&Scheme::CentralDifference(ForceVelocity::Predicted), 0.1),
         2
     );
-    // Lagged damping velocity: first order with damping (docs/explicit.md).
-    assert_eq!(order_of_accuracy(&s), 1);
+    // Lagged damping velocity: second order without damping, first order with it
+    // (docs/explicit.md).
+    assert_eq!(order_of_accuracy(&s, 0.0), 2);
+    assert_eq!(order_of_accuracy(&s, 0.1), 1);
 }
 
 /// Damped central difference: Omega_crit = 2 (sqrt(1 + xi^2) - xi) with the damping force at the
@@ -115,6 +117,11 @@ fn newmark_critical_omega_matches_the_closed_form() {
             "xi {xi}: {c} vs {closed}"
         );
     }
+    // Fox-Goodwin is fourth-order accurate without damping, second order with it (Hughes 1987,
+    // sec. 9.1: beta = 1/12 cancels the third-order period error).
+    let fg = alpha(AlphaParams::fox_goodwin());
+    assert_eq!(order_of_accuracy(&fg, 0.0), 4);
+    assert_eq!(order_of_accuracy(&fg, 0.1), 2);
     // gamma < 1/2 is unstable, gamma > 1/2 first order.
     let v = check(
         &alpha(AlphaParams::newmark(0.3, 0.4).unwrap()),
@@ -124,7 +131,7 @@ fn newmark_critical_omega_matches_the_closed_form() {
     .unwrap();
     assert_eq!(v.stability, Stability::Unstable);
     assert_eq!(
-        order_of_accuracy(&alpha(AlphaParams::newmark(0.3025, 0.6).unwrap())),
+        order_of_accuracy(&alpha(AlphaParams::newmark(0.3025, 0.6).unwrap()), 0.0),
         1
     );
 }

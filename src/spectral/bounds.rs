@@ -127,7 +127,7 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
     }
     let mut reasons = Vec::new();
     let rho_inf = rho_inf(scheme);
-    let order = order_of_accuracy(scheme);
+    let order = order_of_accuracy(scheme, xi);
     let closed = omega_crit_closed_form(scheme, xi);
     let stability = stability(scheme, xi, rho_inf, &mut reasons);
     if let (Stability::Conditional { omega_crit }, Some(c)) = (stability, closed) {
@@ -143,12 +143,12 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
         _ => format!(
             "order {order}: first-order accurate{}",
             match scheme {
-                Scheme::Alpha(p) if p.gamma > 0.5 && p.alpha_m == 0.0 && p.alpha_f == 0.0 =>
-                    " because gamma > 1/2 (Newmark 1959; Hughes 1987, sec. 9.1)",
+                Scheme::Alpha(p) if p.alpha_m == 0.0 && p.alpha_f == 0.0 =>
+                    " because gamma differs from 1/2 (Newmark 1959; Hughes 1987, sec. 9.1)",
                 Scheme::Alpha(_) =>
-                    " (gamma differs from 1/2 - alpha_m + alpha_f; Chung & Hulbert 1993, eq. 17)",
+                    " because gamma differs from 1/2 - alpha_m + alpha_f (Chung & Hulbert 1993, eq. 17)",
                 Scheme::CentralDifference(ForceVelocity::Lagged) =>
-                    " with damping, because the damping force takes the lagged half-step velocity",
+                    " with damping, because the damping force takes the lagged half-step velocity (second order without damping)",
                 Scheme::CentralDifference(ForceVelocity::Predicted) => "",
             }
         ),
@@ -157,6 +157,9 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
     reasons.push(match rho_inf {
         Some(r) if dissipative => format!(
             "dissipative at high frequency: rho_inf = {r:.12} < 1 (from the limit of the amplification matrix)"
+        ),
+        Some(r) if r > 1.0 + INSTABILITY_MARGIN => format!(
+            "the high frequencies are amplified: rho_inf = {r:.12} > 1 (from the limit of the amplification matrix)"
         ),
         Some(r) => format!("no high-frequency dissipation: rho_inf = {r:.12}"),
         None => "explicit: the spectral radius grows without bound as Omega grows".to_string(),

@@ -24,9 +24,13 @@ pub fn log_space(lo: f64, hi: f64, points: usize) -> Vec<f64> {
         1 => vec![lo],
         _ => {
             let (a, b) = (lo.ln(), hi.ln());
-            (0..points)
+            let mut v: Vec<f64> = (0..points)
                 .map(|i| (a + (b - a) * i as f64 / (points - 1) as f64).exp())
-                .collect()
+                .collect();
+            // The end points exactly as given (exp(ln x) may differ from x in the last bit).
+            v[0] = lo;
+            v[points - 1] = hi;
+            v
         }
     }
 }

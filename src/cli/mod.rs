@@ -1,0 +1,225 @@
+//! The command line: argument definitions (clap), dispatch, exit statuses and one-line errors.
+//!
+//! The library knows nothing of this module; everything here turns options into library calls
+//! ([`tempora::spectral`], [`tempora::params`]) and their results into text, JSON, CSV or SVG.
+
+mod check;
+mod demo;
+mod output;
+mod plot;
+mod scheme_args;
+mod spectrum;
+
+use std::process::ExitCode;
+
+use clap::error::ErrorKind;
+use clap::{Parser, Subcommand};
+
+/// Success; for `check`, a stable verdict.
+pub const EXIT_OK: u8 = 0;
+/// A demonstration check failed, or a file or standard output could not be written.
+pub const EXIT_FAILURE: u8 = 1;
+/// Bad arguments: unknown or conflicting options, missing values, values out of range.
+pub const EXIT_USAGE: u8 = 2;
+/// `check`: conditionally stable and the requested step exceeds the stable limit.
+pub const EXIT_STEP_TOO_LARGE: u8 = 3;
+/// `check`: unstable for every step.
+pub const EXIT_UNSTABLE: u8 = 4;
+
+const LONG_ABOUT: &str = "\
+tempora: time integration for structural dynamics.
+
+With no arguments, tempora runs its built-in demonstration (the explicit central-difference
+engine on problems with known answers). The subcommands judge a time-integration parameter set
+before a run, from the amplification matrix of one mode with circular frequency omega, step dt
+and physical damping ratio xi, as a function of Omega = omega dt:
+
+  check     stability verdict (unconditional, conditional with its critical Omega, unstable),
+            high-frequency spectral radius rho_inf, order of accuracy, step limits for a model,
+            and the reasons, each citing the bound or computation it rests on.
+  spectrum  spectral radius, algorithmic damping ratio and relative period error against Omega,
+            as a table, JSON, CSV or an SVG figure.
+
+Results feed decisions that can be safety-relevant: have them checked by a qualified engineer.";
+
+const AFTER_HELP: &str = "\
+Examples:
+  tempora                                       run the demonstration
+  tempora check --scheme hht --alpha -0.1       verdict on HHT-alpha with alpha = -0.1
+  tempora check --scheme central-difference --max-frequency 2000 --dt 0.0012
+  tempora spectrum --scheme generalized-alpha --rho-inf 0.8 --points 5
+  tempora spectrum --standard-sets --plot sets.svg
+
+Exit status:
+  0  success; for check: stable (unconditionally, or conditionally with no step given or the
+     step given within the stable limit)
+  1  a demonstration check failed, or a file or standard output could not be written
+  2  bad arguments: unknown scheme or option, conflicting or missing options, values out of
+     range or not numbers (one line on standard error)
+  3  check: conditionally stable, and --dt exceeds the stable limit for --max-frequency
+  4  check: unstable for every step
+
+Run `tempora check --help` or `tempora spectrum --help` for the options; docs/cli.md has a
+session with real output.";
+
+/// The `tempora` command line.
+#[derive(Debug, Parser)]
+#[command(
+    name = "tempora",
+    version,
+    about = "Time integration for structural dynamics: demonstration, stability check and spectra",
+    long_about = LONG_ABOUT,
+    after_help = AFTER_HELP,
+)]
+pub struct Cli {
+    /// What to do (nothing: run the demonstration).
+    #[command(subcommand)]
+    pub command: Option<Command>,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Judge one parameter set: stability, critical Omega, rho_inf, order, step limits, reasons.
+    #[command(long_about = check::LONG_ABOUT, after_help = check::AFTER_HELP)]
+    Check(check::CheckArgs),
+    /// Spectral radius, damping ratio and period error against Omega = omega dt.
+    #[command(long_about = spectrum::LONG_ABOUT, after_help = spectrum::AFTER_HELP)]
+    Spectrum(spectrum::SpectrumArgs),
+    /// Run the built-in demonstration (the same as `tempora` with no arguments).
+    Demo,
+}
+
+/// A failure of a subcommand, with the exit status it maps to.
+#[derive(Debug)]
+pub enum Failure {
+    /// Bad arguments (exit status 2).
+    Usage(String),
+    /// Anything else that went wrong, e.g. a file that could not be written (exit status 1).
+    Runtime(String),
+}
+
+impl Failure {
+    fn report(&self) -> ExitCode {
+        let (msg, code) = match self {
+            Failure::Usage(m) => (m, EXIT_USAGE),
+            Failure::Runtime(m) => (m, EXIT_FAILURE),
+        };
+        eprintln!("tempora: {}", one_line(msg));
+        ExitCode::from(code)
+    }
+}
+
+impl From<tempora::Error> for Failure {
+    /// Parameter errors of the library come from the user's options: bad arguments.
+    ///
+    /// A parameter the command line sets through an option is named by that option
+    /// (`omega_max` is `--max-frequency`); other messages are the library's own.
+    fn from(e: tempora::Error) -> Self {
+        match e {
+            tempora::Error::InvalidParameter {
+                name,
+                value,
+                expected,
+            } => match option_of(name) {
+                Some(option) => {
+                    Failure::Usage(format!("{option} = {value} is not valid: {expected}"))
+                }
+                None => Failure::Usage(e.to_string()),
+            },
+            tempora::Error::InvalidStep { .. } => Failure::Usage(e.to_string()),
+            other => Failure::Runtime(other.to_string()),
+        }
+    }
+}
+
+/// The command-line option that sets the library parameter `name`.
+fn option_of(name: &str) -> Option<&'static str> {
+    Some(match name {
+        "beta" => "--beta",
+        "gamma" => "--gamma",
+        "alpha" => "--alpha",
+        "alpha_m" => "--alpha-m",
+        "alpha_f" => "--alpha-f",
+        "rho_inf" => "--rho-inf",
+        "xi" => "--xi",
+        "omega_max" => "--max-frequency",
+        "dt" => "--dt",
+        "omega_interest" | "omega" => "--frequency-of-interest",
+        "period_error_target" | "target" => "--period-error",
+        _ => return None,
+    })
+}
+
+/// Parses the command line and runs it; every error is one line on standard error.
+pub fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => return clap_failure(&e),
+    };
+    match cli.command {
+        None | Some(Command::Demo) => run_demo(),
+        Some(Command::Check(args)) => match check::run(&args) {
+            Ok(code) => ExitCode::from(code),
+            Err(f) => f.report(),
+        },
+        Some(Command::Spectrum(args)) => match spectrum::run(&args) {
+            Ok(()) => ExitCode::from(EXIT_OK),
+            Err(f) => f.report(),
+        },
+    }
+}
+
+fn run_demo() -> ExitCode {
+    match demo::demo() {
+        Ok(true) => ExitCode::from(EXIT_OK),
+        Ok(false) => ExitCode::from(EXIT_FAILURE),
+        Err(e) => {
+            eprintln!("tempora: {e}");
+            ExitCode::from(EXIT_FAILURE)
+        }
+    }
+}
+
+/// Help and version go to standard output as clap renders them; every other parse error becomes
+/// one line on standard error with exit status 2.
+fn clap_failure(e: &clap::Error) -> ExitCode {
+    match e.kind() {
+        ErrorKind::DisplayHelp | ErrorKind::DisplayVersion => {
+            // Printing help can only fail on a closed pipe; nothing useful to add then.
+            let _ = e.print();
+            ExitCode::from(EXIT_OK)
+        }
+        _ => {
+            let text = e.render().to_string();
+            let mut msg = String::new();
+            for line in text.lines() {
+                let line = line.trim();
+                if line.starts_with("Usage:") || line.starts_with("For more information") {
+                    break;
+                }
+                if line.is_empty() {
+                    continue;
+                }
+                let line = line.strip_prefix("error: ").unwrap_or(line);
+                if !msg.is_empty() {
+                    // Continuation lines (lists, possible values) join with a space, new
+                    // statements (tips) with a semicolon.
+                    let continues = msg.ends_with(':') || line.starts_with('[');
+                    msg.push_str(if continues { " " } else { "; " });
+                }
+                msg.push_str(line);
+            }
+            eprintln!(
+                "tempora: {} (see --help)",
+                one_line(&msg).trim_end_matches('.')
+            );
+            ExitCode::from(EXIT_USAGE)
+        }
+    }
+}
+
+/// Folds a message onto one line.
+fn one_line(msg: &str) -> String {
+    msg.split_whitespace().collect::<Vec<_>>().join(" ")
+}
