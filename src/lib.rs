@@ -15,6 +15,8 @@
 //!   [stable step](explicit::stable_step).
 //! - [`energy`]: the energy ledger that guards a run.
 //! - [`run`]: the time loop, with step control, recording and a progress callback.
+//! - [`reference`](mod@reference): reference problems with exact solutions, for tests, benchmarks
+//!   and comparisons.
 //!
 //! ## Example
 //!
@@ -60,6 +62,7 @@ pub mod implicit;
 pub mod linalg;
 pub mod model;
 pub mod params;
+pub mod reference;
 pub mod run;
 mod setup;
 pub mod spectral;

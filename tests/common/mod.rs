@@ -95,98 +95,17 @@ impl tempora::linalg::LinearSolver for DenseLu {
 }
 
 /// The hardening oscillator of `tests/data/duffing_reference.py`:
-/// `m u'' + c u' + k u + k3 u^3 = F0 sin(w t)`.
-pub struct Duffing {
-    pub m: f64,
-    pub c: f64,
-    pub k: f64,
-    pub k3: f64,
-    pub f0: f64,
-    pub w: f64,
-    pattern: tempora::linalg::CsrMatrix,
-    damping: tempora::linalg::CsrMatrix,
-}
+/// `m u'' + c u' + k u + k3 u^3 = F0 sin(w t)` (now part of the library's reference problems).
+#[allow(unused_imports)]
+pub use tempora::reference::Duffing;
 
-impl Duffing {
-    /// The parameters of the committed reference.
-    pub fn reference() -> Self {
-        Duffing {
-            m: 1.0,
-            c: 0.1,
-            k: 1.0,
-            k3: 5.0,
-            f0: 2.0,
-            w: 1.2,
-            pattern: tempora::linalg::CsrMatrix::from_diagonal(&[0.0]),
-            damping: tempora::linalg::CsrMatrix::from_diagonal(&[0.1]),
-        }
-    }
-}
-
-impl tempora::model::Model for Duffing {
-    fn dofs(&self) -> usize {
-        1
-    }
-    fn lumped_mass(&self, out: &mut [f64]) {
-        out[0] = self.m;
-    }
-    fn internal_force(
-        &mut self,
-        _t: f64,
-        u: &[f64],
-        _v: &[f64],
-        out: &mut [f64],
-    ) -> Result<(), tempora::ModelError> {
-        out[0] = self.k * u[0] + self.k3 * u[0].powi(3);
-        Ok(())
-    }
-    fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), tempora::ModelError> {
-        out[0] = self.f0 * (self.w * t).sin();
-        Ok(())
-    }
-    fn damping(&self) -> tempora::model::Damping {
-        tempora::model::Damping::Force
-    }
-    fn damping_force(
-        &mut self,
-        _t: f64,
-        _u: &[f64],
-        v: &[f64],
-        out: &mut [f64],
-    ) -> Result<(), tempora::ModelError> {
-        out[0] = self.c * v[0];
-        Ok(())
-    }
-    fn damping_matrix(&self) -> Option<&tempora::linalg::CsrMatrix> {
-        Some(&self.damping)
-    }
-    fn tangent_pattern(&self) -> Option<&tempora::linalg::CsrMatrix> {
-        Some(&self.pattern)
-    }
-    fn tangent_stiffness(
-        &mut self,
-        _t: f64,
-        u: &[f64],
-        _v: &[f64],
-        out: &mut tempora::linalg::CsrMatrix,
-    ) -> Result<(), tempora::ModelError> {
-        out.data_mut()[0] = self.k + 3.0 * self.k3 * u[0] * u[0];
-        Ok(())
-    }
-    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
-        Some(0.5 * self.k * u[0] * u[0] + 0.25 * self.k3 * u[0].powi(4))
-    }
-}
-
-/// The committed reference solution: rows of `(t, u, v)`.
+/// The committed reference solution: rows of `(t, u, v)` (the table compiled into
+/// `tempora::reference::Hardening`).
 pub fn duffing_reference() -> Vec<(f64, f64, f64)> {
-    let text = include_str!("../data/duffing_reference.csv");
-    text.lines()
-        .filter(|l| !l.starts_with('#') && !l.starts_with('t'))
-        .map(|l| {
-            let f: Vec<f64> = l.split(',').map(|x| x.parse().unwrap()).collect();
-            (f[0], f[1], f[2])
-        })
+    tempora::reference::Hardening::new()
+        .rows()
+        .iter()
+        .map(|r| (r[0], r[1], r[2]))
         .collect()
 }
 
