@@ -4,6 +4,8 @@
 //! data a user needs to act: what was wrong, where (DOF index, step, time, file line) and, in its
 //! message, what to do about it.
 
+use std::path::PathBuf;
+
 use crate::state::State;
 
 /// Convenient alias: `Result<T, tempora::Error>`.
@@ -336,6 +338,89 @@ pub enum Error {
         solver: &'static str,
         /// What ran out ("out of memory", "index overflow").
         reason: &'static str,
+    },
+    /// A file could not be opened, read, created, written, synced or renamed.
+    #[error(
+        "could not {action} `{}`: {source}; check that the path is right, that its directory \
+         exists and that you may read or write there",
+        path.display()
+    )]
+    Io {
+        /// What was being done ("read", "create a temporary file beside", ...).
+        action: &'static str,
+        /// The file concerned.
+        path: PathBuf,
+        /// The operating system's error.
+        #[source]
+        source: std::io::Error,
+    },
+    /// A Matrix Market file that does not follow the format (see [`crate::io::matrix_market`]).
+    #[error(
+        "{file}:{line}: not a valid Matrix Market file: {problem}; fix the file (format: \
+         header `%%MatrixMarket matrix coordinate real general|symmetric`, `%` comment lines, \
+         a size line `rows cols entries`, then one `row col value` line per entry, 1-based)"
+    )]
+    MatrixMarket {
+        /// The file's name.
+        file: String,
+        /// The 1-based line at which the problem was found (one past the last line when the file
+        /// ended too early).
+        line: usize,
+        /// What is wrong and what was expected.
+        problem: String,
+    },
+    /// A Matrix Market file of a kind tempora does not read: `array` format, `complex`, `pattern`,
+    /// `hermitian` or `skew-symmetric` matrices, or an object other than `matrix`.
+    #[error(
+        "{file}:1: Matrix Market `{qualifier}` files are not supported; tempora reads `matrix \
+         coordinate` files with `real` or `integer` values and `general` or `symmetric` \
+         symmetry: convert the matrix to one of those (for example expand it to a general real \
+         coordinate matrix)"
+    )]
+    MatrixMarketUnsupported {
+        /// The file's name.
+        file: String,
+        /// The header word that is not supported, as written in the file.
+        qualifier: String,
+    },
+    /// A CSV file (load table or initial conditions, see [`crate::io::csv`]) that does not follow
+    /// its format.
+    #[error("{file}:{line}: {problem}; fix the file")]
+    Csv {
+        /// The file's name.
+        file: String,
+        /// The 1-based line at which the problem was found (one past the last line when the file
+        /// ended too early).
+        line: usize,
+        /// What is wrong and what was expected.
+        problem: String,
+    },
+    /// A checkpoint file that is damaged, truncated or not a tempora checkpoint at all; nothing
+    /// of it was used.
+    #[error(
+        "checkpoint `{}` is corrupt or incomplete: {reason}; nothing was read from it. Resume \
+         from an earlier checkpoint or restart the run",
+        path.display()
+    )]
+    CheckpointCorrupt {
+        /// The file.
+        path: PathBuf,
+        /// What failed (magic, length, checksum, JSON).
+        reason: String,
+    },
+    /// An intact checkpoint written in a format version this build does not read.
+    #[error(
+        "checkpoint `{}` has format version {found}, but this build of tempora reads version \
+         {supported}; resume it with the tempora version that wrote it",
+        path.display()
+    )]
+    CheckpointVersion {
+        /// The file.
+        path: PathBuf,
+        /// The version found in the file.
+        found: u32,
+        /// The version this build reads and writes.
+        supported: u32,
     },
 }
 

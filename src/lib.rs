@@ -15,6 +15,8 @@
 //!   [stable step](explicit::stable_step).
 //! - [`energy`]: the energy ledger that guards a run.
 //! - [`run`]: the time loop, with step control, recording and a progress callback.
+//! - [`io`]: Matrix Market matrices, CSV load tables and initial conditions, CSV histories and
+//!   checksummed checkpoints, all written atomically.
 //! - [`reference`](mod@reference): reference problems with exact solutions, for tests, benchmarks
 //!   and comparisons.
 //!
@@ -59,6 +61,7 @@ pub mod energy;
 pub mod error;
 pub mod explicit;
 pub mod implicit;
+pub mod io;
 pub mod linalg;
 pub mod model;
 pub mod params;
