@@ -711,10 +711,11 @@ fn help_documents_exit_statuses_and_examples() {
     }
 }
 
-/// No arguments still runs the demonstration, and it passes.
+/// `tempora demo` runs the demonstration, and it passes (no arguments now writes the report:
+/// tests/cli_report.rs).
 #[test]
-fn no_arguments_runs_the_demonstration() {
-    let r = tempora(&[]);
+fn demo_runs_the_demonstration() {
+    let r = tempora(&["demo"]);
     assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
     assert!(r.stdout.starts_with("tempora demonstration"));
     assert!(r.stdout.contains("all demonstration checks passed"));

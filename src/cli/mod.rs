@@ -4,9 +4,11 @@
 //! ([`tempora::spectral`], [`tempora::params`]) and their results into text, JSON, CSV or SVG.
 
 mod check;
+mod compare;
 mod demo;
 mod output;
 mod plot;
+mod report;
 mod scheme_args;
 mod spectrum;
 
@@ -29,10 +31,11 @@ pub const EXIT_UNSTABLE: u8 = 4;
 const LONG_ABOUT: &str = "\
 tempora: time integration for structural dynamics.
 
-With no arguments, tempora runs its built-in demonstration (the explicit central-difference
-engine on problems with known answers). The subcommands judge a time-integration parameter set
-before a run, from the amplification matrix of one mode with circular frequency omega, step dt
-and physical damping ratio xi, as a function of Omega = omega dt:
+With no arguments, tempora writes its report (tempora report: tempora-report/report.html).
+`tempora demo` runs the demonstration; `tempora compare` runs schemes on the reference problems
+against their exact solutions. The subcommands check and spectrum judge a time-integration
+parameter set before a run, from the amplification matrix of one mode with circular frequency
+omega, step dt and physical damping ratio xi, as a function of Omega = omega dt:
 
   check     stability verdict (unconditional, conditional with its critical Omega, unstable),
             high-frequency spectral radius rho_inf, order of accuracy, step limits for a model,
@@ -44,7 +47,8 @@ Results feed decisions that can be safety-relevant: have them checked by a quali
 
 const AFTER_HELP: &str = "\
 Examples:
-  tempora                                       run the demonstration
+  tempora                                       write tempora-report/report.html
+  tempora compare --standard-sets --problem two-dof-step
   tempora check --scheme hht --alpha -0.1       verdict on HHT-alpha with alpha = -0.1
   tempora check --scheme central-difference --max-frequency 2000 --dt 0.0012
   tempora spectrum --scheme generalized-alpha --rho-inf 0.8 --points 5
@@ -53,7 +57,7 @@ Examples:
 Exit status:
   0  success; for check: stable (unconditionally, or conditionally with no step given or the
      step given within the stable limit)
-  1  a demonstration check failed, or a file or standard output could not be written
+  1  a demonstration or report check failed, or a file or standard output could not be written
   2  bad arguments: unknown scheme or option, conflicting or missing options, values out of
      range or not numbers (one line on standard error)
   3  check: conditionally stable, and --dt exceeds the stable limit for --max-frequency
@@ -72,7 +76,7 @@ session with real output.";
     after_help = AFTER_HELP,
 )]
 pub struct Cli {
-    /// What to do (nothing: run the demonstration).
+    /// What to do (nothing: write the report).
     #[command(subcommand)]
     pub command: Option<Command>,
 }
@@ -86,8 +90,14 @@ pub enum Command {
     /// Spectral radius, damping ratio and period error against Omega = omega dt.
     #[command(long_about = spectrum::LONG_ABOUT, after_help = spectrum::AFTER_HELP)]
     Spectrum(spectrum::SpectrumArgs),
-    /// Run the built-in demonstration (the same as `tempora` with no arguments).
+    /// Run the built-in demonstration (the explicit engine on problems with known answers).
     Demo,
+    /// Schemes against the exact solutions of the reference problems over a sequence of steps.
+    #[command(long_about = compare::LONG_ABOUT, after_help = compare::AFTER_HELP)]
+    Compare(compare::CompareArgs),
+    /// Write the HTML report (the same as `tempora` with no arguments).
+    #[command(long_about = report::LONG_ABOUT)]
+    Report(report::ReportArgs),
 }
 
 /// A failure of a subcommand, with the exit status it maps to.
@@ -158,7 +168,16 @@ pub fn main() -> ExitCode {
         Err(e) => return clap_failure(&e),
     };
     match cli.command {
-        None | Some(Command::Demo) => run_demo(),
+        None => report::run_default(),
+        Some(Command::Demo) => run_demo(),
+        Some(Command::Compare(args)) => match compare::run(&args) {
+            Ok(()) => ExitCode::from(EXIT_OK),
+            Err(f) => f.report(),
+        },
+        Some(Command::Report(args)) => match report::run(&args) {
+            Ok(code) => ExitCode::from(code),
+            Err(f) => f.report(),
+        },
         Some(Command::Check(args)) => match check::run(&args) {
             Ok(code) => ExitCode::from(code),
             Err(f) => f.report(),

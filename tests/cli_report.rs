@@ -1,0 +1,259 @@
+//! `tempora report` (also `tempora` with no arguments) and `tempora compare`, run as a user runs
+//! them: arguments in, files, standard output, standard error and exit status out.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use serde_json::Value;
+
+struct Run {
+    code: i32,
+    stdout: String,
+    stderr: String,
+}
+
+fn tempora_in(dir: Option<&Path>, args: &[&str]) -> Run {
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_tempora"));
+    cmd.args(args);
+    if let Some(d) = dir {
+        cmd.current_dir(d);
+    }
+    let out = cmd.output().expect("the tempora binary runs");
+    Run {
+        code: out
+            .status
+            .code()
+            .expect("exit status (not killed by a signal)"),
+        stdout: String::from_utf8(out.stdout).expect("UTF-8 standard output"),
+        stderr: String::from_utf8(out.stderr).expect("UTF-8 standard error"),
+    }
+}
+
+fn tempora(args: &[&str]) -> Run {
+    tempora_in(None, args)
+}
+
+/// A fresh, empty scratch folder under the target directory.
+fn scratch(name: &str) -> PathBuf {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(format!("cli_report_{name}"));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+/// The report is self-contained: every section, inline SVG figures, no external resources.
+fn assert_report(html: &str) {
+    for heading in [
+        "<h1>tempora report</h1>",
+        "id=\"checks\"",
+        "Stability and accuracy of the standard parameter sets",
+        "Spectra of the standard parameter sets",
+        "Reference problems",
+        "Stable step of a demo structure",
+        "Demonstration",
+    ] {
+        assert!(
+            html.contains(heading),
+            "`{heading}` missing from the report"
+        );
+    }
+    // One spectra figure and one per reference problem (ten).
+    let figures = html.matches("<svg").count();
+    assert!(figures >= 11, "{figures} SVG figures");
+    let stripped = html.replace("http://www.w3.org/2000/svg", "");
+    assert!(
+        !stripped.contains("http"),
+        "an external address in the report"
+    );
+    assert!(
+        !html.contains("<script src"),
+        "an external script in the report"
+    );
+    assert!(!html.contains("FAILED"), "a failed check in the report");
+}
+
+/// `tempora report --output DIR` writes DIR/report.html, prints its path, exits 0.
+#[test]
+fn report_writes_a_self_contained_page() {
+    let dir = scratch("report");
+    let out = dir.join("out");
+    let r = tempora(&["report", "--output", out.to_str().unwrap()]);
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    let path = out.join("report.html");
+    assert!(r.stdout.contains(path.to_str().unwrap()), "{}", r.stdout);
+    assert!(r.stdout.contains("checks passed"), "{}", r.stdout);
+    assert_report(&std::fs::read_to_string(&path).unwrap());
+}
+
+/// `tempora` with no arguments writes tempora-report/report.html in the current folder.
+#[test]
+fn no_arguments_writes_the_report_in_the_current_folder() {
+    let dir = scratch("default");
+    let r = tempora_in(Some(&dir), &[]);
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    assert!(r.stderr.is_empty(), "{}", r.stderr);
+    assert!(
+        r.stdout.contains("tempora-report/report.html"),
+        "{}",
+        r.stdout
+    );
+    let html = std::fs::read_to_string(dir.join("tempora-report").join("report.html")).unwrap();
+    assert_report(&html);
+}
+
+fn compare_json(args: &[&str]) -> Value {
+    let mut all = vec!["compare", "--json"];
+    all.extend_from_slice(args);
+    let r = tempora(&all);
+    assert_eq!(r.code, 0, "{all:?}: {}", r.stderr);
+    assert!(r.stderr.is_empty(), "{all:?}: {}", r.stderr);
+    serde_json::from_str(&r.stdout).unwrap_or_else(|e| panic!("not JSON ({e}): {}", r.stdout))
+}
+
+/// The measured order at the finest pair of steps.
+fn finest_order(study: &Value) -> f64 {
+    let rows = study["rows"].as_array().unwrap();
+    rows.last().unwrap()["order"]
+        .as_f64()
+        .unwrap_or_else(|| panic!("no order: {study}"))
+}
+
+/// Average acceleration (the default scheme) shows second order on every smooth problem.
+#[test]
+fn compare_average_acceleration_is_second_order_on_smooth_problems() {
+    let v = compare_json(&[]);
+    let studies = v.as_array().unwrap();
+    assert_eq!(studies.len(), 10);
+    let mut smooth = 0;
+    for s in studies.iter().filter(|s| s["smooth"] == Value::Bool(true)) {
+        smooth += 1;
+        let o = finest_order(s);
+        assert!((o - 2.0).abs() <= 0.2, "{}: order {o}", s["problem"]);
+        let rows = s["rows"].as_array().unwrap();
+        assert_eq!(rows.len(), 5, "dt0 and four halvings");
+        let dts: Vec<f64> = rows.iter().map(|r| r["dt"].as_f64().unwrap()).collect();
+        assert!(dts.windows(2).all(|w| (w[0] / w[1] - 2.0).abs() < 1e-12));
+        assert!(rows.iter().all(|r| r["steps"].as_u64().unwrap() > 0));
+    }
+    assert!(smooth >= 6, "{smooth} smooth problems");
+}
+
+/// Central difference on the undamped free oscillator: second order, and the steps of a list
+/// above the stable limit 2 / omega are skipped.
+#[test]
+fn compare_central_difference_on_the_free_undamped_oscillator() {
+    let v = compare_json(&[
+        "--scheme",
+        "central-difference",
+        "--problem",
+        "sdof-free-undamped",
+    ]);
+    let s = &v.as_array().unwrap()[0];
+    assert_eq!(s["problem"], "sdof-free-undamped");
+    let o = finest_order(s);
+    assert!((o - 2.0).abs() <= 0.2, "order {o}");
+
+    // omega = 10 rad/s here: the stable limit 2 / omega is 0.2 s.
+    let v = compare_json(&[
+        "--scheme",
+        "central-difference",
+        "--problem",
+        "sdof-free-undamped",
+        "--dt",
+        "0.5,0.01,0.005",
+    ]);
+    let rows = v[0]["rows"].as_array().unwrap();
+    assert_eq!(rows.len(), 3);
+    assert!(rows[0]["skipped"].is_string(), "{}", rows[0]);
+    assert_eq!(rows[0]["steps"], 0);
+    assert!(rows[1]["max_error"].as_f64().unwrap() > 0.0);
+    let o = rows[2]["order"].as_f64().unwrap();
+    assert!((o - 2.0).abs() <= 0.2, "order {o}");
+}
+
+/// Text and CSV: one line per run, with a header.
+#[test]
+fn compare_text_and_csv() {
+    let r = tempora(&["compare", "--problem", "two-dof-step"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(r.stdout.starts_with("problem"));
+    assert_eq!(r.stdout.lines().count(), 6);
+    let r = tempora(&[
+        "compare",
+        "--csv",
+        "--standard-sets",
+        "--problem",
+        "two-dof-step",
+    ]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let lines: Vec<&str> = r.stdout.lines().collect();
+    assert!(lines[0].starts_with("problem,scheme,smooth,dt,steps,max_error,order"));
+    assert_eq!(lines.len(), 1 + 6 * 5);
+}
+
+/// `--plot DIR` writes one SVG figure per problem.
+#[test]
+fn compare_plot_writes_svg_files() {
+    let dir = scratch("plot");
+    let figs = dir.join("figs");
+    let r = tempora(&[
+        "compare",
+        "--standard-sets",
+        "--problem",
+        "sdof-free-damped",
+        "--problem",
+        "hardening",
+        "--plot",
+        figs.to_str().unwrap(),
+    ]);
+    // sdof-free-damped is not a name: the damped free problem is underdamped.
+    assert_eq!(r.code, 2);
+    let r = tempora(&[
+        "compare",
+        "--standard-sets",
+        "--problem",
+        "sdof-free-underdamped",
+        "--problem",
+        "hardening",
+        "--halvings",
+        "2",
+        "--plot",
+        figs.to_str().unwrap(),
+    ]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    for name in ["sdof-free-underdamped", "hardening"] {
+        let svg = std::fs::read_to_string(figs.join(format!("{name}.svg"))).unwrap();
+        assert!(svg.contains("<svg"), "{name}");
+        assert!(svg.trim_end().ends_with("</svg>"), "{name}");
+        assert!(svg.contains(name), "{name}: title");
+    }
+}
+
+/// Bad arguments: exit status 2 and one line on standard error.
+#[test]
+fn compare_bad_arguments_exit_2_with_one_line() {
+    for args in [
+        &["compare", "--problem", "no-such-problem"][..],
+        &["compare", "--dt", "0"],
+        &["compare", "--dt", "-0.01"],
+        &["compare", "--dt", "0.1,abc"],
+        &[
+            "compare",
+            "--standard-sets",
+            "--scheme",
+            "hht",
+            "--alpha",
+            "-0.1",
+        ],
+        &["compare", "--scheme", "hht"],
+        &["report", "--no-such-option"],
+    ] {
+        let r = tempora(args);
+        assert_eq!(r.code, 2, "{args:?}: {}{}", r.stdout, r.stderr);
+        assert_eq!(r.stderr.lines().count(), 1, "{args:?}: {}", r.stderr);
+        assert!(r.stderr.starts_with("tempora: "), "{args:?}: {}", r.stderr);
+        assert!(r.stdout.is_empty(), "{args:?}: {}", r.stdout);
+    }
+    let r = tempora(&["compare", "--problem", "no-such-problem"]);
+    assert!(r.stderr.contains("sdof-free-undamped"), "{}", r.stderr);
+}
