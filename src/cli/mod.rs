@@ -9,8 +9,10 @@ mod demo;
 mod output;
 mod plot;
 mod report;
+mod run;
 mod scheme_args;
 mod spectrum;
+mod timestep;
 
 use std::process::ExitCode;
 
@@ -19,7 +21,8 @@ use clap::{Parser, Subcommand};
 
 /// Success; for `check`, a stable verdict.
 pub const EXIT_OK: u8 = 0;
-/// A demonstration check failed, or a file or standard output could not be written.
+/// A demonstration or report check failed, a run failed mid-way, or a file or standard output
+/// could not be written.
 pub const EXIT_FAILURE: u8 = 1;
 /// Bad arguments: unknown or conflicting options, missing values, values out of range.
 pub const EXIT_USAGE: u8 = 2;
@@ -33,7 +36,9 @@ tempora: time integration for structural dynamics.
 
 With no arguments, tempora writes its report (tempora report: tempora-report/report.html).
 `tempora demo` runs the demonstration; `tempora compare` runs schemes on the reference problems
-against their exact solutions. The subcommands check and spectrum judge a time-integration
+against their exact solutions; `tempora run` integrates a model given as Matrix Market matrices
+and CSV loads, and `tempora timestep` gives its frequency range, stable step and accuracy step.
+The subcommands check and spectrum judge a time-integration
 parameter set before a run, from the amplification matrix of one mode with circular frequency
 omega, step dt and physical damping ratio xi, as a function of Omega = omega dt:
 
@@ -49,6 +54,8 @@ const AFTER_HELP: &str = "\
 Examples:
   tempora                                       write tempora-report/report.html
   tempora compare --standard-sets --problem two-dof-step
+  tempora timestep --mass M.mtx --stiffness K.mtx --frequency-of-interest 6.3
+  tempora run --mass M.mtx --stiffness K.mtx --load load.csv --dt 0.01 --t-end 5 --output u.csv
   tempora check --scheme hht --alpha -0.1       verdict on HHT-alpha with alpha = -0.1
   tempora check --scheme central-difference --max-frequency 2000 --dt 0.0012
   tempora spectrum --scheme generalized-alpha --rho-inf 0.8 --points 5
@@ -57,7 +64,8 @@ Examples:
 Exit status:
   0  success; for check: stable (unconditionally, or conditionally with no step given or the
      step given within the stable limit)
-  1  a demonstration or report check failed, or a file or standard output could not be written
+  1  a demonstration or report check failed, a run failed mid-way (what it had is written), or
+     a file or standard output could not be written
   2  bad arguments: unknown scheme or option, conflicting or missing options, values out of
      range or not numbers (one line on standard error)
   3  check: conditionally stable, and --dt exceeds the stable limit for --max-frequency
@@ -98,6 +106,12 @@ pub enum Command {
     /// Write the HTML report (the same as `tempora` with no arguments).
     #[command(long_about = report::LONG_ABOUT)]
     Report(report::ReportArgs),
+    /// Linear transient analysis of a model from Matrix Market and CSV files.
+    #[command(long_about = run::LONG_ABOUT, after_help = run::AFTER_HELP)]
+    Run(Box<run::RunArgs>),
+    /// Natural-frequency range, stable step and accuracy step of a model.
+    #[command(long_about = timestep::LONG_ABOUT, after_help = timestep::AFTER_HELP)]
+    Timestep(timestep::TimestepArgs),
 }
 
 /// A failure of a subcommand, with the exit status it maps to.
@@ -183,6 +197,15 @@ pub fn main() -> ExitCode {
             Err(f) => f.report(),
         },
         Some(Command::Spectrum(args)) => match spectrum::run(&args) {
+            Ok(()) => ExitCode::from(EXIT_OK),
+            Err(f) => f.report(),
+        },
+        Some(Command::Run(args)) => match run::run(&args) {
+            Ok(true) => ExitCode::from(EXIT_OK),
+            Ok(false) => ExitCode::from(EXIT_FAILURE),
+            Err(f) => f.report(),
+        },
+        Some(Command::Timestep(args)) => match timestep::run(&args) {
             Ok(()) => ExitCode::from(EXIT_OK),
             Err(f) => f.report(),
         },

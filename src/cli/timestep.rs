@@ -1,0 +1,349 @@
+//! `tempora timestep`: the frequency range of a model and the steps it allows.
+//!
+//! * `omega_max` comes from [`tempora::explicit::stable_step::estimate`] on the
+//!   [`LinearModel`]: the highest frequency of the lumped-mass model, the one the central
+//!   difference steps (Lanczos on `M_lumped^-1 K` over the free DOFs). For a diagonal mass it is
+//!   the model's highest frequency.
+//! * `omega_min` is the smallest eigenvalue of `M^-1 K` on the free DOFs with the mass matrix as
+//!   given: up to [`DENSE_LIMIT`] free DOFs by a dense symmetric eigen-solve (`L^-1 K L^-T` with
+//!   `M = L L^T`, nalgebra); above it by inverse iteration with a sparse Cholesky factor of `K`.
+//!   A singular `K` (rigid-body motion, a free-free model) gives `omega_min = 0` with a note.
+
+use std::path::PathBuf;
+
+use clap::Args;
+use nalgebra::DMatrix;
+use serde_json::json;
+use sprs::{CsMat, TriMat};
+use tempora::State;
+use tempora::explicit::stable_step::{StableStepOptions, critical_step, estimate};
+use tempora::linalg::{CsrMatrix, LinearSolver, SparseCholesky};
+use tempora::model::{Constraints, LinearModel};
+use tempora::spectral::largest_step_for_period_error;
+
+use super::Failure;
+use super::output::{print_stdout, table_num};
+use super::run::{parse_dofs, read_mk};
+use super::scheme_args::SchemeArgs;
+
+/// Largest number of free DOFs for the dense eigen-solve of `omega_min`.
+pub const DENSE_LIMIT: usize = 300;
+
+/// Long help of `tempora timestep`.
+pub const LONG_ABOUT: &str = "\
+The frequency range of a model and the time steps it allows, from its mass and stiffness
+matrices (Matrix Market files), with the DOFs of --fix removed:
+
+  omega_max, omega_min   the highest and lowest natural circular frequencies (rad/s; also Hz).
+                         omega_max is that of the lumped-mass model (what the central difference
+                         steps; Lanczos); omega_min is from M^-1 K with M as given (dense
+                         eigen-solve up to 300 free DOFs, inverse iteration with a sparse
+                         Cholesky factor of K above). A singular K (free-free model) gives
+                         omega_min = 0 with a note.
+  dt_stable              central-difference stable step 2/omega_max, undamped;
+  dt_stable_damped       the same with damping ratio --xi at omega_max:
+                         (2/omega_max)(sqrt(1 + xi^2) - xi);
+  dt_accuracy            with --frequency-of-interest (rad/s): the largest step for which the
+                         chosen scheme (the scheme options, default average acceleration) keeps
+                         the relative period error at that frequency under --period-error.";
+
+/// Examples of `tempora timestep`.
+pub const AFTER_HELP: &str = "\
+Examples:
+  tempora timestep --mass M.mtx --stiffness K.mtx --fix 0,49
+  tempora timestep --mass M.mtx --stiffness K.mtx --xi 0.05 --scheme hht --alpha -0.1 \\
+                   --frequency-of-interest 62.8 --json
+
+Exit status: 0 success; 1 standard output could not be written or an eigen-solve failed;
+2 bad arguments or input files (one line on standard error).";
+
+/// The options of `tempora timestep`.
+#[derive(Debug, Clone, Args)]
+pub struct TimestepArgs {
+    /// Mass matrix (Matrix Market coordinate file).
+    #[arg(long, value_name = "M.mtx")]
+    pub mass: PathBuf,
+    /// Stiffness matrix (Matrix Market coordinate file).
+    #[arg(long, value_name = "K.mtx")]
+    pub stiffness: PathBuf,
+    /// Fixed DOFs, comma-separated, 0-based.
+    #[arg(long, value_name = "LIST")]
+    pub fix: Option<String>,
+    #[command(flatten)]
+    pub scheme: SchemeArgs,
+    /// Circular frequency (rad/s, not Hz) whose period error bounds the accuracy step.
+    #[arg(long, value_name = "OMEGA", allow_negative_numbers = true)]
+    pub frequency_of_interest: Option<f64>,
+    /// Largest relative period error at --frequency-of-interest (0.01, i.e. 1 %, is common
+    /// practice).
+    #[arg(
+        long,
+        value_name = "E",
+        default_value_t = 0.01,
+        allow_negative_numbers = true
+    )]
+    pub period_error: f64,
+    /// Print JSON instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
+fn usage(e: tempora::Error) -> Failure {
+    match Failure::from(e) {
+        Failure::Runtime(m) | Failure::Usage(m) => Failure::Usage(m),
+    }
+}
+
+/// The submatrix of `a` on the rows and columns with `index[i] = Some(new)`.
+fn restrict(a: &CsMat<f64>, index: &[Option<usize>], nf: usize) -> CsMat<f64> {
+    let mut t = TriMat::new((nf, nf));
+    for (&v, (i, j)) in a.iter() {
+        if let (Some(p), Some(q)) = (index[i], index[j]) {
+            t.add_triplet(p, q, v);
+        }
+    }
+    t.to_csr()
+}
+
+fn matvec(a: &CsMat<f64>, x: &[f64], y: &mut [f64]) {
+    y.fill(0.0);
+    for (i, row) in a.outer_iterator().enumerate() {
+        y[i] = row.iter().map(|(j, v)| v * x[j]).sum();
+    }
+}
+
+/// The smallest eigenvalue of `M^-1 K`, with how it was found and notes.
+struct LambdaMin {
+    lambda: f64,
+    method: &'static str,
+    note: Option<String>,
+}
+
+fn lambda_min_dense(m: &CsMat<f64>, k: &CsMat<f64>) -> Result<LambdaMin, Failure> {
+    let n = m.rows();
+    let dense = |a: &CsMat<f64>| {
+        let mut d = DMatrix::<f64>::zeros(n, n);
+        for (&v, (i, j)) in a.iter() {
+            d[(i, j)] += v;
+        }
+        d
+    };
+    let (md, kd) = (dense(m), dense(k));
+    let chol = md.clone().cholesky().ok_or_else(|| {
+        Failure::Usage(
+            "the mass matrix (on the free DOFs) is not positive definite: every free DOF needs \
+             mass"
+                .to_string(),
+        )
+    })?;
+    let l = chol.l();
+    let linv = l
+        .clone()
+        .try_inverse()
+        .ok_or_else(|| Failure::Runtime("the mass factor is singular".to_string()))?;
+    let a = &linv * kd * linv.transpose();
+    let a = (&a + a.transpose()) * 0.5;
+    let eig = a.symmetric_eigenvalues();
+    let (lo, hi) = eig.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), &x| {
+        (lo.min(x), hi.max(x.abs()))
+    });
+    finish(lo, hi, "dense symmetric eigen-solve (nalgebra)")
+}
+
+fn finish(lo: f64, hi: f64, method: &'static str) -> Result<LambdaMin, Failure> {
+    if lo <= 1e-10 * hi {
+        let note = if lo < -1e-8 * hi {
+            format!(
+                "K has a negative eigenvalue ({lo:e}): the model is not stable statically; \
+                 omega_min is reported as 0"
+            )
+        } else {
+            "K is singular on the free DOFs (rigid-body motion, a free-free model): omega_min \
+             is 0; fix DOFs with --fix to remove it"
+                .to_string()
+        };
+        return Ok(LambdaMin {
+            lambda: 0.0,
+            method,
+            note: Some(note),
+        });
+    }
+    Ok(LambdaMin {
+        lambda: lo,
+        method,
+        note: None,
+    })
+}
+
+fn lambda_min_inverse_iteration(m: &CsMat<f64>, k: &CsMat<f64>) -> Result<LambdaMin, Failure> {
+    const METHOD: &str = "inverse iteration with a sparse Cholesky factor of K";
+    let n = m.rows();
+    let kc = CsrMatrix::from_sprs("stiffness", k).map_err(usage)?;
+    let mut chol = SparseCholesky::new();
+    chol.analyze(&kc).map_err(usage)?;
+    if let Err(e) = chol.factor(&kc) {
+        return match e {
+            tempora::Error::NotPositiveDefinite { .. } => finish(0.0, 1.0, METHOD),
+            other => Err(usage(other)),
+        };
+    }
+    let mut x: Vec<f64> = (0..n).map(|i| 1.0 + 0.3 * (i as f64 * 0.7).sin()).collect();
+    let mut mx = vec![0.0; n];
+    let mut my = vec![0.0; n];
+    let mut prev = f64::INFINITY;
+    for it in 0..10_000 {
+        matvec(m, &x, &mut mx);
+        let mut y = mx.clone();
+        chol.solve_in_place(&mut y)
+            .map_err(|e| Failure::Runtime(e.to_string()))?;
+        matvec(m, &y, &mut my);
+        // Rayleigh quotient y^T K y / y^T M y with K y = M x.
+        let ymx: f64 = y.iter().zip(&mx).map(|(a, b)| a * b).sum();
+        let ymy: f64 = y.iter().zip(&my).map(|(a, b)| a * b).sum();
+        let rq = ymx / ymy;
+        let norm = ymy.sqrt();
+        for (xi, yi) in x.iter_mut().zip(&y) {
+            *xi = yi / norm;
+        }
+        if it > 2 && (rq - prev).abs() <= 1e-13 * rq {
+            return finish(rq, rq, METHOD);
+        }
+        prev = rq;
+    }
+    Ok(LambdaMin {
+        lambda: prev,
+        method: METHOD,
+        note: Some(
+            "inverse iteration did not converge to 1e-13 in 10000 iterations (close lowest \
+             frequencies): omega_min is approximate"
+                .to_string(),
+        ),
+    })
+}
+
+/// Runs `tempora timestep`.
+pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
+    let scheme = args.scheme.resolve()?;
+    let xi = args.scheme.xi()?;
+    let (m, k) = read_mk(&args.mass, &args.stiffness)?;
+    let n = m.rows();
+    let fixed = match &args.fix {
+        Some(s) => parse_dofs("--fix", s, n)?,
+        None => Vec::new(),
+    };
+    let mut model = LinearModel::new(&m, &k).map_err(usage)?;
+    let mut c = Constraints::new();
+    for &d in &fixed {
+        c = c.fix(d);
+    }
+    model = model
+        .with_constraints(c)
+        .map_err(|e| Failure::Usage(format!("--fix: {e}")))?;
+    let state = State::at_rest(n, 0.0);
+    let options = StableStepOptions {
+        prefer_elements: false,
+        ..StableStepOptions::default()
+    };
+    let stable = estimate(&mut model, &state, &options).map_err(usage)?;
+    let omega_max = stable.omega_max.ok_or_else(|| {
+        Failure::Runtime("the highest frequency could not be estimated".to_string())
+    })?;
+    let dt_stable = critical_step(omega_max, 0.0).ok();
+    let dt_stable_damped = critical_step(omega_max, xi).ok();
+
+    // omega_min on the free DOFs.
+    let mut index = vec![None; n];
+    let mut nf = 0;
+    for (i, slot) in index.iter_mut().enumerate() {
+        if !fixed.contains(&i) {
+            *slot = Some(nf);
+            nf += 1;
+        }
+    }
+    if nf == 0 {
+        return Err(Failure::Usage(
+            "--fix fixes every DOF: no free DOF is left".to_string(),
+        ));
+    }
+    let (mf, kf) = (restrict(&m, &index, nf), restrict(&k, &index, nf));
+    let low = if nf <= DENSE_LIMIT {
+        lambda_min_dense(&mf, &kf)?
+    } else {
+        lambda_min_inverse_iteration(&mf, &kf)?
+    };
+    let omega_min = low.lambda.max(0.0).sqrt();
+
+    let dt_accuracy = match args.frequency_of_interest {
+        Some(w) => Some(
+            largest_step_for_period_error(&scheme.scheme, w, xi, args.period_error)
+                .map_err(Failure::from)?,
+        ),
+        None => {
+            if (args.period_error - 0.01).abs() > 0.0 {
+                return Err(Failure::Usage(
+                    "--period-error needs --frequency-of-interest (rad/s)".to_string(),
+                ));
+            }
+            None
+        }
+    };
+    let hz = |w: f64| w / (2.0 * std::f64::consts::PI);
+    if args.json {
+        let v = json!({
+            "omega_max": omega_max,
+            "omega_min": omega_min,
+            "f_max_hz": hz(omega_max),
+            "f_min_hz": hz(omega_min),
+            "dt_stable": dt_stable,
+            "dt_stable_damped": dt_stable_damped,
+            "xi": xi,
+            "dt_accuracy": dt_accuracy,
+            "scheme": scheme.label,
+            "frequency_of_interest": args.frequency_of_interest,
+            "period_error": args.frequency_of_interest.map(|_| args.period_error),
+            "free_dofs": nf,
+            "omega_min_method": low.method,
+            "note": low.note,
+        });
+        let text = serde_json::to_string_pretty(&v)
+            .map_err(|e| Failure::Runtime(format!("cannot encode JSON: {e}")))?;
+        return print_stdout(&format!("{text}\n"));
+    }
+    let mut out = String::new();
+    out.push_str(&format!("model: {n} DOFs, {nf} free\n"));
+    out.push_str(&format!(
+        "highest frequency  omega_max = {} rad/s  ({} Hz)  [lumped mass, Lanczos]\n",
+        table_num(Some(omega_max)),
+        table_num(Some(hz(omega_max)))
+    ));
+    out.push_str(&format!(
+        "lowest frequency   omega_min = {} rad/s  ({} Hz)  [{}]\n",
+        table_num(Some(omega_min)),
+        table_num(Some(hz(omega_min))),
+        low.method
+    ));
+    if let Some(note) = &low.note {
+        out.push_str(&format!("  note: {note}\n"));
+    }
+    out.push_str(&format!(
+        "central difference stable step  dt_stable = {}  (2/omega_max, undamped)\n",
+        table_num(dt_stable)
+    ));
+    out.push_str(&format!(
+        "                                damped    = {}  (xi = {xi} at omega_max)\n",
+        table_num(dt_stable_damped)
+    ));
+    match (args.frequency_of_interest, dt_accuracy) {
+        (Some(w), Some(dt)) => out.push_str(&format!(
+            "accuracy step  dt_accuracy = {}  ({}: period error <= {} at omega = {w} rad/s)\n",
+            table_num(Some(dt)),
+            scheme.label,
+            args.period_error
+        )),
+        _ => out.push_str(
+            "accuracy step: give --frequency-of-interest (rad/s) and a scheme for the largest \
+             step keeping the period error under --period-error (default 0.01)\n",
+        ),
+    }
+    print_stdout(&out)
+}
