@@ -19,6 +19,7 @@ use tempora::spectral::{CheckContext, Scheme, Stability, check};
 
 use super::Failure;
 use super::output::{FormatArgs, csv_field, csv_num, print_stdout, table_num, write_plot};
+use super::plot::COLOURS;
 use super::scheme_args::{Labelled, SchemeArgs, standard_sets};
 
 /// Long help of `tempora compare`.
@@ -466,18 +467,6 @@ fn csv(studies: &[Study]) -> String {
     }
     s
 }
-
-/// Line colours, one per scheme (cycled).
-const COLOURS: [RGBColor; 8] = [
-    RGBColor(31, 119, 180),
-    RGBColor(214, 39, 40),
-    RGBColor(44, 160, 44),
-    RGBColor(148, 103, 189),
-    RGBColor(255, 127, 14),
-    RGBColor(0, 0, 0),
-    RGBColor(140, 86, 75),
-    RGBColor(23, 190, 207),
-];
 
 /// Writes `DIR/<problem>.svg` for every problem.
 fn write_plots(

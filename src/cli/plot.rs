@@ -22,8 +22,8 @@ const WIDTH: u32 = 960;
 const PANEL_HEIGHT: u32 = 380;
 const TITLE_HEIGHT: u32 = 40;
 
-/// Line colours, one per scheme (cycled).
-const COLOURS: [RGBColor; 8] = [
+/// Line colours, one per scheme (cycled); shared by every figure.
+pub(crate) const COLOURS: [RGBColor; 8] = [
     RGBColor(31, 119, 180),
     RGBColor(214, 39, 40),
     RGBColor(44, 160, 44),
