@@ -70,6 +70,7 @@ pub mod run;
 mod setup;
 pub mod spectral;
 pub mod state;
+pub mod verification;
 
 pub use error::{Error, ModelError, Result};
 pub use state::State;

@@ -1,0 +1,8 @@
+//! Checks of kind [`Kind::CrossCheck`](super::Kind) (being written).
+
+use super::Check;
+
+/// The checks of this kind.
+pub(crate) fn checks() -> Vec<Check> {
+    Vec::new()
+}

@@ -1,0 +1,302 @@
+//! The verification suite: tempora's results against references nobody here wrote.
+//!
+//! Each [`Check`] compares one computed quantity with an outside reference (a published worked
+//! example, a closed form from a paper or textbook, an independent computation with SciPy whose
+//! output is committed under `tests/data/`, or a theoretical order of accuracy) and says which
+//! source it rests on, what tolerance it must meet, what it measured and whether it passed.
+//!
+//! [`run`] runs them all; `tempora verify` prints them and writes `docs/validation.md`
+//! (`tempora verify --markdown docs/validation.md`); the test suite runs them and fails on any
+//! that does not pass, and on a `docs/validation.md` that lists other checks than [`run`] makes.
+//!
+//! ```
+//! let checks = tempora::verification::run_kind(tempora::verification::Kind::ClosedForm);
+//! assert!(checks.iter().all(|c| c.passed), "{checks:#?}");
+//! ```
+
+mod closed_form;
+mod convergence;
+mod crosscheck;
+mod published;
+
+use std::fmt::Write as _;
+
+use serde::Serialize;
+
+/// What a check compares against.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Kind {
+    /// A worked example printed in a textbook or paper.
+    Published,
+    /// A closed-form result (stability limits, spectral radii, period errors, exact solutions).
+    ClosedForm,
+    /// An independent computation with a general-purpose library (SciPy), committed as data.
+    CrossCheck,
+    /// The measured order of accuracy against the theoretical one.
+    Convergence,
+}
+
+impl Kind {
+    /// Every kind, in the order of the report.
+    pub const ALL: [Kind; 4] = [
+        Kind::Published,
+        Kind::ClosedForm,
+        Kind::CrossCheck,
+        Kind::Convergence,
+    ];
+
+    /// The heading of the kind's table.
+    pub fn title(self) -> &'static str {
+        match self {
+            Kind::Published => "Published worked examples",
+            Kind::ClosedForm => "Closed-form results",
+            Kind::CrossCheck => "Cross-checks with SciPy",
+            Kind::Convergence => "Convergence orders",
+        }
+    }
+
+    /// The kind's name on the command line (`tempora verify --kind`).
+    pub fn name(self) -> &'static str {
+        match self {
+            Kind::Published => "published",
+            Kind::ClosedForm => "closed-form",
+            Kind::CrossCheck => "cross-check",
+            Kind::Convergence => "convergence",
+        }
+    }
+}
+
+/// One check: what is compared, with what, how closely, and how it came out.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Check {
+    /// A stable identifier, unique within [`run`] (for example `"published.chopra-5.3"`).
+    pub id: String,
+    /// What the check compares against.
+    pub kind: Kind,
+    /// What is computed and compared, in one sentence.
+    pub what: String,
+    /// The source of the reference: authors, year, title and where in it; "common practice" for
+    /// a fact of the trade with no single source; "(from memory)" when the value was recalled.
+    pub source: String,
+    /// The tolerance the result must meet, in words and numbers.
+    pub tolerance: String,
+    /// The measured result (for example the largest difference), formatted.
+    pub result: String,
+    /// Whether the result meets the tolerance.
+    pub passed: bool,
+    /// Anything a reader must know: a disagreement with a remembered value, a caveat.
+    pub note: Option<String>,
+}
+
+impl Check {
+    /// A check whose measure must not exceed `limit`: passes when `measured` is finite and
+    /// `measured <= limit`. `measured` and `limit` are shown in the result and tolerance
+    /// columns with three significant digits, followed by `unit` (empty for none).
+    #[allow(clippy::too_many_arguments)]
+    pub fn at_most(
+        id: impl Into<String>,
+        kind: Kind,
+        what: impl Into<String>,
+        source: impl Into<String>,
+        measure: &str,
+        measured: f64,
+        limit: f64,
+        unit: &str,
+    ) -> Check {
+        let unit = if unit.is_empty() {
+            String::new()
+        } else {
+            format!(" {unit}")
+        };
+        Check {
+            id: id.into(),
+            kind,
+            what: what.into(),
+            source: source.into(),
+            tolerance: format!("{measure} <= {}{unit}", sci(limit)),
+            result: format!("{measure} = {}{unit}", sci(measured)),
+            passed: measured.is_finite() && measured <= limit,
+            note: None,
+        }
+    }
+
+    /// A check whose measured value must lie within `tol` of `expected`.
+    #[allow(clippy::too_many_arguments)]
+    pub fn near(
+        id: impl Into<String>,
+        kind: Kind,
+        what: impl Into<String>,
+        source: impl Into<String>,
+        measure: &str,
+        measured: f64,
+        expected: f64,
+        tol: f64,
+    ) -> Check {
+        Check {
+            id: id.into(),
+            kind,
+            what: what.into(),
+            source: source.into(),
+            tolerance: format!("|{measure} - {}| <= {}", fixed(expected), sci(tol)),
+            result: format!("{measure} = {}", fixed(measured)),
+            passed: measured.is_finite() && (measured - expected).abs() <= tol,
+            note: None,
+        }
+    }
+
+    /// A check that could not be computed: it fails and says why in its result.
+    pub fn failed_to_run(
+        id: impl Into<String>,
+        kind: Kind,
+        what: impl Into<String>,
+        source: impl Into<String>,
+        why: impl std::fmt::Display,
+    ) -> Check {
+        Check {
+            id: id.into(),
+            kind,
+            what: what.into(),
+            source: source.into(),
+            tolerance: "-".to_string(),
+            result: format!("could not be computed: {why}"),
+            passed: false,
+            note: None,
+        }
+    }
+
+    /// The same check with a note.
+    pub fn with_note(mut self, note: impl Into<String>) -> Check {
+        self.note = Some(note.into());
+        self
+    }
+}
+
+/// A number with three significant digits in scientific notation (`1.23e-4`); `0` for zero.
+pub fn sci(x: f64) -> String {
+    if x == 0.0 {
+        "0".to_string()
+    } else if x.is_finite() {
+        format!("{x:.2e}")
+    } else {
+        format!("{x}")
+    }
+}
+
+/// A number with four decimals (`2.0013`).
+pub fn fixed(x: f64) -> String {
+    format!("{x:.4}")
+}
+
+/// Runs every check of the suite, kind by kind.
+pub fn run() -> Vec<Check> {
+    Kind::ALL.iter().flat_map(|&k| run_kind(k)).collect()
+}
+
+/// Runs the checks of one kind.
+pub fn run_kind(kind: Kind) -> Vec<Check> {
+    match kind {
+        Kind::Published => published::checks(),
+        Kind::ClosedForm => closed_form::checks(),
+        Kind::CrossCheck => crosscheck::checks(),
+        Kind::Convergence => convergence::checks(),
+    }
+}
+
+/// The command that regenerates `docs/validation.md`.
+pub const REGENERATE: &str = "cargo run --release -- verify --markdown docs/validation.md";
+
+/// `docs/validation.md`: an introduction, a summary and one table per kind, each row a check
+/// with its source, tolerance, result and status; notes follow the tables.
+pub fn markdown(checks: &[Check]) -> String {
+    let passed = checks.iter().filter(|c| c.passed).count();
+    let mut s = String::new();
+    let _ = writeln!(s, "# Validation\n");
+    let _ = writeln!(
+        s,
+        "Generated by `{REGENERATE}`; do not edit by hand. The test suite runs the same checks \
+         (`tests/verification.rs`) and fails when one does not pass or when this page lists \
+         other checks than the suite makes.\n"
+    );
+    let _ = writeln!(
+        s,
+        "Each check compares a result of tempora with a reference nobody here wrote: a \
+         published worked example, a closed form from a paper or textbook, an independent \
+         computation with SciPy committed under `tests/data/` (see `tests/data/MANIFEST.md`), \
+         or a theoretical order of accuracy. A value marked \"from memory\" was recalled, not \
+         read from the source; where it disagrees with two independent calculations, the note \
+         says so and the calculations are trusted.\n"
+    );
+    let _ = writeln!(s, "**{passed} of {} checks pass.**\n", checks.len());
+    let mut notes = Vec::new();
+    for kind in Kind::ALL {
+        let rows: Vec<&Check> = checks.iter().filter(|c| c.kind == kind).collect();
+        if rows.is_empty() {
+            continue;
+        }
+        let _ = writeln!(s, "## {}\n", kind.title());
+        let _ = writeln!(s, "| id | what | source | tolerance | result | status |");
+        let _ = writeln!(s, "|---|---|---|---|---|---|");
+        for c in rows {
+            let status = if c.passed { "pass" } else { "FAIL" };
+            let mut id = cell(&c.id);
+            if let Some(n) = &c.note {
+                notes.push((c.id.clone(), n.clone()));
+                id = format!("{id} [note {}]", notes.len());
+            }
+            let _ = writeln!(
+                s,
+                "| {id} | {} | {} | {} | {} | {status} |",
+                cell(&c.what),
+                cell(&c.source),
+                cell(&c.tolerance),
+                cell(&c.result)
+            );
+        }
+        let _ = writeln!(s);
+    }
+    if !notes.is_empty() {
+        let _ = writeln!(s, "## Notes\n");
+        for (i, (id, n)) in notes.iter().enumerate() {
+            let _ = writeln!(s, "{}. `{id}`: {}", i + 1, n.replace('\n', " "));
+        }
+        let _ = writeln!(s);
+    }
+    s
+}
+
+/// A table cell: pipes escaped, on one line.
+fn cell(text: &str) -> String {
+    text.replace('|', "\\|").replace('\n', " ")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn at_most_and_near_decide_and_format() {
+        let c = Check::at_most("a", Kind::ClosedForm, "w", "s", "e", 1e-9, 1e-8, "m");
+        assert!(c.passed);
+        assert_eq!(c.result, "e = 1.00e-9 m");
+        assert!(!Check::at_most("a", Kind::ClosedForm, "w", "s", "e", f64::NAN, 1.0, "").passed);
+        assert!(!Check::at_most("a", Kind::ClosedForm, "w", "s", "e", 2.0, 1.0, "").passed);
+        let n = Check::near("b", Kind::Convergence, "w", "s", "order", 2.05, 2.0, 0.1);
+        assert!(n.passed);
+        assert!(!Check::near("b", Kind::Convergence, "w", "s", "order", 2.15, 2.0, 0.1).passed);
+    }
+
+    #[test]
+    fn markdown_has_one_row_per_check_and_numbers_notes() {
+        let checks = vec![
+            Check::at_most("x.1", Kind::Published, "a|b", "S", "e", 1.0, 2.0, "")
+                .with_note("remembered value differs"),
+            Check::failed_to_run("x.2", Kind::CrossCheck, "c", "S", "no data"),
+        ];
+        let md = markdown(&checks);
+        assert!(md.contains("**1 of 2 checks pass.**"));
+        assert!(md.contains("| x.1 [note 1] | a\\|b |"));
+        assert!(md.contains("FAIL"));
+        assert!(md.contains("1. `x.1`: remembered value differs"));
+    }
+}

@@ -1,0 +1,8 @@
+//! Checks of kind [`Kind::Published`](super::Kind) (being written).
+
+use super::Check;
+
+/// The checks of this kind.
+pub(crate) fn checks() -> Vec<Check> {
+    Vec::new()
+}
