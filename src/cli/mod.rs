@@ -13,6 +13,7 @@ mod run;
 mod scheme_args;
 mod spectrum;
 mod timestep;
+mod verify;
 
 use std::process::ExitCode;
 
@@ -21,7 +22,7 @@ use clap::{Parser, Subcommand};
 
 /// Success; for `check`, a stable verdict.
 pub const EXIT_OK: u8 = 0;
-/// A demonstration or report check failed, a run failed mid-way, or a file or standard output
+/// A demonstration, report or verification check failed, a run failed mid-way, or a file or standard output
 /// could not be written.
 pub const EXIT_FAILURE: u8 = 1;
 /// Bad arguments: unknown or conflicting options, missing values, values out of range.
@@ -38,6 +39,7 @@ With no arguments, tempora writes its report (tempora report: tempora-report/rep
 `tempora demo` runs the demonstration; `tempora compare` runs schemes on the reference problems
 against their exact solutions; `tempora run` integrates a model given as Matrix Market matrices
 and CSV loads, and `tempora timestep` gives its frequency range, stable step and accuracy step.
+`tempora verify` runs the verification suite against outside references.
 The subcommands check and spectrum judge a time-integration
 parameter set before a run, from the amplification matrix of one mode with circular frequency
 omega, step dt and physical damping ratio xi, as a function of Omega = omega dt:
@@ -55,6 +57,7 @@ Examples:
   tempora                                       write tempora-report/report.html
   tempora compare --standard-sets --problem two-dof-step
   tempora timestep --mass M.mtx --stiffness K.mtx --frequency-of-interest 6.3
+  tempora verify --markdown docs/validation.md  the verification suite; the validation page
   tempora run --mass M.mtx --stiffness K.mtx --load load.csv --dt 0.01 --t-end 5 --output u.csv
   tempora check --scheme hht --alpha -0.1       verdict on HHT-alpha with alpha = -0.1
   tempora check --scheme central-difference --max-frequency 2000 --dt 0.0012
@@ -64,8 +67,8 @@ Examples:
 Exit status:
   0  success; for check: stable (unconditionally, or conditionally with no step given or the
      step given within the stable limit)
-  1  a demonstration or report check failed, a run failed mid-way (what it had is written), or
-     a file or standard output could not be written
+  1  a demonstration, report or verification check failed, a run failed mid-way (what it had
+     is written), or a file or standard output could not be written
   2  bad arguments: unknown scheme or option, conflicting or missing options, values out of
      range or not numbers (one line on standard error)
   3  check: conditionally stable, and --dt exceeds the stable limit for --max-frequency
@@ -112,6 +115,9 @@ pub enum Command {
     /// Natural-frequency range, stable step and accuracy step of a model.
     #[command(long_about = timestep::LONG_ABOUT, after_help = timestep::AFTER_HELP)]
     Timestep(timestep::TimestepArgs),
+    /// Run the verification suite (checks against outside references); write docs/validation.md.
+    #[command(long_about = verify::LONG_ABOUT, after_help = verify::AFTER_HELP)]
+    Verify(verify::VerifyArgs),
 }
 
 /// A failure of a subcommand, with the exit status it maps to.
@@ -207,6 +213,11 @@ pub fn main() -> ExitCode {
         },
         Some(Command::Timestep(args)) => match timestep::run(&args) {
             Ok(()) => ExitCode::from(EXIT_OK),
+            Err(f) => f.report(),
+        },
+        Some(Command::Verify(args)) => match verify::run(&args) {
+            Ok(true) => ExitCode::from(EXIT_OK),
+            Ok(false) => ExitCode::from(EXIT_FAILURE),
             Err(f) => f.report(),
         },
     }
