@@ -65,6 +65,17 @@ pub struct VerifyArgs {
 
 /// Runs the suite; `Ok(true)` when every check passed.
 pub fn run(args: &VerifyArgs) -> Result<bool, Failure> {
+    // Refuse an impossible output path before the suite runs, not after.
+    if let Some(path) = &args.markdown {
+        let dir = path.parent().filter(|d| !d.as_os_str().is_empty());
+        if let Some(dir) = dir.filter(|d| !d.is_dir()) {
+            return Err(Failure::Runtime(format!(
+                "cannot write `{}`: the folder `{}` does not exist",
+                path.display(),
+                dir.display()
+            )));
+        }
+    }
     let checks: Vec<Check> = if args.kinds.is_empty() {
         verification::run()
     } else {
