@@ -337,6 +337,25 @@ pub struct SdofHalfSine {
 }
 
 impl SdofHalfSine {
+    /// A pulse problem with the given mass `m`, stiffness `k`, damping ratio `xi`, amplitude
+    /// `f0` and duration `t_d`, checked as [`validate`](ReferenceProblem::validate) checks them.
+    ///
+    /// ```
+    /// use tempora::reference::{ReferenceProblem, SdofHalfSine};
+    /// let p = SdofHalfSine::new(0.2533, 10.0, 0.05, 10.0, 0.6).unwrap();
+    /// assert_eq!(p.exact(0.0), 0.0);
+    /// assert!(SdofHalfSine::new(0.2533, 10.0, 0.05, 10.0, 0.0).is_err());
+    /// ```
+    ///
+    /// # Errors
+    /// [`Error::InvalidParameter`](crate::Error::InvalidParameter) for a non-positive or
+    /// non-finite `m`, `k` or `t_d`, a negative or non-finite `xi`, or a non-finite `f0`.
+    pub fn new(m: f64, k: f64, xi: f64, f0: f64, t_d: f64) -> Result<Self> {
+        let p = SdofHalfSine { m, k, xi, f0, t_d };
+        p.validate()?;
+        Ok(p)
+    }
+
     /// Our undamped case: `m = 0.5`, `k = 50` (`omega = 10` rad/s, `T_n = 0.628` s), `f0 = 20`,
     /// `t_d = 0.5` s (`t_d / T_n = 0.80`).
     pub fn standard_undamped() -> Self {
