@@ -8,14 +8,9 @@ use std::time::Instant;
 use clap::Args;
 use plotters::prelude::*;
 use serde::Serialize;
-use tempora::State;
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::SparseCholesky;
-use tempora::model::Model;
-use tempora::reference::{self, ReferenceProblem};
-use tempora::run::Integrator;
-use tempora::spectral::{CheckContext, Scheme, Stability, check};
+use tempora::implicit::NewtonOptions;
+use tempora::reference::{self, ReferenceProblem, study};
+use tempora::spectral::Scheme;
 
 use super::Failure;
 use super::output::{FormatArgs, csv_field, csv_num, print_stdout, table_num, write_plot};
@@ -206,10 +201,7 @@ fn checked_dts(list: &[f64]) -> Result<Vec<f64>, Failure> {
 /// The default coarse step of a problem: `T_min / 20`, or 0.02 s without known frequencies
 /// (the hardening oscillator: 0.02 divides its table's 0.1 s).
 pub fn default_dt0(p: &dyn ReferenceProblem) -> f64 {
-    match p.natural_frequencies().last() {
-        Some(w) => 2.0 * std::f64::consts::PI / w / 20.0,
-        None => 0.02,
-    }
+    study::default_dt0(p)
 }
 
 /// The coarse grid of a problem: `(horizon, n0, dt0)` with `horizon = n0 dt0`.
@@ -218,19 +210,14 @@ pub fn default_dt0(p: &dyn ReferenceProblem) -> f64 {
 /// Non-smooth problems run to `t_end` (the kink or the front must be reached) in at most
 /// [`MAX_COARSE_STEPS_NON_SMOOTH`] coarse steps, which may make `dt0` larger than the default.
 pub fn coarse_grid(p: &dyn ReferenceProblem) -> (f64, usize, f64) {
-    let target = default_dt0(p);
+    if p.is_smooth() {
+        let g = study::smooth_grid(p, MAX_COARSE_STEPS);
+        return (g.horizon, g.n0, g.dt0);
+    }
     let t_end = p.t_end();
-    let (horizon, n0) = if p.is_smooth() {
-        let horizon = t_end.min(MAX_COARSE_STEPS as f64 * target);
-        (
-            horizon,
-            ((horizon / target) - 1e-9).ceil().max(1.0) as usize,
-        )
-    } else {
-        let n = ((t_end / target) - 1e-9).ceil().max(1.0) as usize;
-        (t_end, n.min(MAX_COARSE_STEPS_NON_SMOOTH))
-    };
-    (horizon, n0, horizon / n0 as f64)
+    let n = ((t_end / default_dt0(p)) - 1e-9).ceil().max(1.0) as usize;
+    let n0 = n.min(MAX_COARSE_STEPS_NON_SMOOTH);
+    (t_end, n0, t_end / n0 as f64)
 }
 
 /// Runs every problem under every scheme; `dts` overrides the default halving sequence.
@@ -311,39 +298,14 @@ pub fn compare(
 
 /// The largest stable step of an explicit or conditionally stable scheme on a problem.
 fn stable_limit(p: &dyn ReferenceProblem, scheme: &Scheme) -> Result<Option<f64>, Failure> {
-    let runtime = |e: tempora::Error| Failure::Runtime(format!("{}: {e}", p.name()));
-    match scheme {
-        Scheme::CentralDifference(fv) => {
-            // The engine's own estimate, with its damping treatment.
-            let mut model = p.model().map_err(runtime)?;
-            let mut state = p.initial_state();
-            let options = CentralDifferenceOptions {
-                stable_limit: StableLimit::Estimate,
-                force_velocity: *fv,
-                ..Default::default()
-            };
-            let cd = CentralDifference::new(&mut *model, &mut state, options).map_err(runtime)?;
-            Ok(cd.stable_limit())
-        }
-        Scheme::Alpha(_) => {
-            let Some(&w) = p.natural_frequencies().last() else {
-                return Ok(None);
-            };
-            let v = check(scheme, 0.0, &CheckContext::default()).map_err(runtime)?;
-            Ok(match v.stability {
-                Stability::Conditional { omega_crit } => Some(omega_crit / w),
-                Stability::Unconditional => None,
-                Stability::Unstable => Some(0.0),
-            })
-        }
-    }
+    study::stable_limit(p, scheme).map_err(|e| Failure::Runtime(format!("{}: {e}", p.name())))
 }
 
 /// The largest error of a run (`None`: no checked time) and its history `(t, u)`.
 type Outcome = (Option<f64>, Vec<(f64, f64)>);
 
 /// Steps `n` times with `dt`; the largest error at every `stride`-th step where the reference
-/// is exact, and the history at those steps.
+/// is exact, and the history at those steps (default Newton settings).
 fn run_one(
     p: &dyn ReferenceProblem,
     scheme: &Scheme,
@@ -351,63 +313,9 @@ fn run_one(
     n: usize,
     stride: usize,
 ) -> Result<Outcome, Failure> {
-    let runtime = |e: tempora::Error| Failure::Runtime(format!("{}: {e}", p.name()));
-    let mut model = p.model().map_err(runtime)?;
-    let mut state = p.initial_state();
-    match scheme {
-        Scheme::CentralDifference(fv) => {
-            let options = CentralDifferenceOptions {
-                stable_limit: StableLimit::Unchecked,
-                force_velocity: *fv,
-                ..Default::default()
-            };
-            let mut it =
-                CentralDifference::new(&mut *model, &mut state, options).map_err(runtime)?;
-            walk(&mut it, &mut *model, &mut state, p, dt, n, stride).map_err(runtime)
-        }
-        Scheme::Alpha(params) => {
-            let mut it = AlphaIntegrator::new(
-                &mut *model,
-                &mut state,
-                *params,
-                Box::new(SparseCholesky::new()),
-                ImplicitOptions::default(),
-            )
-            .map_err(runtime)?;
-            walk(&mut it, &mut *model, &mut state, p, dt, n, stride).map_err(runtime)
-        }
-    }
-}
-
-fn walk<I: Integrator>(
-    it: &mut I,
-    model: &mut (dyn Model + Send),
-    state: &mut State,
-    p: &dyn ReferenceProblem,
-    dt: f64,
-    n: usize,
-    stride: usize,
-) -> tempora::Result<Outcome> {
-    let dof = p.observed_dof();
-    let mut err: Option<f64> = None;
-    let mut history = vec![(0.0, state.u[dof])];
-    for i in 1..=n {
-        it.step(model, state, dt)?;
-        if i % stride != 0 {
-            continue;
-        }
-        // The nominal time, free of the rounding accumulated in state.t.
-        let t = i as f64 * dt;
-        history.push((t, state.u[dof]));
-        let checked = p
-            .tabulated_times()
-            .is_none_or(|rows| rows.iter().any(|r| (r - t).abs() < 1e-9));
-        if checked {
-            let e = (state.u[dof] - p.exact(t)).abs();
-            err = Some(err.map_or(e, |m: f64| m.max(e)));
-        }
-    }
-    Ok((err, history))
+    let o = study::run_scheme(p, scheme, dt, n, stride, &NewtonOptions::default())
+        .map_err(|e| Failure::Runtime(format!("{}: {e}", p.name())))?;
+    Ok((o.max_error, o.history))
 }
 
 /// The text table.

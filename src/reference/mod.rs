@@ -47,6 +47,9 @@
 //! [`ReferenceProblem::is_smooth`] is false for the pulse and the bar: a kink in the load or a
 //! travelling front caps the convergence order a scheme can show on them.
 //!
+//! [`study`] runs a scheme on a problem and measures its error and order (the core of
+//! `tempora compare` and of the convergence checks of [`verification`](crate::verification)).
+//!
 //! # Single-DOF solutions
 //!
 //! Notation: `omega = sqrt(k / m)`, `c = 2 xi m omega`, static deflection `A = f0 / k`.
@@ -129,6 +132,7 @@ mod bar;
 mod hardening;
 mod modal;
 mod sdof;
+pub mod study;
 
 pub use bar::BarImpact;
 pub use hardening::{Duffing, Hardening};
