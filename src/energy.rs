@@ -134,12 +134,13 @@ impl EnergyLedger {
         self.extra_work.iter().sum()
     }
 
-    /// Work of the named extra contribution, if there is one by that name.
+    /// Work of the named extra contribution, if there is one by that name (`None` also when the
+    /// public `extra_names` and `extra_work` have been edited out of step).
     pub fn extra(&self, name: &str) -> Option<f64> {
         self.extra_names
             .iter()
             .position(|n| n == name)
-            .map(|i| self.extra_work[i])
+            .and_then(|i| self.extra_work.get(i).copied())
     }
 
     /// The balance error `T + W_int + W_damp + sum W_k + D_num - W_ext - W_constraint - T_0`.

@@ -105,3 +105,20 @@ pub(crate) fn constrained_start(constraints: &[(usize, Motion)], state: &State) 
 pub(crate) fn model_err(step: u64, t: f64) -> impl Fn(ModelError) -> Error {
     move |source| Error::Model { step, t, source }
 }
+
+/// Checks that a step of size `dt` (already known positive and finite) from time `t` can be
+/// taken: `t` finite (the state's fields are public, so it may have been set to NaN or infinity
+/// since the start) and `t + dt > t` in floating point. A step below the rounding of `t` would
+/// move the state without advancing its time, and a loop stepping to an end time would never end.
+pub(crate) fn check_step_advances(t: f64, dt: f64) -> Result<()> {
+    check_finite("state time", &[t])?;
+    if t + dt > t {
+        Ok(())
+    } else {
+        Err(Error::InvalidParameter {
+            name: "dt",
+            value: dt,
+            expected: "a step above the rounding of the state's time (t + dt must differ from t)",
+        })
+    }
+}

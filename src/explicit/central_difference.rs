@@ -12,7 +12,8 @@ use crate::linalg::{
 use crate::model::{Damping, Model, Motion};
 use crate::run::{Integrator, StepReport};
 use crate::setup::{
-    Setup, check_growth_limit, check_lumped_mass, constrained_start, model_err, setup,
+    Setup, check_growth_limit, check_lumped_mass, check_step_advances, constrained_start,
+    model_err, setup,
 };
 use crate::state::{State, check_finite, check_len};
 
@@ -428,7 +429,9 @@ impl CentralDifference {
     ///
     /// # Errors
     /// [`Error::InvalidStep`], [`Error::StepAboveStableLimit`], [`Error::DimensionMismatch`] (a
-    /// state or model of another size), [`Error::Model`], [`Error::NonFiniteState`],
+    /// state or model of another size), [`Error::NonFiniteInput`] for a state time that is not
+    /// finite, [`Error::InvalidParameter`] (`dt`) for a step below the rounding of the state's
+    /// time (`t + dt == t`), [`Error::Model`], [`Error::NonFiniteState`],
     /// [`Error::Unstable`] and [`Error::EnergyBalance`]. On any error the state and the energy
     /// ledger are those of the last accepted step.
     pub fn step<M: Model + ?Sized>(
@@ -440,6 +443,7 @@ impl CentralDifference {
         if !(dt.is_finite() && dt > 0.0) {
             return Err(Error::InvalidStep { dt });
         }
+        check_step_advances(state.t, dt)?;
         if let (Some(dt_stable), false) = (
             self.dt_stable,
             matches!(self.options.stable_limit, StableLimit::Unchecked),

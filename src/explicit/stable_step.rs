@@ -179,6 +179,7 @@ pub fn element_stable_step(lengths: &[f64], speeds: &[f64]) -> Result<f64> {
 /// # Errors
 /// * [`Error::EmptyModel`] for an empty `mass`;
 /// * [`Error::DimensionMismatch`] when `k` is not `n x n` or the mask does not have `n` entries;
+/// * [`Error::NonFiniteInput`] for a non-finite stored entry of `k`;
 /// * [`Error::NonPositiveMass`] for a zero, negative or non-finite mass on a free DOF.
 ///
 /// # Reference
@@ -195,6 +196,9 @@ pub fn omega_max_gershgorin(
     }
     check_len("stiffness matrix rows", n, k.nrows())?;
     check_len("stiffness matrix columns", n, k.ncols())?;
+    // The checked constructors keep entries finite, but `from_diagonal` and `data_mut` do not,
+    // and `f64::max` below would drop a NaN bound silently.
+    check_finite("stiffness matrix", k.data())?;
     let scale = inverse_sqrt_mass(mass, constrained)?;
     let mut b_sym = f64::NEG_INFINITY;
     let mut b_inv = f64::NEG_INFINITY;
@@ -608,7 +612,7 @@ impl Default for StableStepOptions {
 ///
 /// # Errors
 /// * [`Error::EmptyModel`], [`Error::DimensionMismatch`] (state of the wrong size),
-///   [`Error::NonFiniteInput`] (non-finite state);
+///   [`Error::NonFiniteInput`] (non-finite state, its time included);
 /// * [`Error::InvalidParameter`] for a safety fraction outside `(0, 1]`, an element step that is
 ///   not positive and finite, invalid [`EigenOptions`], or a negative damping ratio at
 ///   `omega_max`;
@@ -638,6 +642,7 @@ pub fn estimate<M: Model + ?Sized>(
     }
     check_len("state displacement", n, state.u.len())?;
     check_len("state velocity", n, state.v.len())?;
+    check_finite("state time", &[state.t])?;
     check_finite("state displacement", &state.u)?;
     check_finite("state velocity", &state.v)?;
     let (t, step) = (state.t, state.step);

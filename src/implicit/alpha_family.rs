@@ -11,7 +11,8 @@ use crate::model::{Damping, Model, Motion};
 use crate::params::AlphaParams;
 use crate::run::{Integrator, StepReport};
 use crate::setup::{
-    Setup, check_growth_limit, check_lumped_mass, constrained_start, model_err, setup,
+    Setup, check_growth_limit, check_lumped_mass, check_step_advances, constrained_start,
+    model_err, setup,
 };
 use crate::state::{State, check_finite, check_len};
 
@@ -258,8 +259,8 @@ impl AlphaIntegrator {
             }
             Mass::Consistent(m) => {
                 let mut mm =
-                    CsrMatrix::pattern_union(&[m, &CsrMatrix::from_diagonal(&vec![0.0; it.n])]);
-                let map = m.positions_in(&mm);
+                    CsrMatrix::pattern_union(&[m, &CsrMatrix::from_diagonal(&vec![0.0; it.n])])?;
+                let map = m.positions_in(&mm)?;
                 for (k, pos) in map.iter().enumerate() {
                     mm.data_mut()[*pos] = m.data()[k];
                 }
@@ -314,11 +315,13 @@ impl AlphaIntegrator {
     ) -> Result<Self> {
         let mut it = Self::prepare(model, state, params, solver, options)?;
         check_finite("acceleration", &state.a)?;
-        check_len(
-            "energy ledger extra forces",
-            it.f_x0.len(),
+        for found in [
             ledger.extra_work.len(),
-        )?;
+            ledger.extra_names.len(),
+            ledger.pending.extra.len(),
+        ] {
+            check_len("energy ledger extra forces", it.f_x0.len(), found)?;
+        }
         check_len(
             "energy ledger reactions",
             it.constraints.len(),
@@ -375,6 +378,7 @@ impl AlphaIntegrator {
         };
         if let Some(c) = &c_matrix {
             check_len("damping matrix rows", n, c.nrows())?;
+            check_len("damping matrix columns", n, c.ncols())?;
         }
         let m_mat = mass.matrix();
         let eye = CsrMatrix::from_diagonal(&vec![1.0; n]);
@@ -382,13 +386,13 @@ impl AlphaIntegrator {
         if let Some(c) = &c_matrix {
             parts.push(c);
         }
-        let jac = CsrMatrix::pattern_union(&parts);
-        let mass_map = m_mat.positions_in(&jac);
-        let k_map = k_t.positions_in(&jac);
-        let c_map = c_matrix
-            .as_ref()
-            .map(|c| c.positions_in(&jac))
-            .unwrap_or_default();
+        let jac = CsrMatrix::pattern_union(&parts)?;
+        let mass_map = m_mat.positions_in(&jac)?;
+        let k_map = k_t.positions_in(&jac)?;
+        let c_map = match &c_matrix {
+            Some(c) => c.positions_in(&jac)?,
+            None => Vec::new(),
+        };
         let (con_zero, con_diag) = constrained_positions(&jac, &mask);
         let k = names.len();
         let ledger = EnergyLedger::new(names, constraints.len());
@@ -530,7 +534,9 @@ impl AlphaIntegrator {
     /// Advances `state` by `dt`, in one or more sub-steps.
     ///
     /// # Errors
-    /// [`Error::InvalidStep`], [`Error::DimensionMismatch`], [`Error::NewtonNotConverged`],
+    /// [`Error::InvalidStep`], [`Error::DimensionMismatch`], [`Error::NonFiniteInput`] for a state
+    /// time that is not finite, [`Error::InvalidParameter`] (`dt`) for a step or sub-step below the
+    /// rounding of the state's time (`t + dt == t`), [`Error::NewtonNotConverged`],
     /// [`Error::NewtonDiverged`], [`Error::Unstable`], and model or solver errors that persist at
     /// the smallest sub-step. The state is then the last converged one.
     pub fn step<M: Model + ?Sized>(
@@ -542,6 +548,7 @@ impl AlphaIntegrator {
         if !(dt.is_finite() && dt > 0.0) {
             return Err(Error::InvalidStep { dt });
         }
+        check_step_advances(state.t, dt)?;
         check_len("model DOFs", self.n, model.dofs())?;
         check_len("state displacement", self.n, state.u.len())?;
         check_len("state velocity", self.n, state.v.len())?;
@@ -567,6 +574,9 @@ impl AlphaIntegrator {
                     remaining
                 };
             }
+            // A sub-step cut back below the rounding of t would not advance the time (and this
+            // loop would not end).
+            check_step_advances(state.t, h)?;
             match self.substep(model, state, h) {
                 Attempt::Converged(iters) => {
                     self.report.substeps += 1;

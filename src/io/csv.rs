@@ -226,7 +226,8 @@ pub fn validate_dofs(table: &LoadTable, n: usize) -> Result<()> {
 /// # Errors
 /// [`Error::Io`] when the file cannot be read; [`Error::Csv`] with the line for a header other
 /// than `dof,u,v`, a row with the wrong number of fields, a DOF that is not an integer, is out
-/// of range (`0..n`) or given twice, or a non-numeric or non-finite value.
+/// of range (`0..n`) or given twice, or a non-numeric or non-finite value;
+/// [`Error::InvalidParameter`] (`n`) for a DOF count whose vectors do not fit in memory.
 pub fn read_initial(path: &Path, n: usize) -> Result<(Vec<f64>, Vec<f64>)> {
     let name = display_name(path);
     let text = read_text(path, |line| Error::Csv {
@@ -235,6 +236,14 @@ pub fn read_initial(path: &Path, n: usize) -> Result<(Vec<f64>, Vec<f64>)> {
         problem: "the file is not UTF-8 (or ASCII) text".into(),
     })?;
     parse_initial(&text, &name, n)
+}
+
+/// `n` zeros, or `None` when they do not fit in memory.
+fn zeros<T: Clone + Default>(n: usize) -> Option<Vec<T>> {
+    let mut v = Vec::new();
+    v.try_reserve_exact(n).ok()?;
+    v.resize(n, T::default());
+    Some(v)
 }
 
 /// Parses the text of an initial-conditions file for `n` DOFs; `name` is the file name used in
@@ -270,10 +279,17 @@ pub fn parse_initial(text: &str, name: &str, n: usize) -> Result<(Vec<f64>, Vec<
             format!("expected the header `dof,u,v`, found `{}`", excerpt(header)),
         ));
     }
-    let mut u = vec![0.0; n];
-    let mut v = vec![0.0; n];
-    // The line on which each DOF was given (0: not yet).
-    let mut given = vec![0usize; n];
+    // A DOF count too large for memory is refused rather than aborting the allocation.
+    let (mut u, mut v, mut given) = match (zeros(n), zeros(n), zeros::<usize>(n)) {
+        (Some(u), Some(v), Some(g)) => (u, v, g),
+        _ => {
+            return Err(Error::InvalidParameter {
+                name: "n",
+                value: n as f64,
+                expected: "a DOF count whose vectors fit in memory",
+            });
+        }
+    };
     for (no, line) in lines {
         let fields: Vec<&str> = line.split(',').map(str::trim).collect();
         if fields.len() != 3 {

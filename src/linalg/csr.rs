@@ -106,8 +106,12 @@ impl CsrMatrix {
             && self.indices == other.indices
     }
 
-    /// Position of entry `(i, j)` in [`data`](Self::data), if it is stored.
+    /// Position of entry `(i, j)` in [`data`](Self::data), if it is stored (`None` also for a row
+    /// outside the matrix).
     pub fn position(&self, i: usize, j: usize) -> Option<usize> {
+        if i >= self.nrows {
+            return None;
+        }
         let (lo, hi) = (self.indptr[i], self.indptr[i + 1]);
         self.indices[lo..hi]
             .iter()
@@ -118,11 +122,21 @@ impl CsrMatrix {
     /// A matrix with the union of the patterns of `mats` (all of the same shape), rows sorted by
     /// column, every value zero.
     ///
-    /// # Panics
-    /// When `mats` is empty or the shapes differ (a programmer error).
-    pub fn pattern_union(mats: &[&CsrMatrix]) -> CsrMatrix {
-        let (nrows, ncols) = (mats[0].nrows, mats[0].ncols);
-        assert!(mats.iter().all(|m| m.nrows == nrows && m.ncols == ncols));
+    /// # Errors
+    /// [`Error::InvalidMatrix`] when `mats` is empty; [`Error::DimensionMismatch`] when the shapes
+    /// differ.
+    pub fn pattern_union(mats: &[&CsrMatrix]) -> Result<CsrMatrix> {
+        let Some(first) = mats.first() else {
+            return Err(Error::InvalidMatrix {
+                what: "pattern union",
+                problem: "no matrix given".into(),
+            });
+        };
+        let (nrows, ncols) = (first.nrows, first.ncols);
+        for m in mats {
+            crate::state::check_len("pattern union: matrix rows", nrows, m.nrows)?;
+            crate::state::check_len("pattern union: matrix columns", ncols, m.ncols)?;
+        }
         let mut indptr = Vec::with_capacity(nrows + 1);
         let mut indices = Vec::new();
         indptr.push(0);
@@ -138,33 +152,38 @@ impl CsrMatrix {
             indptr.push(indices.len());
         }
         let nnz = indices.len();
-        CsrMatrix {
+        Ok(CsrMatrix {
             nrows,
             ncols,
             indptr,
             indices,
             data: vec![0.0; nnz],
-        }
+        })
     }
 
     /// For each stored entry of `self`, its position in `target` (whose pattern must contain
     /// this one's). Used to add `self` into `target` repeatedly without searching.
     ///
-    /// # Panics
-    /// When an entry of `self` is not in `target`'s pattern (a programmer error).
-    pub fn positions_in(&self, target: &CsrMatrix) -> Vec<usize> {
+    /// # Errors
+    /// [`Error::InvalidMatrix`] naming the first entry of `self` that is not in `target`'s
+    /// pattern.
+    pub fn positions_in(&self, target: &CsrMatrix) -> Result<Vec<usize>> {
         let mut map = Vec::with_capacity(self.nnz());
         for i in 0..self.nrows {
             for k in self.indptr[i]..self.indptr[i + 1] {
                 let j = self.indices[k] as usize;
-                map.push(
-                    target
-                        .position(i, j)
-                        .expect("positions_in: entry missing from the target pattern"),
-                );
+                match target.position(i, j) {
+                    Some(p) => map.push(p),
+                    None => {
+                        return Err(Error::InvalidMatrix {
+                            what: "target pattern",
+                            problem: format!("entry ({i}, {j}) is not stored in it"),
+                        });
+                    }
+                }
             }
         }
-        map
+        Ok(map)
     }
 
     /// A diagonal matrix with the given entries.
@@ -194,8 +213,14 @@ impl CsrMatrix {
         data: Vec<f64>,
     ) -> Result<Self> {
         let bad = |problem: String| Err(Error::InvalidMatrix { what, problem });
-        if indptr.len() != nrows + 1 || indptr[0] != 0 || indptr[nrows] != indices.len() {
+        if nrows.checked_add(1) != Some(indptr.len())
+            || indptr[0] != 0
+            || indptr[nrows] != indices.len()
+        {
             return bad("row pointers do not match the number of rows and entries".into());
+        }
+        if ncols > u32::MAX as usize {
+            return bad(format!("{ncols} columns exceed the supported 2^32 - 1"));
         }
         if data.len() != indices.len() {
             return bad("values and column indices differ in number".into());
@@ -203,6 +228,12 @@ impl CsrMatrix {
         for i in 0..nrows {
             if indptr[i + 1] < indptr[i] {
                 return bad(format!("row pointers decrease at row {i}"));
+            }
+            if indptr[i + 1] > indices.len() {
+                return bad(format!(
+                    "row pointer {} of row {i} is past the entries",
+                    indptr[i + 1]
+                ));
             }
             let cols = &indices[indptr[i]..indptr[i + 1]];
             for (k, &c) in cols.iter().enumerate() {
@@ -226,9 +257,13 @@ impl CsrMatrix {
         })
     }
 
-    /// The entries of row `i` as `(column, value)` pairs.
+    /// The entries of row `i` as `(column, value)` pairs (none for a row outside the matrix).
     pub fn row(&self, i: usize) -> impl Iterator<Item = (usize, f64)> + '_ {
-        let r = self.indptr[i]..self.indptr[i + 1];
+        let r = if i < self.nrows {
+            self.indptr[i]..self.indptr[i + 1]
+        } else {
+            0..0
+        };
         self.indices[r.clone()]
             .iter()
             .zip(&self.data[r])
@@ -255,10 +290,8 @@ impl CsrMatrix {
     }
 
     /// `y = A x`, in parallel above `par.threshold` rows; each row is summed in stored order, so the
-    /// result does not depend on the thread count.
-    ///
-    /// # Panics
-    /// When `x.len() != ncols` or `y.len() != nrows`.
+    /// result does not depend on the thread count. When `x.len() != ncols` or
+    /// `y.len() != nrows`, `y` is filled with NaN (see [`spmv`]).
     pub fn mul_vec(&self, x: &[f64], y: &mut [f64], par: Parallelism) {
         spmv(self, x, y, par);
     }
@@ -266,11 +299,15 @@ impl CsrMatrix {
 
 /// `y = A x` (see [`CsrMatrix::mul_vec`]).
 ///
-/// # Panics
-/// When `x.len() != a.ncols()` or `y.len() != a.nrows()`.
+/// When `x.len() != a.ncols()` or `y.len() != a.nrows()` there is no product: `y` is filled
+/// with NaN, which every integrator and solver of the crate refuses as a non-finite value. (The
+/// product runs in every step's hot loop, so it returns no `Result`; callers that take lengths
+/// from users check them first.)
 pub fn spmv(a: &CsrMatrix, x: &[f64], y: &mut [f64], par: Parallelism) {
-    assert_eq!(x.len(), a.ncols, "spmv: x has the wrong length");
-    assert_eq!(y.len(), a.nrows, "spmv: y has the wrong length");
+    if x.len() != a.ncols || y.len() != a.nrows {
+        y.fill(f64::NAN);
+        return;
+    }
     let rows = |start: usize, y: &mut [f64]| {
         for (k, yi) in y.iter_mut().enumerate() {
             let i = start + k;

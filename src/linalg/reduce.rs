@@ -37,12 +37,12 @@ impl GlobalReduce for Serial {
     }
 }
 
-/// Deterministic local dot product `x . y` (chunked, so identical for any thread count).
-///
-/// # Panics
-/// When `x` and `y` differ in length.
+/// Deterministic local dot product `x . y` (chunked, so identical for any thread count); NaN
+/// when `x` and `y` differ in length (there is no dot product then).
 pub fn dot(x: &[f64], y: &[f64], par: Parallelism) -> f64 {
-    assert_eq!(x.len(), y.len(), "dot: vectors differ in length");
+    if x.len() != y.len() {
+        return f64::NAN;
+    }
     let chunk_dot = |(a, b): (&[f64], &[f64])| a.iter().zip(b).map(|(p, q)| p * q).sum::<f64>();
     if par.parallel_for(x.len()) {
         // Collecting into a Vec allocates; this path is for set-up code (eigenvalue estimates),

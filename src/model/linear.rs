@@ -57,9 +57,22 @@ impl LoadTable {
         &self.dofs
     }
 
-    /// Writes the load at time `t` into `out` (length: the model's DOF count).
-    pub fn eval(&self, t: f64, out: &mut [f64]) {
+    /// Writes the load at time `t` into `out` (length: the model's DOF count). A NaN `t` gives the
+    /// load of the first row (as any time before the table does).
+    ///
+    /// # Errors
+    /// [`Error::DofOutOfRange`] when a loaded DOF is not below `out.len()`; `out` is then all
+    /// zero.
+    pub fn eval(&self, t: f64, out: &mut [f64]) -> Result<()> {
         out.fill(0.0);
+        let n = out.len();
+        if let Some(&dof) = self.dofs.iter().find(|&&d| d >= n) {
+            return Err(Error::DofOutOfRange {
+                what: "load table",
+                dof,
+                n,
+            });
+        }
         let m = self.dofs.len();
         let (i, w) = locate(&self.times, t);
         let row0 = &self.values[i * m..(i + 1) * m];
@@ -73,6 +86,7 @@ impl LoadTable {
                 out[*d] += v0 + w * (v1 - v0);
             }
         }
+        Ok(())
     }
 }
 
@@ -284,30 +298,43 @@ fn square(what: &'static str, m: &CsMat<f64>) -> Result<CsrMatrix> {
     CsrMatrix::from_sprs(what, m)
 }
 
+/// Every buffer of a [`Model`] call on a [`LinearModel`] has the model's DOF count: a wrong length
+/// is a [`ModelError`], not a panic (an integrator then reports it as [`Error::Model`]).
 impl Model for LinearModel {
     fn dofs(&self) -> usize {
         self.mass.nrows()
     }
 
+    /// The row-sum lumped mass; an `out` of the wrong length is filled with NaN (which the
+    /// integrators refuse as [`Error::NonPositiveMass`]): this method cannot return an error.
     fn lumped_mass(&self, out: &mut [f64]) {
-        out.copy_from_slice(&self.lumped);
+        if out.len() == self.lumped.len() {
+            out.copy_from_slice(&self.lumped);
+        } else {
+            out.fill(f64::NAN);
+        }
     }
 
     fn internal_force(
         &mut self,
         _t: f64,
         u: &[f64],
-        _v: &[f64],
+        v: &[f64],
         out: &mut [f64],
     ) -> std::result::Result<(), ModelError> {
+        let n = self.dofs();
+        super::check_buffers(n, &[("u", u.len()), ("v", v.len()), ("out", out.len())])?;
         self.stiffness.mul_vec(u, out, self.parallel);
         Ok(())
     }
 
     fn external_force(&mut self, t: f64, out: &mut [f64]) -> std::result::Result<(), ModelError> {
+        super::check_buffers(self.dofs(), &[("out", out.len())])?;
         match &self.load {
             Load::None => out.fill(0.0),
-            Load::Table(table) => table.eval(t, out),
+            Load::Table(table) => table
+                .eval(t, out)
+                .map_err(|e| ModelError::failed(e.to_string()))?,
             Load::Pattern { pattern, factor } => {
                 let s = factor.value(t);
                 for (o, p) in out.iter_mut().zip(pattern) {
@@ -330,10 +357,12 @@ impl Model for LinearModel {
     fn damping_force(
         &mut self,
         _t: f64,
-        _u: &[f64],
+        u: &[f64],
         v: &[f64],
         out: &mut [f64],
     ) -> std::result::Result<(), ModelError> {
+        let n = self.dofs();
+        super::check_buffers(n, &[("u", u.len()), ("v", v.len()), ("out", out.len())])?;
         match &self.damping {
             LinearDamping::Matrix(c) => {
                 c.mul_vec(v, out, self.parallel);
@@ -346,10 +375,12 @@ impl Model for LinearModel {
     fn stiffness_product(
         &mut self,
         _t: f64,
-        _u: &[f64],
+        u: &[f64],
         x: &[f64],
         out: &mut [f64],
     ) -> std::result::Result<(), ModelError> {
+        let n = self.dofs();
+        super::check_buffers(n, &[("u", u.len()), ("x", x.len()), ("out", out.len())])?;
         self.stiffness.mul_vec(x, out, self.parallel);
         Ok(())
     }
@@ -369,10 +400,18 @@ impl Model for LinearModel {
     fn tangent_stiffness(
         &mut self,
         _t: f64,
-        _u: &[f64],
-        _v: &[f64],
+        u: &[f64],
+        v: &[f64],
         out: &mut CsrMatrix,
     ) -> std::result::Result<(), ModelError> {
+        let n = self.dofs();
+        super::check_buffers(n, &[("u", u.len()), ("v", v.len())])?;
+        if !out.same_pattern(&self.stiffness) {
+            return Err(ModelError::failed(
+                "the tangent matrix given to LinearModel::tangent_stiffness does not have the \
+                 pattern of the model's tangent_pattern",
+            ));
+        }
         out.data_mut().copy_from_slice(self.stiffness.data());
         Ok(())
     }
@@ -388,7 +427,11 @@ impl Model for LinearModel {
         true
     }
 
+    /// `u^T K u / 2`; `None` for a `u` of the wrong length.
     fn stored_energy(&self, u: &[f64]) -> Option<f64> {
+        if u.len() != self.dofs() {
+            return None;
+        }
         let mut ku = vec![0.0; u.len()];
         self.stiffness.mul_vec(u, &mut ku, self.parallel);
         Some(0.5 * crate::linalg::dot(u, &ku, self.parallel))

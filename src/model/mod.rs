@@ -67,7 +67,7 @@ impl Damping {
     ///
     /// # Errors
     /// [`crate::Error::InvalidParameter`] when a frequency is not positive and finite, the two are
-    /// equal, or a ratio is negative or not finite.
+    /// equal, a ratio is negative or not finite, or the coefficients overflow.
     pub fn rayleigh_from_modes(w1: f64, xi1: f64, w2: f64, xi2: f64) -> crate::Result<Damping> {
         for (name, w) in [("omega_1", w1), ("omega_2", w2)] {
             if !(w.is_finite() && w > 0.0) {
@@ -100,7 +100,30 @@ impl Damping {
         let d = w2 * w2 - w1 * w1;
         let a0 = 2.0 * w1 * w2 * (xi1 * w2 - xi2 * w1) / d;
         let a1 = 2.0 * (xi2 * w2 - xi1 * w1) / d;
+        // Frequencies or ratios near the overflow limit make the coefficients overflow.
+        for (name, value, a) in [("omega_1", w1, a0), ("omega_2", w2, a1)] {
+            if !a.is_finite() {
+                return Err(crate::Error::InvalidParameter {
+                    name,
+                    value,
+                    expected: "frequencies and ratios whose Rayleigh coefficients are finite \
+                               (these overflow)",
+                });
+            }
+        }
         Ok(Damping::Rayleigh { a0, a1 })
+    }
+}
+
+/// Checks that every buffer handed to a [`Model`] method has the model's DOF count `n`; the
+/// ready-made models ([`LinearModel`], [`Duffing`](crate::reference::Duffing)) answer a wrong
+/// length with this error rather than a panic. Allocates only on the error path.
+pub(crate) fn check_buffers(n: usize, buffers: &[(&'static str, usize)]) -> Result<(), ModelError> {
+    match buffers.iter().find(|(_, len)| *len != n) {
+        Some((what, len)) => Err(ModelError::failed(format!(
+            "the buffer `{what}` has length {len}, but the model has {n} DOFs"
+        ))),
+        None => Ok(()),
     }
 }
 

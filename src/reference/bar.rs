@@ -66,6 +66,10 @@ pub struct BarImpact {
     pub v0: f64,
 }
 
+/// The element count above which [`BarImpact`] does not validate: the model's `elements + 1`
+/// DOFs must be indexable by the 32-bit column indices of [`CsrMatrix`](crate::linalg::CsrMatrix).
+const MAX_ELEMENTS: usize = u32::MAX as usize - 1;
+
 impl BarImpact {
     /// Our case: a steel-like bar, 100 elements, `L = 0.5` m, `E = 210` GPa,
     /// `rho = 7850` kg/m^3 (`c = 5172` m/s, `L / c = 96.7` us), driven at `v0 = 2` m/s.
@@ -90,16 +94,60 @@ impl BarImpact {
     }
 
     /// Continuum displacement at `x` in `[0, L]`, time `t`.
+    ///
+    /// NaN for a bar that does not [validate](ReferenceProblem::validate), an `x` outside
+    /// `[0, L]`, a non-finite `t`, or a `t` so many periods `4 L / c` on that its phase within a period is lost to
+    /// rounding (the rounding of `t` above a thousandth of a period). The cost does not grow with `t`: past two periods the motion is shifted back by
+    /// whole periods (see [`BarImpact::period`]).
     pub fn displacement_at(&self, x: f64, t: f64) -> f64 {
-        self.image_sum(x, t, |s| s.max(0.0))
+        self.periodic(x, t, self.v0, |s| s.max(0.0))
     }
 
-    /// Continuum particle velocity at `x`, `t` (at a front: the value just before it).
+    /// Continuum particle velocity at `x`, `t` (at a front: the value just before it); NaN in the
+    /// cases of [`displacement_at`](BarImpact::displacement_at).
     pub fn velocity_at(&self, x: f64, t: f64) -> f64 {
-        self.image_sum(x, t, |s| if s > 0.0 { 1.0 } else { 0.0 })
+        self.periodic(x, t, 0.0, |s| if s > 0.0 { 1.0 } else { 0.0 })
     }
 
-    /// `v0 sum_n (-1)^n [g(t - (2nL + x)/c) + g(t - (2(n+1)L - x)/c)]` for `g` zero at `s <= 0`.
+    /// The period `T = 4 L / c` of the motion: the velocity field repeats after `T`, and the
+    /// displacement grows by `v0 T` per period.
+    ///
+    /// Derivation (from the image sum of the type's documentation, for `0 <= x <= L`, `t >= 0`):
+    /// at `t + T` the pair `n` becomes the pair `n - 2` at `t` (the same sign `(-1)^n`), and the
+    /// pairs `n = 0, 1` are then all past their fronts, contributing the ramps
+    /// `(t + (4L - x)/c) + (t + (2L + x)/c) - (t + (2L - x)/c) - (t + x/c) = 4 L / c` times `v0`
+    /// to the displacement and `1 + 1 - 1 - 1 = 0` to the velocity.
+    pub fn period(&self) -> f64 {
+        4.0 * self.length / self.wave_speed()
+    }
+
+    /// The image sum at `t` shifted back by whole periods (each adding `per_period` times the
+    /// period), so that at most a few periods of images are summed.
+    fn periodic(&self, x: f64, t: f64, per_period: f64, g: impl Fn(f64) -> f64) -> f64 {
+        if self.validate().is_err() || !(0.0..=self.length).contains(&x) || !t.is_finite() {
+            return f64::NAN;
+        }
+        let period = self.period();
+        if !(period.is_finite() && period > 0.0) {
+            return f64::NAN;
+        }
+        if t <= 2.0 * period {
+            return self.image_sum(x, t, g);
+        }
+        // The rounding of t must leave the phase within a period known to a thousandth.
+        if t * f64::EPSILON > 1e-3 * period {
+            return f64::NAN;
+        }
+        let k = (t / period).floor() - 1.0;
+        let shifted = t - k * period;
+        if !(0.0..=3.0 * period).contains(&shifted) {
+            return f64::NAN;
+        }
+        self.image_sum(x, shifted, g) + k * per_period * period
+    }
+
+    /// `v0 sum_n (-1)^n [g(t - (2nL + x)/c) + g(t - (2(n+1)L - x)/c)]` for `g` zero at `s <= 0`
+    /// (a valid bar, finite `x` and `t`: then the loop ends after about `t c / (2 L)` terms).
     fn image_sum(&self, x: f64, t: f64, g: impl Fn(f64) -> f64) -> f64 {
         let (l, c) = (self.length, self.wave_speed());
         let mut sum = 0.0;
@@ -127,11 +175,12 @@ impl ReferenceProblem for BarImpact {
          Elastic Solids, 1975, ch. 2 (continuum solution by images derived in the doc)"
     }
     fn validate(&self) -> Result<()> {
-        if self.elements == 0 {
+        if self.elements == 0 || self.elements >= MAX_ELEMENTS {
             return Err(Error::InvalidParameter {
                 name: "elements",
-                value: 0.0,
-                expected: "at least one element",
+                value: self.elements as f64,
+                expected: "at least one element, and fewer than 2^32 - 1 (the sparse matrices index \
+                           columns with 32 bits)",
             });
         }
         positive("length", self.length)?;
@@ -161,7 +210,12 @@ impl ReferenceProblem for BarImpact {
         )?;
         Ok(Box::new(model))
     }
+    /// The bar at rest with the driven end moving at `v0`; an empty state for a bar that does not
+    /// validate (whose model cannot be built either).
     fn initial_state(&self) -> State {
+        if self.validate().is_err() {
+            return State::at_rest(0, 0.0);
+        }
         let mut s = State::at_rest(self.elements + 1, 0.0);
         s.v[0] = self.v0;
         s
@@ -181,7 +235,11 @@ impl ReferenceProblem for BarImpact {
     fn is_smooth(&self) -> bool {
         false
     }
+    /// The chain's frequencies; empty for a bar that does not validate.
     fn natural_frequencies(&self) -> Vec<f64> {
+        if self.validate().is_err() {
+            return Vec::new();
+        }
         let n = self.elements as f64;
         let w = 2.0 * self.wave_speed() / self.element_length();
         (1..=self.elements)
@@ -290,6 +348,46 @@ mod tests {
         let w1 = fine.natural_frequencies()[0];
         let w1c = std::f64::consts::PI * fine.wave_speed() / (2.0 * fine.length);
         assert!((w1 - w1c).abs() < 1e-4 * w1c);
+    }
+
+    /// Shifting by whole periods gives what the image sum itself gives (the derivation on
+    /// [`BarImpact::period`]), and late or absurd times end at once.
+    #[test]
+    fn late_times_use_the_period() {
+        let p = BarImpact::standard();
+        let period = p.period();
+        for x in [0.0, 0.13, 0.5].map(|s| s * p.length) {
+            for s in [2.3, 3.05, 7.71, 40.2] {
+                let t = s * period;
+                let direct = p.image_sum(x, t, |s| s.max(0.0));
+                let shifted = p.displacement_at(x, t);
+                assert!(
+                    (shifted - direct).abs() <= 1e-9 * direct.abs(),
+                    "{x} {s}: {shifted} {direct}"
+                );
+                let direct_v = p.image_sum(x, t, |s| if s > 0.0 { 1.0 } else { 0.0 });
+                assert_eq!(p.velocity_at(x, t), direct_v, "{x} {s}");
+            }
+        }
+        // A year of simulated time: finite, and the mean speed of the bar is v0.
+        let t = 3.15e7;
+        assert!((p.displacement_at(p.length, t) / (p.v0 * t) - 1.0).abs() < 1e-6);
+        for t in [f64::INFINITY, f64::NAN, 1e300] {
+            assert!(p.exact(t).is_nan(), "{t}");
+        }
+        // A bar of no length would sum images for ever: refused with NaN.
+        let flat = BarImpact {
+            length: 0.0,
+            ..BarImpact::standard()
+        };
+        assert!(flat.exact(1.0).is_nan() && flat.exact_velocity(1.0).is_nan());
+        let huge = BarImpact {
+            elements: usize::MAX,
+            ..BarImpact::standard()
+        };
+        assert!(huge.model().is_err());
+        assert_eq!(huge.initial_state().dofs(), 0);
+        assert!(huge.natural_frequencies().is_empty());
     }
 
     #[test]

@@ -5,7 +5,7 @@ use std::fmt;
 use super::{ReferenceProblem, finite, non_negative, positive};
 use crate::error::{ModelError, Result};
 use crate::linalg::CsrMatrix;
-use crate::model::{Damping, Model};
+use crate::model::{Damping, Model, check_buffers};
 use crate::state::State;
 
 /// The committed reference table (`tests/data/duffing_reference.csv`, written by
@@ -95,24 +95,29 @@ impl Duffing {
     }
 }
 
+/// Every buffer of a [`Model`] call has length 1: a wrong length is a [`ModelError`] (a NaN
+/// mass for [`lumped_mass`](Model::lumped_mass), which cannot return an error), not a panic.
 impl Model for Duffing {
     fn dofs(&self) -> usize {
         1
     }
     fn lumped_mass(&self, out: &mut [f64]) {
-        out[0] = self.m;
+        let m = if out.len() == 1 { self.m } else { f64::NAN };
+        out.fill(m);
     }
     fn internal_force(
         &mut self,
         _t: f64,
         u: &[f64],
-        _v: &[f64],
+        v: &[f64],
         out: &mut [f64],
     ) -> std::result::Result<(), ModelError> {
+        check_buffers(1, &[("u", u.len()), ("v", v.len()), ("out", out.len())])?;
         out[0] = self.k * u[0] + self.k3 * u[0].powi(3);
         Ok(())
     }
     fn external_force(&mut self, t: f64, out: &mut [f64]) -> std::result::Result<(), ModelError> {
+        check_buffers(1, &[("out", out.len())])?;
         out[0] = self.f0 * (self.w * t).sin();
         Ok(())
     }
@@ -122,10 +127,11 @@ impl Model for Duffing {
     fn damping_force(
         &mut self,
         _t: f64,
-        _u: &[f64],
+        u: &[f64],
         v: &[f64],
         out: &mut [f64],
     ) -> std::result::Result<(), ModelError> {
+        check_buffers(1, &[("u", u.len()), ("v", v.len()), ("out", out.len())])?;
         out[0] = self.c() * v[0];
         Ok(())
     }
@@ -139,6 +145,7 @@ impl Model for Duffing {
         x: &[f64],
         out: &mut [f64],
     ) -> std::result::Result<(), ModelError> {
+        check_buffers(1, &[("u", u.len()), ("x", x.len()), ("out", out.len())])?;
         out[0] = (self.k + 3.0 * self.k3 * u[0] * u[0]) * x[0];
         Ok(())
     }
@@ -149,14 +156,25 @@ impl Model for Duffing {
         &mut self,
         _t: f64,
         u: &[f64],
-        _v: &[f64],
+        v: &[f64],
         out: &mut CsrMatrix,
     ) -> std::result::Result<(), ModelError> {
+        check_buffers(1, &[("u", u.len()), ("v", v.len())])?;
+        if !out.same_pattern(&self.pattern) {
+            return Err(ModelError::failed(
+                "the tangent matrix given to Duffing::tangent_stiffness is not 1 x 1 with its one \
+                 entry stored",
+            ));
+        }
         out.data_mut()[0] = self.k + 3.0 * self.k3 * u[0] * u[0];
         Ok(())
     }
+    /// `k u^2 / 2 + k3 u^4 / 4`; `None` for a `u` of a length other than 1.
     fn stored_energy(&self, u: &[f64]) -> Option<f64> {
-        Some(0.5 * self.k * u[0] * u[0] + 0.25 * self.k3 * u[0].powi(4))
+        let &[u] = u else {
+            return None;
+        };
+        Some(0.5 * self.k * u * u + 0.25 * self.k3 * u.powi(4))
     }
 }
 

@@ -1,5 +1,6 @@
 //! Amplification matrices of the generalised-alpha family.
 
+use nalgebra::linalg::Schur;
 use nalgebra::{Complex, Matrix3};
 
 use crate::params::AlphaParams;
@@ -41,13 +42,41 @@ pub fn alpha_amplification(p: &AlphaParams, omega_dt: f64, xi: f64) -> [[f64; 3]
     ]
 }
 
+/// Iterations allowed to the real Schur decomposition of [`eigenvalues3`] (a 3x3 matrix converges
+/// in a handful; the limit only stops a pathological case).
+const SCHUR_MAX_ITERATIONS: usize = 10_000;
+
 /// The three eigenvalues of a 3x3 real matrix.
+///
+/// Computed from the real Schur form (shifted QR iterations, [`nalgebra::linalg::Schur`]) of the
+/// matrix scaled by a power of two when its largest entry is far from 1, so that entries near the
+/// overflow or underflow limits keep their eigenvalues finite. A matrix with a non-finite entry
+/// (NaN or infinity), or one whose decomposition does not converge within 10,000 iterations,
+/// gives three NaN eigenvalues: never a panic or an endless loop (the QR iteration on a NaN
+/// entry would not end).
 pub fn eigenvalues3(a: &[[f64; 3]; 3]) -> [Complex<f64>; 3] {
+    let nan = Complex::new(f64::NAN, f64::NAN);
+    if a.iter().flatten().any(|x| !x.is_finite()) {
+        return [nan; 3];
+    }
+    let amax = a.iter().flatten().fold(0.0_f64, |m, x| m.max(x.abs()));
+    // A power of two, so that the scaling is exact.
+    let scale = if amax > 2f64.powi(500) || (amax > 0.0 && amax < 2f64.powi(-500)) {
+        let e = (amax.log2().floor() as i32).clamp(-1022, 1023);
+        f64::from_bits(((e + 1023) as u64) << 52)
+    } else {
+        1.0
+    };
     let m = Matrix3::new(
         a[0][0], a[0][1], a[0][2], a[1][0], a[1][1], a[1][2], a[2][0], a[2][1], a[2][2],
-    );
-    let e = m.complex_eigenvalues();
-    [e[0], e[1], e[2]]
+    ) / scale;
+    match Schur::try_new(m, f64::EPSILON, SCHUR_MAX_ITERATIONS) {
+        Some(schur) => {
+            let e = schur.complex_eigenvalues();
+            [e[0] * scale, e[1] * scale, e[2] * scale]
+        }
+        None => [nan; 3],
+    }
 }
 
 #[cfg(test)]
@@ -98,6 +127,31 @@ mod tests {
                 }
             }
         }
+    }
+
+    /// Non-finite entries give NaN eigenvalues (the QR iteration would never end on them); entries
+    /// near the overflow limit keep their eigenvalues finite (exact: a rotation-scaling block
+    /// `[[s, s], [-s, s]]` has the eigenvalues `s (1 +/- i)`, and a diagonal entry is an eigenvalue).
+    #[test]
+    fn non_finite_and_extreme_matrices() {
+        for bad in [f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+            let mut a = [[1.0, 0.5, 0.0], [0.0, 1.0, 0.0], [0.0, 0.0, 2.0]];
+            a[1][2] = bad;
+            assert!(eigenvalues3(&a).iter().all(|z| z.re.is_nan()), "{bad}");
+        }
+        for s in [1e300, 1e-300, 1e-310] {
+            let a = [[s, s, 0.0], [-s, s, 0.0], [0.0, 0.0, 0.5 * s]];
+            let mut ev = eigenvalues3(&a);
+            ev.sort_by(|x, y| x.im.total_cmp(&y.im));
+            let want = [(s, -s), (0.5 * s, 0.0), (s, s)];
+            for (z, (re, im)) in ev.iter().zip(want) {
+                assert!(
+                    (z.re - re).abs() <= 1e-12 * s && (z.im - im).abs() <= 1e-12 * s,
+                    "{s}: {ev:?}"
+                );
+            }
+        }
+        assert_eq!(eigenvalues3(&[[0.0; 3]; 3]), [Complex::new(0.0, 0.0); 3]);
     }
 
     /// The trapezoidal rule has spectral radius 1 at every Omega (Hughes 1987, sec. 9.3).

@@ -100,8 +100,14 @@ pub fn omega_crit_closed_form(scheme: &Scheme, xi: f64) -> Option<f64> {
 /// beside it where one exists).
 ///
 /// # Errors
-/// [`Error::InvalidParameter`] for a negative or non-finite `xi` or context value.
+/// [`Error::InvalidParameter`] for a negative or non-finite `xi` or context value, and for family
+/// parameters that [`AlphaParams::raw`](crate::params::AlphaParams::raw) refuses (a non-finite
+/// value, `alpha_m >= 1`, `alpha_f >= 1`, a negative `beta` or `gamma`: the fields are public, so
+/// such a set can be built without a constructor, and no verdict on it would mean anything).
 pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
+    if let Scheme::Alpha(p) = scheme {
+        crate::params::AlphaParams::raw(p.alpha_m, p.alpha_f, p.beta, p.gamma)?;
+    }
     if !(xi.is_finite() && xi >= 0.0) {
         return Err(Error::InvalidParameter {
             name: "xi",

@@ -30,12 +30,23 @@ pub fn eigenvalues(scheme: &Scheme, omega_dt: f64, xi: f64) -> [Complex<f64>; 3]
     eigenvalues3(&scheme.amplification(omega_dt, xi))
 }
 
-/// The largest eigenvalue modulus.
+/// The largest eigenvalue modulus; NaN when the amplification matrix has a non-finite entry
+/// (a NaN or infinite `omega_dt` or `xi`, or one so large that the entries overflow), never a
+/// misleading finite value.
 pub fn spectral_radius(scheme: &Scheme, omega_dt: f64, xi: f64) -> f64 {
-    eigenvalues(scheme, omega_dt, xi)
-        .iter()
-        .map(|z| z.norm())
-        .fold(0.0, f64::max)
+    largest_modulus(&eigenvalues(scheme, omega_dt, xi))
+}
+
+/// The largest modulus of three eigenvalues, NaN when one of them is NaN (`f64::max` would drop
+/// it).
+fn largest_modulus(ev: &[Complex<f64>; 3]) -> f64 {
+    ev.iter().map(|z| z.norm()).fold(0.0, |m, r| {
+        if m.is_nan() || r.is_nan() {
+            f64::NAN
+        } else {
+            m.max(r)
+        }
+    })
 }
 
 /// Spectral radius, principal pair, damping ratio and period error at `omega_dt`.
@@ -46,7 +57,7 @@ pub fn spectral_radius(scheme: &Scheme, omega_dt: f64, xi: f64) -> f64 {
 /// Hulbert 1993).
 pub fn metrics(scheme: &Scheme, omega_dt: f64, xi: f64) -> Metrics {
     let ev = eigenvalues(scheme, omega_dt, xi);
-    let rho = ev.iter().map(|z| z.norm()).fold(0.0, f64::max);
+    let rho = largest_modulus(&ev);
     // Complex roots come in conjugate pairs; a pair is complex when its imaginary part is more
     // than round-off.
     let principal = ev
@@ -135,7 +146,17 @@ pub const INSTABILITY_MARGIN: f64 = 1e-9;
 ///
 /// This is the numerical path; an unconditional-stability verdict rests on the published bounds
 /// and the limit analysis ([`check`](super::check)), not on this scan.
+///
+/// A NaN `omega_max_scan` scans nothing (`None`); an infinite one scans up to `f64::MAX`. Where
+/// the spectral radius is NaN (a NaN `xi`, or an `Omega` so large that the amplification matrix
+/// overflows) no instability is counted.
 pub fn omega_crit_numeric(scheme: &Scheme, xi: f64, omega_max_scan: f64) -> Option<f64> {
+    if omega_max_scan.is_nan() {
+        return None;
+    }
+    // Growing `hi` eventually exceeds any finite limit (and `hi * 1.05` overflows to infinity,
+    // which exceeds `f64::MAX`), so the scan always ends.
+    let omega_max_scan = omega_max_scan.min(f64::MAX);
     let unstable = |o: f64| spectral_radius(scheme, o, xi) > 1.0 + INSTABILITY_MARGIN;
     if unstable(OMEGA_SCAN_START) {
         return Some(0.0);

@@ -81,8 +81,23 @@ impl tempora::linalg::LinearSolver for DenseLu {
         Ok(())
     }
     fn solve_in_place(&mut self, rhs: &mut [f64]) -> tempora::Result<tempora::linalg::SolveInfo> {
+        let Some(lu) = self.lu.as_ref() else {
+            return Err(tempora::Error::SolverNotReady {
+                solver: "dense LU (test)",
+                missing: "factor",
+            });
+        };
         let b = nalgebra::DVector::from_column_slice(rhs);
-        let x = self.lu.as_ref().unwrap().solve(&b).unwrap();
+        // A singular matrix (or a right-hand side of another length) is an error, not a panic.
+        let x = match (b.len() == lu.l().nrows()).then(|| lu.solve(&b)).flatten() {
+            Some(x) => x,
+            None => {
+                return Err(tempora::Error::SingularMatrix {
+                    solver: "dense LU (test)",
+                    evidence: tempora::error::Singularity::NonFiniteSolution { index: 0 },
+                });
+            }
+        };
         rhs.copy_from_slice(x.as_slice());
         Ok(tempora::linalg::SolveInfo {
             iterations: 0,
