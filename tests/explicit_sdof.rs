@@ -67,6 +67,40 @@ fn stability_limit_two_is_sharp() {
         state.u[0]
     );
     assert!(state.v[0].is_finite() && state.a[0].is_finite());
+
+    // Far above the limit a mode grows by about Omega^2 - 2 per step (the larger root of
+    // z^2 - (2 - Omega^2) z + 1, common practice) and would overflow after about
+    // 308 / log10(Omega^2 - 2) steps: the guard stops every such run within half of that (values
+    // below about 1e150), keeping the last
+    // accepted state (the step before the rejected one), whose kinetic energy is within the
+    // guard's factor (10, the default growth limit) of the initial energy 1/2.
+    for omega_dt in [2.5, 4.0, 10.0, 100.0, 1e4] {
+        let mut state = State::new(0.0, vec![1.0], vec![0.0]).unwrap();
+        let mut cd = CentralDifference::new(&mut model, &mut state, unchecked()).unwrap();
+        let opts = RunOptions::new(1e9, StepControl::Fixed(omega_dt));
+        let out = run(&mut cd, &mut model, &mut state, &opts, |_| Flow::Continue).unwrap();
+        let overflow_steps = 300.0 / (2.0 * f64::log10(omega_dt * omega_dt - 2.0));
+        match out.stop {
+            StopReason::Failed(Error::Unstable { step, .. }) => {
+                assert!(
+                    (step as f64) < overflow_steps,
+                    "Omega {omega_dt}: stopped at step {step}"
+                );
+                assert_eq!(
+                    state.step,
+                    step - 1,
+                    "Omega {omega_dt}: not the last good state"
+                );
+            }
+            other => panic!("Omega {omega_dt}: expected the instability guard, got {other:?}"),
+        }
+        assert!(state.u[0].is_finite() && state.v[0].is_finite() && state.a[0].is_finite());
+        let kinetic = 0.5 * state.v[0] * state.v[0];
+        assert!(
+            kinetic <= 10.0 * 0.5,
+            "Omega {omega_dt}: kept kinetic energy {kinetic}"
+        );
+    }
 }
 
 /// Exact free vibration of a damped SDOF (any structural-dynamics textbook, e.g. Chopra,

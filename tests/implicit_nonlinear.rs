@@ -192,6 +192,110 @@ impl Model for Breaks {
     }
 }
 
+/// The kept state is a converged one: its acceleration satisfies the (undamped, unloaded)
+/// equation of motion `m a + f_int(u) = 0` to the Newton tolerance (1e-8 relative to the force),
+/// and the energy ledger belongs to it (the kinetic energy of its velocity).
+fn assert_converged(d: &mut Duffing, state: &State, it: &AlphaIntegrator) {
+    let (mut f, mut m) = ([0.0], [0.0]);
+    d.internal_force(state.t, &state.u, &state.v, &mut f)
+        .unwrap();
+    d.lumped_mass(&mut m);
+    let residual = m[0] * state.a[0] + f[0];
+    assert!(
+        residual.abs() <= 1e-7 * f[0].abs().max(1.0),
+        "t = {}: residual {residual:e} of a kept state",
+        state.t
+    );
+    let kinetic = 0.5 * m[0] * state.v[0] * state.v[0];
+    assert!((it.energy().kinetic - kinetic).abs() <= 1e-14 * kinetic.max(1e-300));
+}
+
+/// A model whose internal force is NaN beyond a time (a material law that breaks down without
+/// reporting it): Newton's residual is not finite there at any sub-step, so the step fails after
+/// its cut-backs with a Newton error, and the state is the last converged sub-step's.
+struct GoesNan(Duffing, f64);
+
+impl Model for GoesNan {
+    fn dofs(&self) -> usize {
+        1
+    }
+    fn lumped_mass(&self, out: &mut [f64]) {
+        self.0.lumped_mass(out)
+    }
+    fn internal_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        self.0.internal_force(t, u, v, out)?;
+        if t > self.1 {
+            out[0] = f64::NAN;
+        }
+        Ok(())
+    }
+    fn tangent_pattern(&self) -> Option<&tempora::linalg::CsrMatrix> {
+        self.0.tangent_pattern()
+    }
+    fn tangent_stiffness(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut tempora::linalg::CsrMatrix,
+    ) -> Result<(), ModelError> {
+        self.0.tangent_stiffness(t, u, v, out)
+    }
+}
+
+/// Newton failure at the smallest step after some sub-steps converged: the error is Newton's,
+/// reports the smallest step (`dt / 2^max_cutbacks`) and the time of the state kept, which is
+/// the last converged sub-step (before the breakdown time, after the step's start).
+#[test]
+fn newton_failure_at_the_smallest_step_returns_the_last_converged_state() {
+    let mut model = GoesNan(Duffing::reference(), 0.33);
+    let mut state = State::new(0.0, vec![0.5], vec![0.0]).unwrap();
+    let newton = NewtonOptions {
+        max_cutbacks: 4,
+        ..Default::default()
+    };
+    let mut it = AlphaIntegrator::new(
+        &mut model,
+        &mut state,
+        // The trapezoidal rule balances forces at t_{n+1} itself (what `assert_converged` checks).
+        AlphaParams::average_acceleration(),
+        common::DenseLu::boxed(),
+        ImplicitOptions {
+            newton,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    it.step(&mut model, &mut state, 0.2).unwrap();
+    let e = it.step(&mut model, &mut state, 0.2).unwrap_err();
+    match e {
+        Error::NewtonDiverged {
+            t, dt, cutbacks, ..
+        }
+        | Error::NewtonNotConverged {
+            t, dt, cutbacks, ..
+        } => {
+            assert_eq!(cutbacks, 4);
+            // dt / 2^4, up to the rounding of a remainder `t_end - t` taken as a sub-step.
+            assert!((dt - 0.2 / 16.0).abs() < 1e-12, "{dt}");
+            assert_eq!(
+                t.to_bits(),
+                state.t.to_bits(),
+                "the error names the kept state's time"
+            );
+        }
+        other => panic!("expected a Newton failure, got {other}"),
+    }
+    assert!(state.t > 0.2 && state.t <= 0.33, "t = {}", state.t);
+    assert_converged(&mut model.0, &state, &it);
+}
+
 #[test]
 fn failure_at_the_smallest_step_keeps_the_last_converged_state() {
     let mut model = Breaks(Duffing::reference(), 0.35);
@@ -206,10 +310,10 @@ fn failure_at_the_smallest_step_keeps_the_last_converged_state() {
     .unwrap();
     it.step(&mut model, &mut state, 0.2).unwrap();
     let e = it.step(&mut model, &mut state, 0.2).unwrap_err();
-    assert!(matches!(e, Error::Model { .. }), "{e}");
+    assert!(matches!(e, Error::Model { t, .. } if t > 0.35), "{e}");
     // Sub-steps up to t <= 0.35 converged and were kept; nothing beyond.
     assert!(state.t > 0.2 && state.t <= 0.35, "t = {}", state.t);
-    assert!(state.u[0].is_finite());
+    assert_converged(&mut model.0, &state, &it);
 
     // Newton that cannot converge (one iteration on a nonlinear step): typed error, state kept.
     let (mut model, mut state, mut it) = start(
@@ -221,13 +325,22 @@ fn failure_at_the_smallest_step_keeps_the_last_converged_state() {
         },
     );
     let before = state.clone();
+    let ledger = it.energy().clone();
     let e = it.step(&mut model, &mut state, 0.5).unwrap_err();
     match e {
-        Error::NewtonNotConverged { cutbacks, dt, .. } => {
+        Error::NewtonNotConverged {
+            cutbacks, dt, t, ..
+        } => {
             assert_eq!(cutbacks, 2);
             assert!((dt - 0.125).abs() < 1e-15);
+            assert_eq!(t, before.t);
         }
         other => panic!("{other}"),
     }
     assert_eq!(state, before);
+    assert_eq!(
+        it.energy(),
+        &ledger,
+        "the ledger is the last converged state's"
+    );
 }
