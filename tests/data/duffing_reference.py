@@ -7,10 +7,24 @@ integrated by SciPy's DOP853 (an 8th-order Runge-Kutta method) at tight toleranc
 of tempora. Writes tests/data/duffing_reference.csv with a header that records the command line,
 the parameters and the library versions.
 
-Run from the repository root:  python3 tests/data/duffing_reference.py
+Run from the repository root:
+
+    python3 tests/data/duffing_reference.py            # regenerate the table
+    python3 tests/data/duffing_reference.py OUT.csv    # write it elsewhere
+    python3 tests/data/duffing_reference.py --check    # regenerate into a temporary folder and
+                                                       # compare with the committed table
+
+`--check` exits with status 1 and names the differences when a fresh run differs from the
+committed table beyond round-off (same times exactly; u and v within 1e-9 of the run's largest
+|u| and |v|: a rerun with other library versions moves the values by about the integration
+error, which Radau bounds at ~1e-12, while any real change moves them by far more). The header's
+version line and the measured agreement are allowed to differ.
 Requirements: tests/data/requirements.txt
 """
+import argparse
+import os
 import sys
+import tempfile
 
 import numpy as np
 import scipy
@@ -28,7 +42,11 @@ def rhs(t, y):
     return [v, (F0 * np.sin(W * t) - C * v - K * u - K3 * u**3) / M]
 
 
-def main():
+COMMITTED = "tests/data/duffing_reference.csv"
+CHECK_TOL = 1e-9
+
+
+def write(out):
     times = np.round(np.arange(0.0, T_END + 0.5 * DT_OUT, DT_OUT), 12)
     sol = solve_ivp(rhs, (0.0, T_END), [U0, V0], method="DOP853", t_eval=times,
                     rtol=1e-13, atol=1e-15)
@@ -39,7 +57,6 @@ def main():
     assert check.success, check.message
     diff = np.max(np.abs(check.y - sol.y))
     assert diff < 1e-8, f"DOP853 and Radau differ by {diff}"
-    out = sys.argv[1] if len(sys.argv) > 1 else "tests/data/duffing_reference.csv"
     with open(out, "w") as f:
         f.write("# command: python3 tests/data/duffing_reference.py\n")
         f.write(f"# python {sys.version.split()[0]}, numpy {np.__version__}, scipy {scipy.__version__}\n")
@@ -51,5 +68,69 @@ def main():
             f.write(f"{float(t)!r},{float(u)!r},{float(v)!r}\n")
 
 
+def read(path):
+    """(stable header lines, column line, rows): the version line and the measured agreement
+    are left out of the header."""
+    header, columns, rows = [], None, []
+    with open(path) as f:
+        for line in f:
+            line = line.rstrip("\n")
+            if line.startswith("#"):
+                if not line.startswith("# python ") and "agrees within" not in line:
+                    header.append(line)
+            elif columns is None:
+                columns = line
+            elif line:
+                rows.append(line.split(","))
+    return header, columns, rows
+
+
+def check():
+    errors = []
+    with tempfile.TemporaryDirectory() as tmp:
+        fresh = os.path.join(tmp, "duffing_reference.csv")
+        write(fresh)
+        (h0, c0, r0), (h1, c1, r1) = read(COMMITTED), read(fresh)
+    if h0 != h1:
+        errors.append(f"header differs: {h0} vs {h1}")
+    if c0 != c1:
+        errors.append(f"columns differ: {c0} vs {c1}")
+    if len(r0) != len(r1):
+        errors.append(f"{len(r0)} rows committed, {len(r1)} regenerated")
+    else:
+        scale = [max(abs(float(r[j])) for r in r0) for j in (1, 2)]
+        for a, b in zip(r0, r1):
+            if a[0] != b[0]:
+                errors.append(f"times differ: {a[0]} vs {b[0]}")
+                continue
+            for j, name in [(1, "u"), (2, "v")]:
+                d = abs(float(a[j]) - float(b[j]))
+                if not d <= CHECK_TOL * scale[j - 1]:
+                    errors.append(f"t={a[0]}: {name} differs by {d:.2e}")
+    if errors:
+        print(f"duffing_reference.py --check: {COMMITTED} differs from a fresh run "
+              f"({len(errors)} differences; regenerate with "
+              "`python3 tests/data/duffing_reference.py` and commit, or find what changed):",
+              file=sys.stderr)
+        for e in errors[:20]:
+            print("  " + e, file=sys.stderr)
+        return 1
+    print(f"duffing_reference.py --check: {COMMITTED} agrees with a fresh run within round-off")
+    return 0
+
+
+def main():
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("out", nargs="?", default=COMMITTED, help="where to write the table")
+    parser.add_argument("--check", action="store_true",
+                        help="regenerate into a temporary folder and compare with the committed "
+                             "table; exit 1 on a difference beyond round-off")
+    args = parser.parse_args()
+    if args.check:
+        return check()
+    write(args.out)
+    return 0
+
+
 if __name__ == "__main__":
-    main()
+    sys.exit(main())
