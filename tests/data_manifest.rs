@@ -13,7 +13,12 @@ fn data_dir() -> PathBuf {
 fn data_files() -> Vec<String> {
     let mut names: Vec<String> = fs::read_dir(data_dir())
         .expect("tests/data exists")
-        .map(|e| e.expect("a directory entry").file_name().to_string_lossy().into_owned())
+        .map(|e| {
+            e.expect("a directory entry")
+                .file_name()
+                .to_string_lossy()
+                .into_owned()
+        })
         .filter(|n| n != "MANIFEST.md" && !n.starts_with('.') && n != "__pycache__")
         .collect();
     names.sort();
@@ -116,5 +121,8 @@ fn no_numeric_table_in_tests_data_is_unattributed() {
              tests/data/<script>.py` (an existing script) or `# source: ...` in its header"
         );
     }
-    assert!(tables >= 1, "no numeric table found: is the detector broken?");
+    assert!(
+        tables >= 1,
+        "no numeric table found: is the detector broken?"
+    );
 }

@@ -58,7 +58,11 @@ fn every_check_passes_and_the_validation_page_is_current() {
             cell(&c.tolerance)
         );
         assert!(row.contains(&middle), "{stale}: row of {} differs", c.id);
-        assert!(row.ends_with("| pass |"), "{stale}: {} not shown as passing", c.id);
+        assert!(
+            row.ends_with("| pass |"),
+            "{stale}: {} not shown as passing",
+            c.id
+        );
     }
     let passed = format!("**{} of {} checks pass.**", checks.len(), checks.len());
     assert!(page.contains(&passed), "{stale}");
@@ -94,7 +98,10 @@ fn verify_command_prints_json_and_writes_markdown() {
     let v: serde_json::Value = serde_json::from_str(&out).expect("JSON");
     let list = v.as_array().expect("an array of checks");
     assert!(!list.is_empty());
-    assert!(list.iter().all(|c| c["kind"] == "closed-form" && c["passed"] == true));
+    assert!(
+        list.iter()
+            .all(|c| c["kind"] == "closed-form" && c["passed"] == true)
+    );
     let page = std::fs::read_to_string(&md).expect("markdown written");
     assert!(page.starts_with("# Validation"));
     assert!(page.contains("## Closed-form results"));

@@ -86,9 +86,8 @@ pub fn run(args: &VerifyArgs) -> Result<bool, Failure> {
             .collect()
     };
     if let Some(path) = &args.markdown {
-        write_atomically(path, verification::markdown(&checks).as_bytes()).map_err(|e| {
-            Failure::Runtime(format!("cannot write `{}`: {e}", path.display()))
-        })?;
+        write_atomically(path, verification::markdown(&checks).as_bytes())
+            .map_err(|e| Failure::Runtime(format!("cannot write `{}`: {e}", path.display())))?;
     }
     let text = if args.format.json {
         let mut s = serde_json::to_string_pretty(&checks)
