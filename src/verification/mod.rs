@@ -254,6 +254,9 @@ pub fn markdown(checks: &[Check]) -> String {
             );
         }
         let _ = writeln!(s);
+        if kind == Kind::Convergence {
+            s.push_str(&order_matrix(checks));
+        }
     }
     if !notes.is_empty() {
         let _ = writeln!(s, "## Notes\n");
@@ -262,6 +265,54 @@ pub fn markdown(checks: &[Check]) -> String {
         }
         let _ = writeln!(s);
     }
+    s
+}
+
+/// The convergence checks at a glance: one row per scheme, one column per problem, the measured
+/// order in each cell (from ids `convergence.<scheme>.<problem>` and results `order = ...`).
+fn order_matrix(checks: &[Check]) -> String {
+    let mut schemes: Vec<&str> = Vec::new();
+    let mut problems: Vec<&str> = Vec::new();
+    let mut cells = Vec::new();
+    for c in checks.iter().filter(|c| c.kind == Kind::Convergence) {
+        let mut parts = c.id.splitn(3, '.');
+        let (Some(_), Some(scheme), Some(problem)) = (parts.next(), parts.next(), parts.next())
+        else {
+            continue;
+        };
+        let order = c
+            .result
+            .strip_prefix("order = ")
+            .and_then(|r| r.split_whitespace().next())
+            .unwrap_or("?");
+        if !schemes.contains(&scheme) {
+            schemes.push(scheme);
+        }
+        if !problems.contains(&problem) {
+            problems.push(problem);
+        }
+        let mark = if c.passed { "" } else { " (FAIL)" };
+        cells.push((scheme, problem, format!("{order}{mark}")));
+    }
+    if cells.is_empty() {
+        return String::new();
+    }
+    let mut s = String::from("Measured orders at a glance (rows: schemes, columns: problems):\n\n");
+    let _ = writeln!(s, "| scheme | {} |", problems.join(" | "));
+    let _ = writeln!(s, "|---|{}", "---|".repeat(problems.len()));
+    for scheme in &schemes {
+        let row: Vec<String> = problems
+            .iter()
+            .map(|p| {
+                cells
+                    .iter()
+                    .find(|(sc, pr, _)| sc == scheme && pr == p)
+                    .map_or_else(|| "-".to_string(), |(_, _, o)| o.clone())
+            })
+            .collect();
+        let _ = writeln!(s, "| {scheme} | {} |", row.join(" | "));
+    }
+    s.push('\n');
     s
 }
 
