@@ -60,6 +60,7 @@ fn model(n: usize) -> LinearModel {
 fn steps_allocate_nothing() {
     explicit_steps_allocate_nothing();
     implicit_linear_steps_allocate_nothing();
+    implicit_streamlined_steps_allocate_nothing();
 }
 
 fn explicit_steps_allocate_nothing() {
@@ -147,4 +148,67 @@ fn implicit_linear_steps_allocate_nothing() {
     }
     let during = ALLOCATIONS.load(Ordering::SeqCst) - before;
     assert_eq!(during, 0, "{during} allocations in 20 implicit steps");
+}
+
+/// The streamlined implicit linear path (no constraints: lumped and consistent mass, undamped
+/// and damped), serial and, above the parallel threshold, from inside rayon's pool, allocates
+/// nothing per step after the first.
+fn implicit_streamlined_steps_allocate_nothing() {
+    use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
+    use tempora::linalg::SparseCholesky;
+    use tempora::params::AlphaParams;
+    let run = |n: usize, consistent: bool, damped: bool| {
+        let mass = if consistent {
+            common::dense_band_mass(n)
+        } else {
+            common::diag(&vec![1.0; n])
+        };
+        let mut pattern = vec![0.0; n];
+        pattern[n - 1] = 1.0;
+        let mut m = LinearModel::new(&mass, &common::chain_stiffness(n, 1.0e4, true, false))
+            .unwrap()
+            .with_load(Load::Pattern {
+                pattern,
+                factor: TimeFunction::table(vec![0.0, 1.0], vec![0.0, 1.0]).unwrap(),
+            })
+            .unwrap();
+        if damped {
+            m = m.with_rayleigh(0.1, 1e-4).unwrap();
+        }
+        let mut state = State::at_rest(n, 0.0);
+        let mut it = AlphaIntegrator::new(
+            &mut m,
+            &mut state,
+            AlphaParams::hht(-0.1).unwrap(),
+            Box::new(SparseCholesky::new()),
+            ImplicitOptions::default(),
+        )
+        .unwrap();
+        for _ in 0..3 {
+            it.step(&mut m, &mut state, 0.01).unwrap();
+        }
+        let before = ALLOCATIONS.load(Ordering::SeqCst);
+        for _ in 0..10 {
+            it.step(&mut m, &mut state, 0.01).unwrap();
+        }
+        let during = ALLOCATIONS.load(Ordering::SeqCst) - before;
+        assert_eq!(
+            during, 0,
+            "n = {n}, consistent {consistent}, damped {damped}: {during} allocations in 10 steps"
+        );
+        assert!(
+            state.u.iter().any(|&x| x != 0.0),
+            "the load moved the chain"
+        );
+    };
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(2)
+        .build()
+        .unwrap();
+    for consistent in [false, true] {
+        for damped in [false, true] {
+            run(2000, consistent, damped);
+            pool.install(|| run(40_000, consistent, damped));
+        }
+    }
 }

@@ -19,6 +19,7 @@ mod explicit;
 mod implicit;
 mod machine;
 mod scale;
+mod scale_implicit;
 mod sweep;
 mod timing;
 mod workprec;

@@ -101,6 +101,20 @@ impl SparseCholesky {
         Self::default()
     }
 
+    /// Number of stored values of the factor `L` (its fill, diagonal included) once a pattern is
+    /// analysed; `None` before.
+    pub fn factor_len(&self) -> Option<usize> {
+        self.analysed.as_ref().map(|an| an.symbolic.len_val())
+    }
+
+    /// True when faer chose its supernodal variant for the analysed pattern (`None` before
+    /// [`analyze`](LinearSolver::analyze)).
+    pub fn is_supernodal(&self) -> Option<bool> {
+        self.analysed
+            .as_ref()
+            .map(|an| matches!(an.symbolic.raw(), SymbolicCholeskyRaw::Supernodal(_)))
+    }
+
     /// Forces faer's simplicial or supernodal variant, to test both.
     #[cfg(test)]
     fn with_variant(variant: SupernodalThreshold) -> Self {

@@ -95,6 +95,67 @@ pub(crate) fn for_chunks2<P, F>(
     }
 }
 
+/// Runs `f(start, out_chunk, partial)` over the chunks of one output vector, in parallel when
+/// `parallel`, with one partial-result slot per chunk.
+///
+/// # Panics
+/// When `partials.len() != chunk_count(out.len())` (a programmer error inside the crate).
+pub(crate) fn for_chunks1<P, F>(parallel: bool, out: &mut [f64], partials: &mut [P], f: F)
+where
+    P: Send,
+    F: Fn(usize, &mut [f64], &mut P) + Sync + Send,
+{
+    assert_eq!(partials.len(), chunk_count(out.len()));
+    if parallel {
+        out.par_chunks_mut(CHUNK)
+            .zip(partials.par_iter_mut())
+            .enumerate()
+            .for_each(|(c, (o, p))| f(c * CHUNK, o, p));
+    } else {
+        out.chunks_mut(CHUNK)
+            .zip(partials.iter_mut())
+            .enumerate()
+            .for_each(|(c, (o, p))| f(c * CHUNK, o, p));
+    }
+}
+
+/// Four equally long output vectors, cut into chunks together by [`for_chunks4`].
+pub(crate) type Chunks4<'a> = [&'a mut [f64]; 4];
+
+/// Runs `f(start, [out1, out2, out3, out4] chunks, partial)` over the chunks of four equally long
+/// output vectors, in parallel when `parallel`, with one partial-result slot per chunk.
+///
+/// # Panics
+/// When the outputs differ in length or `partials.len() != chunk_count(out[0].len())` (a
+/// programmer error inside the crate).
+pub(crate) fn for_chunks4<P, F>(parallel: bool, out: Chunks4<'_>, partials: &mut [P], f: F)
+where
+    P: Send,
+    F: Fn(usize, Chunks4<'_>, &mut P) + Sync + Send,
+{
+    let [o1, o2, o3, o4] = out;
+    let n = o1.len();
+    assert!(o2.len() == n && o3.len() == n && o4.len() == n);
+    assert_eq!(partials.len(), chunk_count(n));
+    if parallel {
+        o1.par_chunks_mut(CHUNK)
+            .zip(o2.par_chunks_mut(CHUNK))
+            .zip(o3.par_chunks_mut(CHUNK))
+            .zip(o4.par_chunks_mut(CHUNK))
+            .zip(partials.par_iter_mut())
+            .enumerate()
+            .for_each(|(c, ((((a, b), d), e), p))| f(c * CHUNK, [a, b, d, e], p));
+    } else {
+        o1.chunks_mut(CHUNK)
+            .zip(o2.chunks_mut(CHUNK))
+            .zip(o3.chunks_mut(CHUNK))
+            .zip(o4.chunks_mut(CHUNK))
+            .zip(partials.iter_mut())
+            .enumerate()
+            .for_each(|(c, ((((a, b), d), e), p))| f(c * CHUNK, [a, b, d, e], p));
+    }
+}
+
 /// Runs `f(start, partial)` over the chunks of a vector of length `n`, read-only, with one
 /// partial-result slot per chunk.
 pub(crate) fn for_chunks_read<P, F>(parallel: bool, n: usize, partials: &mut [P], f: F)
