@@ -907,24 +907,34 @@ impl AlphaIntegrator {
             self.factored_for = Some(h);
         }
         model.external_force(t1, &mut self.f_ext1).map_err(&err)?;
-        // 1. Predictor.
+        // 1. Predictor (the velocity only where a damping force needs it: the internal force
+        // of a linear model does not depend on it).
         let (u0, v0, a0) = (&state.u[..], &state.v[..], &state.a[..]);
-        crate::linalg::for_chunks2(
-            par,
-            &mut self.u1,
-            &mut self.v1,
-            &mut self.no_partials,
-            |start, u1, v1, _| {
-                let end = start + u1.len();
-                let (u0, v0, a0) = (&u0[start..end], &v0[start..end], &a0[start..end]);
-                for i in 0..u1.len() {
-                    u1[i] = u0[i] + h * v0[i] + 0.5 * h * h * a0[i];
-                    v1[i] = v0[i] + h * a0[i];
+        let predict = |i: usize| u0[i] + h * v0[i] + 0.5 * h * h * a0[i];
+        if damped {
+            crate::linalg::for_chunks2(
+                par,
+                &mut self.u1,
+                &mut self.v1,
+                &mut self.no_partials,
+                |start, u1, v1, _| {
+                    for k in 0..u1.len() {
+                        let i = start + k;
+                        u1[k] = predict(i);
+                        v1[k] = v0[i] + h * a0[i];
+                    }
+                },
+            );
+        } else {
+            crate::linalg::for_chunks1(par, &mut self.u1, &mut self.no_partials, |start, u1, _| {
+                for (k, x) in u1.iter_mut().enumerate() {
+                    *x = predict(start + k);
                 }
-            },
-        );
+            });
+        }
+        let v_force = if damped { &self.v1[..] } else { v0 };
         model
-            .internal_force(t1, &self.u1, &self.v1, &mut self.f_int1)
+            .internal_force(t1, &self.u1, v_force, &mut self.f_int1)
             .map_err(&err)?;
         if damped {
             damping_force(
@@ -949,25 +959,48 @@ impl AlphaIntegrator {
             let (mw, fi0, fi1, fd0, fd1) =
                 (&self.mw, &self.f_int0, &self.f_int1, &self.f_d0, &self.f_d1);
             let (fe0, fe1) = (&self.f_ext0, &self.f_ext1);
-            crate::linalg::for_chunks1(par, &mut self.du, &mut self.no_partials, |start, du, _| {
-                for (k, out) in du.iter_mut().enumerate() {
-                    let i = start + k;
-                    let ma = match md {
-                        Some(m) => m[i] * a0[i],
-                        None => mw[i],
-                    };
-                    let (g1, g0) = if damped {
-                        (fi1[i] + fd1[i], fi0[i] + fd0[i])
-                    } else {
-                        (fi1[i], fi0[i])
-                    };
-                    let fe = af * fe1[i] + bf * fe0[i];
-                    *out = -(ma + (af * g1 + bf * g0) - fe);
-                }
-            });
+            let rhs = |i: usize| {
+                let ma = match md {
+                    Some(m) => m[i] * a0[i],
+                    None => mw[i],
+                };
+                let (g1, g0) = if damped {
+                    (fi1[i] + fd1[i], fi0[i] + fd0[i])
+                } else {
+                    (fi1[i], fi0[i])
+                };
+                let fe = af * fe1[i] + bf * fe0[i];
+                -(ma + (af * g1 + bf * g0) - fe)
+            };
+            match md {
+                // Lumped, undamped, alpha_f = 0: the same value, without reading g_n and
+                // f_ext(t_n) (multiplied by zero).
+                Some(m) if !damped && bf == 0.0 => crate::linalg::for_chunks1(
+                    par,
+                    &mut self.du,
+                    &mut self.no_partials,
+                    |start, du, _| {
+                        for (k, out) in du.iter_mut().enumerate() {
+                            let i = start + k;
+                            *out = -(m[i] * a0[i] + fi1[i] - fe1[i]);
+                        }
+                    },
+                ),
+                _ => crate::linalg::for_chunks1(
+                    par,
+                    &mut self.du,
+                    &mut self.no_partials,
+                    |start, du, _| {
+                        for (k, out) in du.iter_mut().enumerate() {
+                            *out = rhs(start + k);
+                        }
+                    },
+                ),
+            }
         }
         self.solver.solve_in_place(&mut self.du)?;
-        // 3. Update, the new balance force, and the works.
+        // 3. Update, the new balance force, and the works. The predictor is formed again rather
+        // than read back (one stream less).
         let lumped_undamped = md.is_some() && !damped;
         {
             let (du, fi0, fd0, fe0, fe1) = (
@@ -977,45 +1010,74 @@ impl AlphaIntegrator {
                 &self.f_ext0,
                 &self.f_ext1,
             );
-            crate::linalg::for_chunks4(
-                par,
-                [&mut self.u1, &mut self.v1, &mut self.a1, &mut self.f_int1],
-                &mut self.partials,
-                |start, [u1, v1, a1, f1], sums| {
-                    let mut s = [0.0; 4];
-                    for k in 0..u1.len() {
-                        let i = start + k;
-                        let d = du[i];
-                        let un = u1[k] + d;
-                        let an = a0[i] + d / bh2;
-                        let vn = v0[i] + h * a0[i] + (g * d) / bh;
-                        u1[k] = un;
-                        a1[k] = an;
-                        v1[k] = vn;
-                        let w = am * an + bm * a0[i];
-                        let step_u = un - u0[i];
-                        s[1] += step_u * (fe0[i] + fe1[i]);
-                        s[3] += (un - un) + (an - an) + (vn - vn);
-                        match md {
-                            Some(m) => {
-                                // (1 - alpha_f) g1 = f_alpha - alpha_f g0 - M w.
-                                let g0 = if damped { fi0[i] + fd0[i] } else { fi0[i] };
-                                let fe = af * fe1[i] + bf * fe0[i];
-                                let g1 = (fe - bf * g0 - m[i] * w) / af;
-                                f1[k] = g1;
-                                s[3] += g1 - g1;
-                                s[2] += m[i] * vn * vn;
-                                if !damped {
-                                    s[0] += step_u * (fi0[i] + g1);
-                                }
-                            }
-                            // M w in the next pass.
-                            None => f1[k] = w,
+            let outs = [&mut self.u1, &mut self.v1, &mut self.a1, &mut self.f_int1];
+            let outs = outs.map(|v| &mut v[..]);
+            match md {
+                Some(m) if !damped => crate::linalg::for_chunks4(
+                    par,
+                    outs,
+                    &mut self.partials,
+                    |start, [u1, v1, a1, f1], sums| {
+                        let mut s = [0.0; 4];
+                        for k in 0..u1.len() {
+                            let i = start + k;
+                            let d = du[i];
+                            let un = predict(i) + d;
+                            let an = a0[i] + d / bh2;
+                            let vn = v0[i] + h * a0[i] + (g * d) / bh;
+                            u1[k] = un;
+                            a1[k] = an;
+                            v1[k] = vn;
+                            // (1 - alpha_f) g1 = f_alpha - alpha_f g0 - M w.
+                            let w = am * an + bm * a0[i];
+                            let fe = af * fe1[i] + bf * fe0[i];
+                            let g1 = (fe - bf * fi0[i] - m[i] * w) / af;
+                            f1[k] = g1;
+                            let step_u = un - u0[i];
+                            s[0] += step_u * (fi0[i] + g1);
+                            s[1] += step_u * (fe0[i] + fe1[i]);
+                            s[2] += m[i] * vn * vn;
+                            s[3] += (un - un) + (an - an) + (vn - vn) + (g1 - g1);
                         }
-                    }
-                    *sums = s;
-                },
-            );
+                        *sums = s;
+                    },
+                ),
+                _ => crate::linalg::for_chunks4(
+                    par,
+                    outs,
+                    &mut self.partials,
+                    |start, [u1, v1, a1, f1], sums| {
+                        let mut s = [0.0; 4];
+                        for k in 0..u1.len() {
+                            let i = start + k;
+                            let d = du[i];
+                            let un = predict(i) + d;
+                            let an = a0[i] + d / bh2;
+                            let vn = v0[i] + h * a0[i] + (g * d) / bh;
+                            u1[k] = un;
+                            a1[k] = an;
+                            v1[k] = vn;
+                            let w = am * an + bm * a0[i];
+                            let step_u = un - u0[i];
+                            s[1] += step_u * (fe0[i] + fe1[i]);
+                            s[3] += (un - un) + (an - an) + (vn - vn);
+                            match md {
+                                Some(m) => {
+                                    let g0 = fi0[i] + fd0[i];
+                                    let fe = af * fe1[i] + bf * fe0[i];
+                                    let g1 = (fe - bf * g0 - m[i] * w) / af;
+                                    f1[k] = g1;
+                                    s[3] += g1 - g1;
+                                    s[2] += m[i] * vn * vn;
+                                }
+                                // M w in the next pass.
+                                None => f1[k] = w,
+                            }
+                        }
+                        *sums = s;
+                    },
+                ),
+            }
         }
         let mut sums = crate::linalg::sum_partials(&self.partials);
         if !sums[3].is_finite() {
