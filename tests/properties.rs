@@ -357,3 +357,52 @@ proptest! {
         }
     }
 }
+
+/// Any member of the family (Newmark-beta with `gamma >= 1/2`, `beta >= gamma/2 - ...` left
+/// free; HHT, WBZ and generalised-alpha from `rho_inf`, including 0 and 1) or the central
+/// difference.
+fn any_scheme() -> impl Strategy<Value = Scheme> {
+    prop_oneof![
+        (0.0..=1.0f64).prop_map(|r| Scheme::Alpha(AlphaParams::generalized_alpha(r).unwrap())),
+        Just(Scheme::Alpha(AlphaParams::generalized_alpha(0.0).unwrap())),
+        Just(Scheme::Alpha(AlphaParams::generalized_alpha(1.0).unwrap())),
+        (0.5..=1.0f64).prop_map(|r| Scheme::Alpha(AlphaParams::hht_from_rho_inf(r).unwrap())),
+        (0.0..=1.0f64).prop_map(|r| Scheme::Alpha(AlphaParams::wbz_from_rho_inf(r).unwrap())),
+        (0.5..0.8f64, 0.0..0.5f64)
+            .prop_map(|(g, b)| Scheme::Alpha(AlphaParams::newmark(b, g).unwrap())),
+        Just(Scheme::CentralDifference(ForceVelocity::Lagged)),
+        Just(Scheme::CentralDifference(ForceVelocity::Predicted)),
+    ]
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 2000, ..ProptestConfig::default() })]
+
+    /// The fast eigenvalues (closed-form roots of the characteristic cubic, with the balanced
+    /// Schur form as fallback for clustered roots) agree with the balanced Schur form
+    /// (`eigenvalues3`) to 1e-12 of the largest modulus, over `Omega` from 1e-4 to 1e6, `xi`
+    /// from 0 to 1 and every family member: both are backward stable, and the fast path is used
+    /// only where the roots' condition keeps their difference at that level.
+    #[test]
+    fn fast_eigenvalues_agree_with_the_schur_form(
+        scheme in any_scheme(), omega_dt in log_uniform(1e-4, 1e6), xi in 0.0..=1.0f64,
+    ) {
+        let a = scheme.amplification(omega_dt, xi);
+        let sort = |mut z: [nalgebra::Complex<f64>; 3]| {
+            z.sort_by(|p, q| p.re.total_cmp(&q.re).then(p.im.total_cmp(&q.im)));
+            z
+        };
+        let fast = sort(tempora::spectral::eigenvalues(&scheme, omega_dt, xi));
+        let robust = sort(eigenvalues3(&a));
+        let scale = robust.iter().map(|z| z.norm()).fold(1.0f64, f64::max);
+        for (f, r) in fast.iter().zip(&robust) {
+            prop_assert!(
+                (f - r).norm() <= 1e-12 * scale,
+                "{scheme:?} Omega {omega_dt:e} xi {xi}: {fast:?} vs {robust:?}"
+            );
+        }
+        let rho = spectral_radius(&scheme, omega_dt, xi);
+        let rho_robust = robust.iter().map(|z| z.norm()).fold(0.0f64, f64::max);
+        prop_assert!((rho - rho_robust).abs() <= 1e-12 * scale);
+    }
+}

@@ -4,7 +4,7 @@
 use nalgebra::Complex;
 use serde::{Deserialize, Serialize};
 
-use super::amplification::eigenvalues3;
+use super::roots::eigenvalues_fast;
 use super::scheme::Scheme;
 use crate::error::{Error, Result};
 
@@ -25,9 +25,11 @@ pub struct Metrics {
     pub principal: Option<Complex<f64>>,
 }
 
-/// The three eigenvalues of the scheme's amplification matrix.
+/// The three eigenvalues of the scheme's amplification matrix: from the characteristic cubic in
+/// closed form, or from the balanced Schur form ([`eigenvalues3`](super::eigenvalues3)) where
+/// the roots are clustered (see [`eigenvalues_fast`](super::eigenvalues_fast)).
 pub fn eigenvalues(scheme: &Scheme, omega_dt: f64, xi: f64) -> [Complex<f64>; 3] {
-    eigenvalues3(&scheme.amplification(omega_dt, xi))
+    eigenvalues_fast(&scheme.amplification(omega_dt, xi))
 }
 
 /// The largest eigenvalue modulus; NaN when the amplification matrix has a non-finite entry

@@ -1,0 +1,271 @@
+//! Eigenvalues of a 3x3 amplification matrix from its characteristic cubic in closed form: the
+//! fast path of [`eigenvalues`](super::eigenvalues), with the robust eigen-solver
+//! [`eigenvalues3`] as its fallback.
+//!
+//! 1. The coefficients of `det(z I - A) = z^3 + c2 z^2 + c1 z + c0`.
+//! 2. One real root `r` in closed form on the depressed cubic `t^3 + p t + q` (`z = t - c2/3`):
+//!    Cardano's formula with the cube root taken of `-q/2 - sign(q) sqrt(D)` (no cancellation)
+//!    when `D = (q/2)^2 + (p/3)^3 > 0`, the trigonometric form otherwise (three real roots, the
+//!    casus irreducibilis, where Cardano's formula would need complex cube roots); then two
+//!    Newton steps on the cubic itself, each kept only when it lowers the residual.
+//! 3. Deflation to `z^2 + b z + c`: forward (`b = c2 + r`, `c = c1 + r b`) when `r` is the
+//!    root of largest modulus, backward (`c = -c0 / r`, `b = (c - c1) / r`) otherwise, the
+//!    stable direction for each (Wilkinson 1963, *Rounding Errors in Algebraic Processes*,
+//!    ch. 2, on deflation; from memory); the quadratic's roots without cancellation.
+//! 4. The fallback, [`eigenvalues3`] (balanced real Schur form), takes over when the closed form
+//!    cannot be trusted: a non-finite entry or coefficient, coefficients near the overflow or
+//!    underflow limits, or roots clustered so tightly that the closed form and the eigen-solver
+//!    would not agree to about `1e-12`. A root of a cluster of width `w` moves by about
+//!    `eps / w` (a pair) or `eps / w^2` (three roots) for a relative perturbation `eps` of the
+//!    coefficients (common practice: the condition of a polynomial root is `1 / |p'(z)|`), so
+//!    the fast path is kept only while every root's condition is at most
+//!    [`CONDITION_LIMIT`].
+//!
+//! The result does not depend on anything but the matrix (no state, no threads).
+
+use nalgebra::Complex;
+
+use super::amplification::eigenvalues3;
+
+/// Largest condition of a root (relative to the largest modulus: `scale^2 / prod |z_i - z_j|`
+/// over the other two roots) for the closed form to be used. A root moves by about its
+/// condition times the coefficients' relative rounding (a few `f64::EPSILON`), in the closed form
+/// and in the eigen-solver alike, so beyond this limit the two would differ by more than about
+/// `1e-12` and the eigen-solver (on the balanced matrix, which at large `Omega` keeps the roots
+/// of these matrices better than their polynomial does) takes over.
+pub const CONDITION_LIMIT: f64 = 1e3;
+
+/// The coefficients `(c2, c1, c0)` of `det(z I - A)`.
+#[inline]
+pub(crate) fn cubic_coefficients(a: &[[f64; 3]; 3]) -> (f64, f64, f64) {
+    let trace = a[0][0] + a[1][1] + a[2][2];
+    let minors = a[0][0] * a[1][1] - a[0][1] * a[1][0] + a[0][0] * a[2][2] - a[0][2] * a[2][0]
+        + a[1][1] * a[2][2]
+        - a[1][2] * a[2][1];
+    let det = a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1])
+        - a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0])
+        + a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0]);
+    (-trace, minors, -det)
+}
+
+/// One real root of `z^3 + c2 z^2 + c1 z + c0` in closed form (the one of largest modulus when
+/// all three are real).
+#[inline]
+fn real_root(c2: f64, c1: f64, c0: f64) -> f64 {
+    let shift = -c2 / 3.0;
+    let p = c1 - c2 * c2 / 3.0;
+    let q = c0 - c2 * c1 / 3.0 + 2.0 * c2 * c2 * c2 / 27.0;
+    let h = 0.5 * q;
+    let d = h * h + (p / 3.0) * (p / 3.0) * (p / 3.0);
+    let t = if d >= 0.0 {
+        // One real root (or a multiple one at d = 0): Cardano without cancellation.
+        let s = d.sqrt();
+        let u = (-h - s.copysign(h)).cbrt();
+        if u == 0.0 { 0.0 } else { u - p / (3.0 * u) }
+    } else {
+        // Three real roots (p < 0): t = m cos(theta), the largest in modulus.
+        let m = 2.0 * (-p / 3.0).sqrt();
+        let cos3 = (3.0 * q / (p * m)).clamp(-1.0, 1.0);
+        let theta = cos3.acos() / 3.0;
+        // The roots are m cos(theta - 2 pi k / 3) with theta in [0, pi/3]: k = 0 gives the
+        // largest t, k = 2 the smallest; one of the two has the largest modulus after the shift.
+        let t0 = m * theta.cos();
+        let t2 = m * (theta + 2.0 * std::f64::consts::FRAC_PI_3).cos();
+        if (t0 + shift).abs() >= (t2 + shift).abs() {
+            t0
+        } else {
+            t2
+        }
+    };
+    t + shift
+}
+
+/// Newton steps on the cubic from `r`, each kept only when it lowers `|p(r)|`.
+#[inline]
+fn polish(mut r: f64, c2: f64, c1: f64, c0: f64) -> f64 {
+    let value = |z: f64| ((z + c2) * z + c1) * z + c0;
+    let mut f = value(r);
+    for _ in 0..2 {
+        if f == 0.0 {
+            break;
+        }
+        let df = (3.0 * r + 2.0 * c2) * r + c1;
+        if df == 0.0 {
+            break;
+        }
+        let next = r - f / df;
+        let fn_ = value(next);
+        if fn_.abs() < f.abs() {
+            r = next;
+            f = fn_;
+        } else {
+            break;
+        }
+    }
+    r
+}
+
+/// The eigenvalues by the closed form, or `None` where the fallback must take over.
+#[inline]
+pub(crate) fn closed_form(a: &[[f64; 3]; 3]) -> Option<[Complex<f64>; 3]> {
+    let (c2, c1, c0) = cubic_coefficients(a);
+    // Bound on the roots' modulus (Cauchy-like), to stay away from overflow and underflow.
+    let bound = c2.abs().max(c1.abs().sqrt()).max(c0.abs().cbrt());
+    if !(bound.is_finite() && bound < 1e100) {
+        return None;
+    }
+    if bound < 1e-100 {
+        // All roots tiny: zero within the fallback's own resolution; let it decide.
+        return None;
+    }
+    let r = if c0 == 0.0 {
+        0.0
+    } else {
+        polish(real_root(c2, c1, c0), c2, c1, c0)
+    };
+    // Deflate: b from the leading coefficients (forward), c forward when r is the root of
+    // largest modulus and backward (from the constant term) otherwise.
+    let b = c2 + r;
+    let c = if r.abs().powi(3) >= c0.abs() {
+        c1 + r * b
+    } else {
+        -c0 / r
+    };
+    let hb = -0.5 * b;
+    let disc = hb * hb - c;
+    let (z2, z3) = if disc < 0.0 {
+        let im = (-disc).sqrt();
+        (Complex::new(hb, im), Complex::new(hb, -im))
+    } else {
+        let big = hb + disc.sqrt().copysign(hb);
+        let small = if big == 0.0 { 0.0 } else { c / big };
+        (Complex::new(big, 0.0), Complex::new(small, 0.0))
+    };
+    let z1 = Complex::new(r, 0.0);
+    let scale = r.abs().max(z2.norm()).max(z3.norm());
+    // Condition of each root relative to the largest modulus: scale^2 / prod |z_i - z_j|
+    // (a root moves by about this many units of the coefficients' rounding, relative to the
+    // scale). An exactly zero constant term gives the exact root 0 (the central difference's
+    // matrix has rank 2): its deflation is exact, and only the pair's condition counts.
+    let (d12, d13, d23) = ((z1 - z2).norm(), (z1 - z3).norm(), (z2 - z3).norm());
+    let cond = if c0 == 0.0 {
+        scale / d23
+    } else {
+        let s2 = scale * scale;
+        (s2 / (d12 * d13))
+            .max(s2 / (d12 * d23))
+            .max(s2 / (d13 * d23))
+    };
+    let ok = cond <= CONDITION_LIMIT
+        && z2.re.is_finite()
+        && z2.im.is_finite()
+        && z3.re.is_finite()
+        && z3.im.is_finite();
+    ok.then_some([z1, z2, z3])
+}
+
+/// The three eigenvalues of a 3x3 real matrix: the closed form of the characteristic cubic
+/// where it is trustworthy, [`eigenvalues3`] elsewhere (see the module documentation). Three
+/// NaN for a matrix with a non-finite entry.
+pub fn eigenvalues_fast(a: &[[f64; 3]; 3]) -> [Complex<f64>; 3] {
+    match closed_form(a) {
+        Some(z) => z,
+        None => eigenvalues3(a),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::explicit::ForceVelocity;
+    use crate::params::AlphaParams;
+    use crate::spectral::{Scheme, log_space};
+
+    pub(crate) fn schemes() -> Vec<Scheme> {
+        let mut s = vec![
+            Scheme::CentralDifference(ForceVelocity::Lagged),
+            Scheme::CentralDifference(ForceVelocity::Predicted),
+            Scheme::Alpha(AlphaParams::average_acceleration()),
+            Scheme::Alpha(AlphaParams::linear_acceleration()),
+            Scheme::Alpha(AlphaParams::fox_goodwin()),
+            Scheme::Alpha(AlphaParams::newmark(0.3025, 0.6).unwrap()),
+        ];
+        for r in [0.0, 0.3, 0.6, 0.9, 1.0] {
+            s.push(Scheme::Alpha(AlphaParams::generalized_alpha(r).unwrap()));
+        }
+        for r in [0.5, 0.8, 1.0] {
+            s.push(Scheme::Alpha(AlphaParams::hht_from_rho_inf(r).unwrap()));
+            s.push(Scheme::Alpha(AlphaParams::wbz_from_rho_inf(r).unwrap()));
+        }
+        s
+    }
+
+    /// Sorted for comparison: by real part, then imaginary part.
+    fn sorted(mut z: [Complex<f64>; 3]) -> [Complex<f64>; 3] {
+        z.sort_by(|a, b| a.re.total_cmp(&b.re).then(a.im.total_cmp(&b.im)));
+        z
+    }
+
+    /// The closed form agrees with the balanced Schur form wherever it is used, to `1e-12` of
+    /// the largest modulus (both are backward stable; the gaps it demands bound the roots'
+    /// condition), on a grid of `Omega` from 1e-4 to 1e6 and damping ratios from 0 to 1, for
+    /// the central difference and members of every named family (incl. `rho_inf` 0 and 1); and
+    /// it is used for nearly every point of the usual plotting range, `Omega` 1e-2 to 1e2 with
+    /// `xi <= 0.3`.
+    #[test]
+    fn closed_form_agrees_with_the_schur_form() {
+        let (mut used, mut total_usual, mut used_usual) = (0, 0, 0);
+        let mut worst: f64 = 0.0;
+        for s in schemes() {
+            for xi in [0.0, 0.05, 0.3, 1.0] {
+                for o in log_space(1e-4, 1e6, 201) {
+                    let a = s.amplification(o, xi);
+                    let usual = (1e-2..=1e2).contains(&o) && xi <= 0.3;
+                    total_usual += usize::from(usual);
+                    if let Some(z) = closed_form(&a) {
+                        used += 1;
+                        used_usual += usize::from(usual);
+                        let (f, r) = (sorted(z), sorted(eigenvalues3(&a)));
+                        let scale = r.iter().map(|z| z.norm()).fold(1.0f64, f64::max);
+                        let e = (0..3).map(|i| (f[i] - r[i]).norm()).fold(0.0, f64::max) / scale;
+                        assert!(
+                            e <= 3e-12,
+                            "{} xi {xi} Omega {o:e}: {e:e}\n{f:?}\n{r:?}",
+                            s.name()
+                        );
+                        worst = worst.max(e);
+                    }
+                }
+            }
+        }
+        assert!(used > 8000, "closed form used for {used} points");
+        assert!(
+            used_usual * 100 >= 99 * total_usual,
+            "{used_usual} of {total_usual}"
+        );
+        eprintln!("closed form on {used} points, worst difference {worst:e}");
+    }
+
+    /// Non-finite entries give NaN (through the fallback), zero and nilpotent matrices zero.
+    #[test]
+    fn non_finite_and_degenerate_matrices() {
+        let mut a = [[1.0, 0.5, 0.0], [0.0, 1.0, 0.0], [0.0, 0.0, 2.0]];
+        a[2][1] = f64::NAN;
+        assert!(closed_form(&a).is_none());
+        assert!(eigenvalues_fast(&a).iter().all(|z| z.re.is_nan()));
+        a[2][1] = f64::INFINITY;
+        assert!(eigenvalues_fast(&a).iter().all(|z| z.re.is_nan()));
+        assert_eq!(
+            eigenvalues_fast(&[[0.0; 3]; 3]),
+            [Complex::new(0.0, 0.0); 3]
+        );
+        let nil = [[0.0, 1.0, 0.0], [0.0, 0.0, 1.0], [0.0, 0.0, 0.0]];
+        assert!(eigenvalues_fast(&nil).iter().all(|z| z.norm() == 0.0));
+        // Exact: a triangular matrix has its diagonal as eigenvalues.
+        let tri = [[0.5, 3.0, -1.0], [0.0, -0.25, 2.0], [0.0, 0.0, 2.0]];
+        let z = sorted(eigenvalues_fast(&tri));
+        for (z, want) in z.iter().zip([-0.25, 0.5, 2.0]) {
+            assert!((z.re - want).abs() < 1e-15 && z.im == 0.0, "{z}");
+        }
+    }
+}
