@@ -11,10 +11,10 @@
 use std::fmt::Write as _;
 
 use sprs::CsMat;
+use tempora::ModelError;
 use tempora::State;
 use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
 use tempora::linalg::{CsrMatrix, LinearSolver, Parallelism, SparseCholesky};
-use tempora::ModelError;
 use tempora::model::{LinearModel, Model};
 use tempora::params::AlphaParams;
 

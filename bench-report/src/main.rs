@@ -138,7 +138,11 @@ fn page(machine: &machine::Machine, sections: &[Section], seconds: f64, quick: b
         s,
         "- Threads: {} (rayon's pool){}",
         rayon::current_num_threads(),
-        if quick { "; QUICK RUN (small sizes)" } else { "" }
+        if quick {
+            "; QUICK RUN (small sizes)"
+        } else {
+            ""
+        }
     );
     let _ = writeln!(s, "- Report run time: {seconds:.0} s\n");
     let _ = writeln!(s, "## Targets\n");

@@ -23,7 +23,11 @@ fn mib(bytes: usize) -> f64 {
 /// Runs the implicit scale test and returns its Markdown (a sub-section of "scale") and its
 /// target row (the run completes).
 pub fn implicit_scale(settings: Settings) -> (String, Vec<Target>) {
-    let (m, steps) = if settings.quick { (100, 10) } else { (1000, 20) };
+    let (m, steps) = if settings.quick {
+        (100, 10)
+    } else {
+        (1000, 20)
+    };
     let n = m * m;
     let heap_before = alloc::current();
     alloc::reset_peak();
@@ -85,7 +89,10 @@ pub fn implicit_scale(settings: Settings) -> (String, Vec<Target>) {
     let peak_heap = alloc::peak() - heap_before;
     let peak_rss = alloc::peak_rss();
     step_times.sort_by(f64::total_cmp);
-    let per_step = step_times.get(step_times.len() / 2).copied().unwrap_or(f64::NAN);
+    let per_step = step_times
+        .get(step_times.len() / 2)
+        .copied()
+        .unwrap_or(f64::NAN);
     let finite = state.u.iter().all(|x| x.is_finite());
     let completed = outcome.is_ok() && finite && step_times.len() + 1 == steps;
 
@@ -123,8 +130,14 @@ pub fn implicit_scale(settings: Settings) -> (String, Vec<Target>) {
             len as f64 / n as f64
         );
     }
-    let _ = writeln!(s, "| integrator created: analysis + start (s) | {t_new:.2} |");
-    let _ = writeln!(s, "| first step: numeric factorisation + step (s) | {t_first:.2} |");
+    let _ = writeln!(
+        s,
+        "| integrator created: analysis + start (s) | {t_new:.2} |"
+    );
+    let _ = writeln!(
+        s,
+        "| first step: numeric factorisation + step (s) | {t_first:.2} |"
+    );
     let _ = writeln!(
         s,
         "| later steps, median of {} (s) | {per_step:.3} |",
@@ -136,9 +149,17 @@ pub fn implicit_scale(settings: Settings) -> (String, Vec<Target>) {
         mib(peak_heap.saturating_sub(heap_base)),
         peak_heap.saturating_sub(heap_base) as f64 / (8.0 * n as f64)
     );
-    let _ = writeln!(s, "| peak heap, model included (MiB) | {:.0} |", mib(peak_heap));
+    let _ = writeln!(
+        s,
+        "| peak heap, model included (MiB) | {:.0} |",
+        mib(peak_heap)
+    );
     if let Some(rss) = peak_rss {
-        let _ = writeln!(s, "| peak RSS of the process so far (MiB) | {:.0} |", mib(rss));
+        let _ = writeln!(
+            s,
+            "| peak RSS of the process so far (MiB) | {:.0} |",
+            mib(rss)
+        );
     }
     if let Err(e) = &outcome {
         let _ = writeln!(s, "\nThe run failed: {e}");
@@ -146,7 +167,10 @@ pub fn implicit_scale(settings: Settings) -> (String, Vec<Target>) {
     let targets = vec![Target {
         what: format!("implicit linear run, 2D stencil, n = {n}, {steps} steps, completes"),
         measured: if completed {
-            format!("yes, {:.1} s", t_new + t_first + per_step * (steps - 1) as f64)
+            format!(
+                "yes, {:.1} s",
+                t_new + t_first + per_step * (steps - 1) as f64
+            )
         } else {
             "no".to_string()
         },

@@ -142,21 +142,26 @@ pub(crate) fn closed_form(a: &[[f64; 3]; 3]) -> Option<[Complex<f64>; 3]> {
         (Complex::new(big, 0.0), Complex::new(small, 0.0))
     };
     let z1 = Complex::new(r, 0.0);
-    let scale = r.abs().max(z2.norm()).max(z3.norm());
     // Condition of each root relative to the largest modulus: scale^2 / prod |z_i - z_j|
     // (a root moves by about this many units of the coefficients' rounding, relative to the
-    // scale). An exactly zero constant term gives the exact root 0 (the central difference's
-    // matrix has rank 2): its deflation is exact, and only the pair's condition counts.
-    let (d12, d13, d23) = ((z1 - z2).norm(), (z1 - z3).norm(), (z2 - z3).norm());
-    let cond = if c0 == 0.0 {
-        scale / d23
+    // scale), in squares (no square roots). An exactly zero constant term gives the exact root 0
+    // (the central difference's matrix has rank 2): its deflation is exact, and only the pair's
+    // condition counts.
+    let s2 = (r * r).max(z2.norm_sqr()).max(z3.norm_sqr());
+    let (d12, d13, d23) = (
+        (z1 - z2).norm_sqr(),
+        (z1 - z3).norm_sqr(),
+        (z2 - z3).norm_sqr(),
+    );
+    let cond2 = if c0 == 0.0 {
+        s2 / d23
     } else {
-        let s2 = scale * scale;
-        (s2 / (d12 * d13))
-            .max(s2 / (d12 * d23))
-            .max(s2 / (d13 * d23))
+        let s4 = s2 * s2;
+        (s4 / (d12 * d13))
+            .max(s4 / (d12 * d23))
+            .max(s4 / (d13 * d23))
     };
-    let ok = cond <= CONDITION_LIMIT
+    let ok = cond2 <= CONDITION_LIMIT * CONDITION_LIMIT
         && z2.re.is_finite()
         && z2.im.is_finite()
         && z3.re.is_finite()
