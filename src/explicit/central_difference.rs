@@ -7,13 +7,13 @@ use crate::energy::EnergyLedger;
 use crate::error::{Error, Result};
 use crate::explicit::stable_step::{self, StableStep, StableStepOptions};
 use crate::linalg::{
-    GlobalReduce, Parallelism, Serial, chunk_count, for_chunks_read, for_chunks2, sum_partials,
+    CsrMatrix, GlobalReduce, Parallelism, Serial, chunk_count, for_chunks_read, for_chunks2,
+    sum_partials,
 };
 use crate::model::{Damping, Model, Motion};
 use crate::run::{Integrator, StepReport};
 use crate::setup::{
-    Setup, check_growth_limit, check_lumped_mass, check_step_advances, constrained_start,
-    model_err, setup,
+    Setup, check_growth_limit, check_lumped_mass, check_step_advances, model_err, setup,
 };
 use crate::state::{State, check_finite, check_len};
 
@@ -168,8 +168,12 @@ pub struct CentralDifference {
     v_force: Vec<f64>,
     v_next: Vec<f64>,
     a_next: Vec<f64>,
+    /// Internal force; empty while the model gives its [`Model::linear_stiffness`] (the end-of-step
+    /// loop then forms `K u` row by row).
     f_int: Vec<f64>,
+    /// External force; empty while the model [`is unloaded`](Model::is_unloaded).
     f_ext: Vec<f64>,
+    /// Damping force (`K v` for Rayleigh damping); empty without damping.
     f_damp: Vec<f64>,
     f_extra: Vec<Vec<f64>>,
     partials: Vec<EndSums>,
@@ -209,25 +213,46 @@ impl CentralDifference {
         options: CentralDifferenceOptions,
     ) -> Result<Self> {
         let mut cd = Self::prepare(model, state, options)?;
-        // Work on a copy so that a failure leaves the caller's state untouched.
-        let mut s = constrained_start(&cd.constraints, state)?;
-        cd.u_next.copy_from_slice(&s.u);
-        cd.v_half.copy_from_slice(&s.v);
-        if cd.options.force_velocity == ForceVelocity::Predicted {
-            cd.v_force.copy_from_slice(&s.v);
+        // The constrained start is built in the integrator's own buffers (`u_next`, `v_half`,
+        // `a_next`) and swapped into `state` only at the end, so that a failure leaves the
+        // caller's state untouched without a copy of it.
+        cd.u_next.copy_from_slice(&state.u);
+        cd.v_half.copy_from_slice(&state.v);
+        for (dof, motion) in &cd.constraints {
+            match motion {
+                Motion::Fixed => cd.v_half[*dof] = 0.0,
+                Motion::Displacement(g) => cd.u_next[*dof] = g.value(state.t),
+                Motion::Velocity(h) => cd.v_half[*dof] = h.value(state.t),
+            }
         }
-        cd.end_of_step(model, s.step, s.t, 0.0)?;
-        s.a.copy_from_slice(&cd.a_next);
+        check_finite("constrained initial displacement", &cd.u_next)?;
+        check_finite("constrained initial velocity", &cd.v_half)?;
+        if cd.options.force_velocity == ForceVelocity::Predicted {
+            cd.v_force.copy_from_slice(&cd.v_half);
+        }
+        cd.end_of_step(model, state.step, state.t, 0.0)?;
         // With dt = 0 the trial ledger holds the initial kinetic energy and the pending scalars.
         std::mem::swap(&mut cd.ledger, &mut cd.trial);
         let l = &mut cd.ledger;
         l.initial_kinetic = l.kinetic;
-        l.initial_internal = model.stored_energy(&s.u).unwrap_or(0.0);
+        l.initial_internal = model.stored_energy(&cd.u_next).unwrap_or(0.0);
         l.energy_in = l.initial_kinetic + l.initial_internal.abs();
+        // The start state: u and v constrained, a consistent (`a_next` of the start).
+        let mut s = State {
+            t: state.t,
+            step: state.step,
+            u: std::mem::take(&mut cd.u_next),
+            v: std::mem::take(&mut cd.v_half),
+            a: std::mem::take(&mut cd.a_next),
+        };
         if let StableLimit::Estimate = cd.options.stable_limit {
             cd.reestimate_stable_step(model, &s)?;
         }
-        *state = s;
+        // Commit: the caller's vectors become the integrator's work buffers.
+        std::mem::swap(state, &mut s);
+        cd.u_next = s.u;
+        cd.v_half = s.v;
+        cd.a_next = s.a;
         Ok(cd)
     }
 
@@ -338,10 +363,22 @@ impl CentralDifference {
             },
             v_next: vec![0.0; n],
             a_next: vec![0.0; n],
-            f_int: vec![0.0; n],
-            f_ext: vec![0.0; n],
-            f_damp: vec![0.0; n],
-            f_extra: vec![vec![0.0; n]; k],
+            f_int: if fused_stiffness(model, n).is_some() {
+                Vec::new()
+            } else {
+                vec![0.0; n]
+            },
+            f_ext: if model.is_unloaded() {
+                Vec::new()
+            } else {
+                vec![0.0; n]
+            },
+            f_damp: if matches!(damping, Damping::None) {
+                Vec::new()
+            } else {
+                vec![0.0; n]
+            },
+            f_extra: (0..k).map(|_| vec![0.0; n]).collect(),
             partials: vec![[0.0; 10]; chunks],
             partials3: vec![[0.0; 3]; chunks],
             partials1: vec![[0.0; 1]; chunks],
@@ -571,17 +608,32 @@ impl CentralDifference {
         t: f64,
         dt: f64,
     ) -> Result<()> {
+        let n = self.n;
         let err = model_err(step, t);
+        let fused = fused_stiffness(model, n).is_some();
+        let loaded = !model.is_unloaded();
+        // Buffers left out at creation for a model that did not need them (allocated once, on
+        // the first step that does).
+        if !fused && self.f_int.len() != n {
+            self.f_int = vec![0.0; n];
+        }
+        if loaded && self.f_ext.len() != n {
+            self.f_ext = vec![0.0; n];
+        }
         let (u, vh) = (&self.u_next, &self.v_half);
         // The velocity the forces see.
         let vf: &[f64] = match self.options.force_velocity {
             ForceVelocity::Lagged => vh,
             ForceVelocity::Predicted => &self.v_force,
         };
-        model.external_force(t, &mut self.f_ext).map_err(&err)?;
-        model
-            .internal_force(t, u, vf, &mut self.f_int)
-            .map_err(&err)?;
+        if loaded {
+            model.external_force(t, &mut self.f_ext).map_err(&err)?;
+        }
+        if !fused {
+            model
+                .internal_force(t, u, vf, &mut self.f_int)
+                .map_err(&err)?;
+        }
         let (d0, d1, damped) = match self.damping {
             Damping::None => (0.0, 0.0, false),
             Damping::Rayleigh { a0, a1 } => {
@@ -604,64 +656,49 @@ impl CentralDifference {
         for (k, f) in self.f_extra.iter_mut().enumerate() {
             model.extra_force(k, t, u, vf, f).map_err(&err)?;
         }
+        // Every mutable call of the model is done: borrow its stiffness for the fused loop.
+        let stiffness = fused_stiffness(model, n);
 
         let half = 0.5 * dt;
         {
-            let (fi, fe, fd, fx) = (&self.f_int, &self.f_ext, &self.f_damp, &self.f_extra);
-            let (m, minv) = (&self.mass, &self.inv_mass);
-            let par = self.options.parallel.parallel_for(self.n);
-            for_chunks2(
-                par,
-                &mut self.a_next,
-                &mut self.v_next,
-                &mut self.partials,
-                |start, an, vn, p| {
-                    let end = start + an.len();
-                    let (fi, fe, fd) = (&fi[start..end], &fe[start..end], &fd[start..end]);
-                    let (m, minv, vh) = (&m[start..end], &minv[start..end], &vh[start..end]);
-                    let vf = &vf[start..end];
-                    let mut s = [0.0; 10];
-                    for j in 0..an.len() {
-                        let fdj = if damped {
-                            d0 * m[j] * vf[j] + d1 * fd[j]
-                        } else {
-                            0.0
-                        };
-                        let mut f = fe[j] - fi[j] - fdj;
-                        for x in fx {
-                            f -= x[start + j];
-                        }
-                        let a = f * minv[j];
-                        let v = vh[j] + half * a;
-                        an[j] = a;
-                        vn[j] = v;
-                        s[0] += vh[j] * fi[j];
-                        s[1] += vh[j] * fe[j];
-                        s[2] += vh[j] * fdj;
-                        s[3] += v * fi[j];
-                        s[4] += v * fe[j];
-                        s[5] += v * fdj;
-                        s[6] += a * fi[j];
-                        s[7] += a * fe[j];
-                        s[8] += a * fdj;
-                        s[9] += m[j] * v * v;
-                    }
-                    *p = s;
-                },
-            );
+            let body = EndLoop {
+                stiffness,
+                u,
+                fi: &self.f_int,
+                fe: if loaded { &self.f_ext } else { &[] },
+                fd: &self.f_damp,
+                fx: &self.f_extra,
+                m: &self.mass,
+                minv: &self.inv_mass,
+                vh,
+                vf,
+                damped,
+                d0,
+                d1,
+                half,
+            };
+            let par = self.options.parallel.parallel_for(n);
+            body.dispatch(par, &mut self.a_next, &mut self.v_next, &mut self.partials);
         }
         let mut sums = sum_partials(&self.partials);
+        // The internal and external force at one DOF, wherever they are.
+        let f_int_at = |d: usize| match stiffness {
+            Some(k) => k.row_dot(d, u),
+            None => self.f_int[d],
+        };
+        let f_ext_at = |d: usize| if loaded { self.f_ext[d] } else { 0.0 };
 
         // Prescribed motions: centred velocity and acceleration, reactions.
         let mut constraint_power = 0.0;
         for (j, (dof, motion)) in self.constraints.iter().enumerate() {
             let d = *dof;
+            let (fi, fe) = (f_int_at(d), f_ext_at(d));
             let fdj = if damped {
                 d0 * self.mass[d] * vf[d] + d1 * self.f_damp[d]
             } else {
                 0.0
             };
-            let mut f = self.f_ext[d] - self.f_int[d] - fdj;
+            let mut f = fe - fi - fdj;
             for x in &self.f_extra {
                 f -= x[d];
             }
@@ -679,11 +716,11 @@ impl CentralDifference {
             };
             // The loop computed a = 0 and v = vh here (inverse mass 0); correct the sums.
             let dv = v_c - vh[d];
-            sums[3] += dv * self.f_int[d];
-            sums[4] += dv * self.f_ext[d];
+            sums[3] += dv * fi;
+            sums[4] += dv * fe;
             sums[5] += dv * fdj;
-            sums[6] += a_c * self.f_int[d];
-            sums[7] += a_c * self.f_ext[d];
+            sums[6] += a_c * fi;
+            sums[7] += a_c * fe;
             sums[8] += a_c * fdj;
             sums[9] += self.mass[d] * (v_c * v_c - vh[d] * vh[d]);
             self.a_next[d] = a_c;
@@ -717,10 +754,10 @@ impl CentralDifference {
         l.pending.reactions.copy_from_slice(&self.reactions);
 
         // Extra forces: their own dot products, one pass each.
-        let par = self.options.parallel.parallel_for(self.n);
+        let par = self.options.parallel.parallel_for(n);
         for k in 0..self.f_extra.len() {
             let (fx, an, vn) = (&self.f_extra[k], &self.a_next, &self.v_next);
-            for_chunks_read(par, self.n, &mut self.partials3, |r, p| {
+            for_chunks_read(par, n, &mut self.partials3, |r, p| {
                 let mut s = [0.0; 3];
                 for i in r {
                     s[0] += vh[i] * fx[i];
@@ -741,6 +778,10 @@ impl CentralDifference {
             && l.pending.extra.iter().flatten().all(|x| x.is_finite())
             && self.reactions.iter().all(|x| x.is_finite());
         if !all_finite {
+            let first_int = || match stiffness {
+                Some(k) => (0..n).position(|i| !k.row_dot(i, u).is_finite()),
+                None => first_non_finite(&self.f_int),
+            };
             let (quantity, dof) = [
                 ("external force", &self.f_ext),
                 ("internal force", &self.f_int),
@@ -750,7 +791,13 @@ impl CentralDifference {
             ]
             .into_iter()
             .chain(self.f_extra.iter().map(|f| ("extra force", f)))
-            .find_map(|(q, x)| first_non_finite(x).map(|d| (q, d)))
+            .find_map(|(q, x)| {
+                if q == "internal force" {
+                    first_int().map(|d| (q, d))
+                } else {
+                    first_non_finite(x).map(|d| (q, d))
+                }
+            })
             .unwrap_or(("energy", 0));
             return Err(Error::NonFiniteState {
                 quantity,
@@ -760,6 +807,197 @@ impl CentralDifference {
             });
         }
         Ok(())
+    }
+}
+
+/// The model's [`Model::linear_stiffness`], when it gives one of the right size.
+fn fused_stiffness<M: Model + ?Sized>(model: &M, n: usize) -> Option<&CsrMatrix> {
+    model
+        .linear_stiffness()
+        .filter(|k| k.nrows() == n && k.ncols() == n)
+}
+
+/// The inputs of the end-of-step loop (loop B): per DOF
+///
+/// ```text
+/// f_int = (K u)_i  (fused)  or  f_int[i]
+/// f     = f_ext - f_int - (d0 m vf + d1 f_d) - sum_k f_k
+/// a     = f / m  (as f * (1/m); 0 on constrained DOFs)
+/// v     = v_half + (dt/2) a
+/// ```
+///
+/// and the energy sums ([`EndSums`]). The loop is compiled for each combination of a fused
+/// stiffness, a load, damping and extra forces, so that each variant leaves out the vectors it
+/// does not need; each does the same operations in the same order as the general one (a missing
+/// load is `0.0 - f_int`), so results do not depend on which one runs.
+struct EndLoop<'a> {
+    stiffness: Option<&'a CsrMatrix>,
+    u: &'a [f64],
+    fi: &'a [f64],
+    fe: &'a [f64],
+    fd: &'a [f64],
+    fx: &'a [Vec<f64>],
+    m: &'a [f64],
+    minv: &'a [f64],
+    vh: &'a [f64],
+    vf: &'a [f64],
+    damped: bool,
+    d0: f64,
+    d1: f64,
+    half: f64,
+}
+
+impl EndLoop<'_> {
+    /// Runs the variant of the loop that fits the inputs, over the fixed chunks (in parallel
+    /// when `par`).
+    fn dispatch(&self, par: bool, an: &mut [f64], vn: &mut [f64], partials: &mut [EndSums]) {
+        match self.stiffness.is_some() {
+            true => self.dispatch1::<true>(par, an, vn, partials),
+            false => self.dispatch1::<false>(par, an, vn, partials),
+        }
+    }
+
+    fn dispatch1<const FUSED: bool>(
+        &self,
+        par: bool,
+        an: &mut [f64],
+        vn: &mut [f64],
+        partials: &mut [EndSums],
+    ) {
+        match !self.fe.is_empty() {
+            true => self.dispatch2::<FUSED, true>(par, an, vn, partials),
+            false => self.dispatch2::<FUSED, false>(par, an, vn, partials),
+        }
+    }
+
+    fn dispatch2<const FUSED: bool, const LOADED: bool>(
+        &self,
+        par: bool,
+        an: &mut [f64],
+        vn: &mut [f64],
+        partials: &mut [EndSums],
+    ) {
+        match self.damped {
+            true => self.dispatch3::<FUSED, LOADED, true>(par, an, vn, partials),
+            false => self.dispatch3::<FUSED, LOADED, false>(par, an, vn, partials),
+        }
+    }
+
+    fn dispatch3<const FUSED: bool, const LOADED: bool, const DAMPED: bool>(
+        &self,
+        par: bool,
+        an: &mut [f64],
+        vn: &mut [f64],
+        partials: &mut [EndSums],
+    ) {
+        match !self.fx.is_empty() {
+            true => self.run::<FUSED, LOADED, DAMPED, true>(par, an, vn, partials),
+            false => self.run::<FUSED, LOADED, DAMPED, false>(par, an, vn, partials),
+        }
+    }
+
+    fn run<const FUSED: bool, const LOADED: bool, const DAMPED: bool, const EXTRA: bool>(
+        &self,
+        par: bool,
+        an: &mut [f64],
+        vn: &mut [f64],
+        partials: &mut [EndSums],
+    ) {
+        for_chunks2(par, an, vn, partials, |start, an, vn, p| {
+            *p = self.chunk::<FUSED, LOADED, DAMPED, EXTRA>(start, an, vn);
+        });
+    }
+
+    /// One chunk, from entry `start`.
+    #[inline(always)]
+    fn chunk<const FUSED: bool, const LOADED: bool, const DAMPED: bool, const EXTRA: bool>(
+        &self,
+        start: usize,
+        an: &mut [f64],
+        vn: &mut [f64],
+    ) -> EndSums {
+        let len = an.len();
+        let end = start + len;
+        // Slices of exactly `len` (`len + 1` row pointers), so that the indexing below needs no
+        // bounds checks.
+        let vn = &mut vn[..len];
+        let m = &self.m[start..end][..len];
+        let minv = &self.minv[start..end][..len];
+        let vh = &self.vh[start..end][..len];
+        let empty: &[f64] = &[];
+        let fi = if FUSED {
+            empty
+        } else {
+            &self.fi[start..end][..len]
+        };
+        let fe = if LOADED {
+            &self.fe[start..end][..len]
+        } else {
+            empty
+        };
+        let (fd, vf) = if DAMPED {
+            (&self.fd[start..end][..len], &self.vf[start..end][..len])
+        } else {
+            (empty, empty)
+        };
+        let (k, ptr) = match self.stiffness {
+            Some(k) if FUSED => {
+                // Makes the unchecked products below sound (with CsrMatrix's invariant: row
+                // pointers non-decreasing up to `nnz`).
+                assert!(k.ncols() <= self.u.len());
+                (Some(k), &k.indptr()[start..=end])
+            }
+            _ => (None, &[][..]),
+        };
+        let (u, half, d0, d1) = (self.u, self.half, self.d0, self.d1);
+        let mut lo = ptr.first().copied().unwrap_or(0);
+        let mut s = [0.0; 10];
+        for j in 0..len {
+            let f_int = match k {
+                Some(k) if FUSED => {
+                    let hi = ptr[j + 1];
+                    // SAFETY: `lo..hi` is the range of row `start + j`, inside `0..=nnz`; the
+                    // columns are below `k.ncols() <= u.len()` (asserted above).
+                    let f = unsafe { k.range_dot_unchecked(lo, hi, u) };
+                    lo = hi;
+                    f
+                }
+                _ => fi[j],
+            };
+            let fdj = if DAMPED {
+                d0 * m[j] * vf[j] + d1 * fd[j]
+            } else {
+                0.0
+            };
+            let mut f = (if LOADED { fe[j] } else { 0.0 }) - f_int;
+            if DAMPED {
+                f -= fdj;
+            }
+            if EXTRA {
+                for x in self.fx {
+                    f -= x[start + j];
+                }
+            }
+            let a = f * minv[j];
+            let v = vh[j] + half * a;
+            an[j] = a;
+            vn[j] = v;
+            s[0] += vh[j] * f_int;
+            s[3] += v * f_int;
+            s[6] += a * f_int;
+            if LOADED {
+                s[1] += vh[j] * fe[j];
+                s[4] += v * fe[j];
+                s[7] += a * fe[j];
+            }
+            if DAMPED {
+                s[2] += vh[j] * fdj;
+                s[5] += v * fdj;
+                s[8] += a * fdj;
+            }
+            s[9] += m[j] * v * v;
+        }
+        s
     }
 }
 

@@ -15,6 +15,11 @@ use crate::error::{Error, Result};
 const ROW_CHUNK: usize = 2048;
 
 /// A square or rectangular CSR matrix of `f64` with 32-bit column indices.
+///
+/// Every constructor establishes, and no method breaks, the structure the unchecked row products
+/// rely on: `indptr` has `nrows + 1` entries, starts at 0, never decreases and ends at
+/// `indices.len() == data.len()`, and every column index is below `ncols`. (Only the values
+/// can be changed after construction, through [`data_mut`](Self::data_mut).)
 #[derive(Debug, Clone, PartialEq)]
 pub struct CsrMatrix {
     nrows: usize,
@@ -30,7 +35,14 @@ impl CsrMatrix {
     /// # Errors
     /// [`Error::InvalidMatrix`] for a non-finite entry or more than `u32::MAX` columns.
     pub fn from_sprs(what: &'static str, m: &CsMat<f64>) -> Result<Self> {
-        let csr = if m.is_csr() { m.clone() } else { m.to_csr() };
+        // A view of a CSR input (no copy of a large matrix); a CSC input is converted.
+        let converted;
+        let csr = if m.is_csr() {
+            m.view()
+        } else {
+            converted = m.to_csr();
+            converted.view()
+        };
         if csr.cols() > u32::MAX as usize {
             return Err(Error::InvalidMatrix {
                 what,
@@ -43,6 +55,14 @@ impl CsrMatrix {
         indptr.push(0);
         for (row, vec) in csr.outer_iterator().enumerate() {
             for (col, &val) in vec.iter() {
+                // sprs keeps its indices in range; checked here all the same, because the
+                // unchecked row products rely on it (see the type's documentation).
+                if col >= csr.cols() {
+                    return Err(Error::InvalidMatrix {
+                        what,
+                        problem: format!("column {col} out of range in row {row}"),
+                    });
+                }
                 if !val.is_finite() {
                     return Err(Error::InvalidMatrix {
                         what,
@@ -289,6 +309,85 @@ impl CsrMatrix {
         (0..self.nrows).all(|i| self.row(i).all(|(c, _)| c == i))
     }
 
+    /// Row `i` of `A` times `x`, summed in stored order: entry `i` of [`spmv`]'s product.
+    ///
+    /// # Panics
+    /// When `i >= nrows` or `x` is shorter than `ncols` (callers inside the crate check lengths
+    /// first).
+    #[inline(always)]
+    pub(crate) fn row_dot(&self, i: usize, x: &[f64]) -> f64 {
+        row_dot(&self.indptr, &self.indices, &self.data, i, x)
+    }
+
+    /// Row `i` of `A` times `x` like [`row_dot`](Self::row_dot), without bounds checks: the
+    /// inner loop of the explicit scheme's fused update.
+    ///
+    /// # Safety
+    /// `i < nrows` and `x.len() >= ncols`.
+    #[inline(always)]
+    pub(crate) unsafe fn row_dot_unchecked(&self, i: usize, x: &[f64]) -> f64 {
+        // SAFETY: `i < nrows` (the caller's promise) and `indptr.len() == nrows + 1` (the type's
+        // invariant) put `i` and `i + 1` inside `indptr`; its entries never decrease and end at
+        // `indices.len() == data.len()`, so `lo..hi` lies inside both; every column index is below
+        // `ncols <= x.len()` (the invariant and the caller's promise).
+        unsafe {
+            let lo = *self.indptr.get_unchecked(i);
+            let hi = *self.indptr.get_unchecked(i + 1);
+            let mut s = 0.0;
+            for k in lo..hi {
+                let c = *self.indices.get_unchecked(k) as usize;
+                s += self.data.get_unchecked(k) * x.get_unchecked(c);
+            }
+            s
+        }
+    }
+
+    /// The stored entries `lo..hi` times the matching entries of `x`, summed in order from
+    /// `0.0`, without bounds checks (`lo..hi` is a row's range `indptr[i]..indptr[i + 1]` in
+    /// the explicit scheme's fused update, which walks the row pointers itself).
+    ///
+    /// # Safety
+    /// `lo <= hi <= nnz` and `x.len() >= ncols`.
+    #[inline(always)]
+    pub(crate) unsafe fn range_dot_unchecked(&self, lo: usize, hi: usize, x: &[f64]) -> f64 {
+        let mut s = 0.0;
+        for k in lo..hi {
+            // SAFETY: `k < hi <= nnz == indices.len() == data.len()` (the caller's promise and
+            // the type's invariant); the column index is below `ncols <= x.len()`.
+            unsafe {
+                let c = *self.indices.get_unchecked(k) as usize;
+                s += self.data.get_unchecked(k) * x.get_unchecked(c);
+            }
+        }
+        s
+    }
+
+    /// `x^T A x`, with the row products summed in chunks of [`CHUNK`](super::CHUNK) rows and the
+    /// chunk sums in order: bit for bit `dot(x, A x)` (see [`dot`](super::dot)), without a vector
+    /// for `A x`. NaN when `A` is not square of the size of `x`.
+    pub(crate) fn quadratic_form(&self, x: &[f64], par: Parallelism) -> f64 {
+        let n = x.len();
+        if self.nrows != n || self.ncols != n {
+            return f64::NAN;
+        }
+        let chunk = |c: usize| {
+            let rows = c * super::CHUNK..((c + 1) * super::CHUNK).min(n);
+            rows.map(|i| x[i] * self.row_dot(i, x)).sum::<f64>()
+        };
+        let chunks = super::chunk_count(n);
+        if par.parallel_for(n) {
+            // A vector of one sum per chunk, as `dot` has: set-up code, not a step.
+            let partials: Vec<f64> = (0..chunks).into_par_iter().map(chunk).collect();
+            partials.iter().sum()
+        } else {
+            let mut s = 0.0;
+            for c in 0..chunks {
+                s += chunk(c);
+            }
+            s
+        }
+    }
+
     /// `y = A x`, in parallel above `par.threshold` rows; each row is summed in stored order, so the
     /// result does not depend on the thread count. When `x.len() != ncols` or
     /// `y.len() != nrows`, `y` is filled with NaN (see [`spmv`]).
@@ -310,13 +409,8 @@ pub fn spmv(a: &CsrMatrix, x: &[f64], y: &mut [f64], par: Parallelism) {
     }
     let rows = |start: usize, y: &mut [f64]| {
         for (k, yi) in y.iter_mut().enumerate() {
-            let i = start + k;
-            let (lo, hi) = (a.indptr[i], a.indptr[i + 1]);
-            let mut s = 0.0;
-            for (c, v) in a.indices[lo..hi].iter().zip(&a.data[lo..hi]) {
-                s += v * x[*c as usize];
-            }
-            *yi = s;
+            // SAFETY: `start + k < y.len() == nrows` and `x.len() == ncols`, checked above.
+            *yi = unsafe { a.row_dot_unchecked(start + k, x) };
         }
     };
     if par.parallel_for(a.nrows) {
@@ -326,6 +420,17 @@ pub fn spmv(a: &CsrMatrix, x: &[f64], y: &mut [f64], par: Parallelism) {
     } else {
         rows(0, y);
     }
+}
+
+/// Row `i` of the CSR arrays times `x`, summed in stored order from `0.0`.
+#[inline(always)]
+fn row_dot(indptr: &[usize], indices: &[u32], data: &[f64], i: usize, x: &[f64]) -> f64 {
+    let (lo, hi) = (indptr[i], indptr[i + 1]);
+    let mut s = 0.0;
+    for (c, v) in indices[lo..hi].iter().zip(&data[lo..hi]) {
+        s += v * x[*c as usize];
+    }
+    s
 }
 
 #[cfg(test)]
@@ -354,6 +459,37 @@ mod tests {
         let i = 17;
         let expect = -x[i - 1] + (2.0 + (i % 7) as f64) * x[i] - x[i + 1];
         assert!((y1[i] - expect).abs() < 1e-14);
+    }
+
+    /// `x^T A x` without the product vector is bit for bit `dot(x, A x)`, serial and parallel,
+    /// and the unchecked row products are `spmv`'s rows.
+    #[test]
+    fn quadratic_form_and_row_products_match_the_product() {
+        let n = 50_001;
+        let mut t = TriMat::new((n, n));
+        for i in 0..n {
+            t.add_triplet(i, i, 2.0 + (i % 7) as f64);
+            if i + 3 < n {
+                t.add_triplet(i, i + 3, -0.7);
+                t.add_triplet(i + 3, i, -0.7);
+            }
+        }
+        let a = CsrMatrix::from_sprs("K", &t.to_csr()).unwrap();
+        let x: Vec<f64> = (0..n).map(|i| (i as f64 * 0.37).sin()).collect();
+        let mut ax = vec![0.0; n];
+        a.mul_vec(&x, &mut ax, Parallelism::serial());
+        for par in [Parallelism::serial(), Parallelism { threshold: 1 }] {
+            let q = a.quadratic_form(&x, par);
+            assert_eq!(q.to_bits(), super::super::dot(&x, &ax, par).to_bits());
+        }
+        for i in [0, 1, 17, n - 1] {
+            assert_eq!(a.row_dot(i, &x).to_bits(), ax[i].to_bits());
+            let (lo, hi) = (a.indptr()[i], a.indptr()[i + 1]);
+            // SAFETY: a row's range of a matrix of x.len() columns.
+            let r = unsafe { a.range_dot_unchecked(lo, hi, &x) };
+            assert_eq!(r.to_bits(), ax[i].to_bits());
+        }
+        assert!(a.quadratic_form(&x[1..], Parallelism::serial()).is_nan());
     }
 
     #[test]

@@ -427,14 +427,23 @@ impl Model for LinearModel {
         true
     }
 
+    /// The stiffness matrix: [`internal_force`](Model::internal_force) is its product with `u`.
+    fn linear_stiffness(&self) -> Option<&CsrMatrix> {
+        Some(&self.stiffness)
+    }
+
+    /// True without a load ([`Load::None`]).
+    fn is_unloaded(&self) -> bool {
+        matches!(self.load, Load::None)
+    }
+
     /// `u^T K u / 2`; `None` for a `u` of the wrong length.
     fn stored_energy(&self, u: &[f64]) -> Option<f64> {
         if u.len() != self.dofs() {
             return None;
         }
-        let mut ku = vec![0.0; u.len()];
-        self.stiffness.mul_vec(u, &mut ku, self.parallel);
-        Some(0.5 * crate::linalg::dot(u, &ku, self.parallel))
+        // Bit for bit `0.5 * dot(u, K u)`, without a vector for `K u`.
+        Some(0.5 * self.stiffness.quadratic_form(u, self.parallel))
     }
 }
 

@@ -300,6 +300,23 @@ pub trait Model {
         false
     }
 
+    /// The constant stiffness matrix `K` when [`internal_force`](Model::internal_force) is exactly
+    /// `K u`, summed row by row in stored order as [`spmv`](crate::linalg::spmv) does, for every
+    /// `t` and `v`. The explicit scheme then forms `K u` itself, row by row inside its update loop
+    /// (one pass over the vectors instead of two), and does not call `internal_force`; the
+    /// results are bit for bit those of `internal_force`. Default: `None`.
+    fn linear_stiffness(&self) -> Option<&CsrMatrix> {
+        None
+    }
+
+    /// True when [`external_force`](Model::external_force) is zero at every time. The explicit
+    /// scheme then neither calls it nor reads an external-force vector in its update loop.
+    /// Default: `false` (a model that leaves `external_force` at its zero default may return
+    /// `true`).
+    fn is_unloaded(&self) -> bool {
+        false
+    }
+
     /// Called once for every accepted step, with the time reached: make trial history variables
     /// permanent. Default: nothing.
     fn commit(&mut self, t: f64) {

@@ -1,0 +1,194 @@
+//! The explicit scheme's fused path for linear models (`K u` formed inside the update loop, no
+//! external-force vector for an unloaded model) gives bit for bit the results of the general path
+//! (`internal_force` and `external_force` called into vectors), serially and in parallel, for
+//! every combination of load, damping, constraints and force velocity.
+
+mod common;
+
+use tempora::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit};
+use tempora::model::{Constraints, Damping, LinearModel, Load, Model, TimeFunction};
+use tempora::{ModelError, State};
+
+/// A [`LinearModel`] seen only through the general [`Model`] methods: no
+/// `linear_stiffness`, and `is_unloaded` left at `false`, so the integrator takes the general path.
+struct Opaque(LinearModel);
+
+impl Model for Opaque {
+    fn dofs(&self) -> usize {
+        self.0.dofs()
+    }
+    fn lumped_mass(&self, out: &mut [f64]) {
+        self.0.lumped_mass(out)
+    }
+    fn internal_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        self.0.internal_force(t, u, v, out)
+    }
+    fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), ModelError> {
+        self.0.external_force(t, out)
+    }
+    fn damping(&self) -> Damping {
+        self.0.damping()
+    }
+    fn stiffness_product(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        x: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        self.0.stiffness_product(t, u, x, out)
+    }
+    fn constraints(&self) -> &Constraints {
+        self.0.constraints()
+    }
+    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
+        self.0.stored_energy(u)
+    }
+}
+
+fn model(n: usize, loaded: bool, damped: bool, constrained: bool) -> LinearModel {
+    let masses: Vec<f64> = (0..n).map(|i| 1.0 + 0.1 * (i % 5) as f64).collect();
+    let mut m = LinearModel::new(
+        &common::diag(&masses),
+        &common::chain_stiffness(n, 1.0, true, false),
+    )
+    .unwrap();
+    if loaded {
+        let mut pattern = vec![0.0; n];
+        pattern[n - 1] = 1.0;
+        pattern[n / 2] = -0.5;
+        m = m
+            .with_load(Load::Pattern {
+                pattern,
+                factor: TimeFunction::table(vec![0.0, 5.0], vec![0.0, 1.0]).unwrap(),
+            })
+            .unwrap();
+    }
+    if damped {
+        m = m.with_rayleigh(0.01, 0.02).unwrap();
+    }
+    if constrained {
+        m = m
+            .with_constraints(
+                Constraints::new()
+                    .fix(1)
+                    .prescribe_velocity(0, TimeFunction::Constant(0.1))
+                    .prescribe_displacement(2, TimeFunction::function(|t| 0.01 * t)),
+            )
+            .unwrap();
+    }
+    m
+}
+
+/// Runs 25 steps of varying size and returns the state and the ledger (as exact JSON).
+fn run<M: Model>(mut m: M, n: usize, fv: ForceVelocity) -> (State, String) {
+    let u0: Vec<f64> = (0..n).map(|i| ((i * 7919) % 1013) as f64 * 1e-3).collect();
+    let v0: Vec<f64> = (0..n)
+        .map(|i| ((i * 31) % 17) as f64 * 1e-3 - 0.008)
+        .collect();
+    let mut state = State::new(0.0, u0, v0).unwrap();
+    let opts = CentralDifferenceOptions {
+        stable_limit: StableLimit::Given(1.0),
+        force_velocity: fv,
+        ..Default::default()
+    };
+    let mut cd = CentralDifference::new(&mut m, &mut state, opts).unwrap();
+    for k in 0..25 {
+        let dt = if k % 3 == 0 { 0.3 } else { 0.45 };
+        cd.step(&mut m, &mut state, dt).unwrap();
+    }
+    (state, serde_json::to_string(cd.energy()).unwrap())
+}
+
+fn bits(x: &[f64]) -> Vec<u64> {
+    x.iter().map(|v| v.to_bits()).collect()
+}
+
+/// Every variant of the fused loop against the general path, on the serial (n = 300) and the
+/// parallel (n = 40,001, over 2 threads) path.
+#[test]
+fn fused_path_is_bit_identical_to_the_general_path() {
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(2)
+        .build()
+        .unwrap();
+    for n in [300, 40_001] {
+        for case in 0..8 {
+            let (loaded, damped, constrained) = (case & 1 != 0, case & 2 != 0, case & 4 != 0);
+            for fv in [ForceVelocity::Lagged, ForceVelocity::Predicted] {
+                let fused = model(n, loaded, damped, constrained);
+                assert!(fused.linear_stiffness().is_some());
+                assert_eq!(fused.is_unloaded(), !loaded);
+                let general = Opaque(fused.clone());
+                let ((s1, e1), (s2, e2)) =
+                    pool.install(|| (run(fused, n, fv), run(general, n, fv)));
+                let what = format!(
+                    "n = {n}, loaded {loaded}, damped {damped}, constrained {constrained}, {fv:?}"
+                );
+                assert_eq!(bits(&s1.u), bits(&s2.u), "u: {what}");
+                assert_eq!(bits(&s1.v), bits(&s2.v), "v: {what}");
+                assert_eq!(bits(&s1.a), bits(&s2.a), "a: {what}");
+                assert_eq!(e1, e2, "ledger: {what}");
+                // The run did move (a test of equal zeros would prove nothing).
+                assert!(s1.v.iter().any(|v| v.abs() > 1e-6), "{what}");
+            }
+        }
+    }
+}
+
+/// A model whose `linear_stiffness` does not fit its size is run on the general path for the
+/// internal force (the fused loop needs an `n x n` matrix); its `is_unloaded` is still used.
+#[test]
+fn a_stiffness_of_the_wrong_size_is_not_used() {
+    struct WrongK {
+        inner: LinearModel,
+        other: LinearModel,
+    }
+    impl Model for WrongK {
+        fn dofs(&self) -> usize {
+            self.inner.dofs()
+        }
+        fn lumped_mass(&self, out: &mut [f64]) {
+            self.inner.lumped_mass(out)
+        }
+        fn internal_force(
+            &mut self,
+            t: f64,
+            u: &[f64],
+            v: &[f64],
+            out: &mut [f64],
+        ) -> Result<(), ModelError> {
+            self.inner.internal_force(t, u, v, out)
+        }
+        fn linear_stiffness(&self) -> Option<&tempora::linalg::CsrMatrix> {
+            self.other.linear_stiffness()
+        }
+        fn is_unloaded(&self) -> bool {
+            true
+        }
+        fn stored_energy(&self, u: &[f64]) -> Option<f64> {
+            self.inner.stored_energy(u)
+        }
+    }
+    let n = 50;
+    let wrong = WrongK {
+        inner: model(n, false, false, false),
+        other: model(n + 1, false, false, false),
+    };
+    let (s1, e1) = run(wrong, n, ForceVelocity::Lagged);
+    let (s2, e2) = run(
+        Opaque(model(n, false, false, false)),
+        n,
+        ForceVelocity::Lagged,
+    );
+    assert_eq!(bits(&s1.u), bits(&s2.u));
+    assert_eq!(bits(&s1.v), bits(&s2.v));
+    assert_eq!(e1, e2);
+    assert!(s1.v.iter().any(|v| v.abs() > 1e-6));
+}
