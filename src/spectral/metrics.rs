@@ -42,6 +42,14 @@ pub fn spectral_radius(scheme: &Scheme, omega_dt: f64, xi: f64) -> f64 {
 /// The largest modulus of three eigenvalues, NaN when one of them is NaN (`f64::max` would drop
 /// it).
 fn largest_modulus(ev: &[Complex<f64>; 3]) -> f64 {
+    // Fast path: the largest squared modulus, one square root (`norm` is `hypot`, several times
+    // slower), where no square can overflow or underflow; `n0 + n1 + n2` is NaN when any root
+    // is, and the careful path below then gives NaN.
+    let (n0, n1, n2) = (ev[0].norm_sqr(), ev[1].norm_sqr(), ev[2].norm_sqr());
+    let m2 = n0.max(n1).max(n2);
+    if (n0 + n1 + n2).is_finite() && m2 > 1e-290 && m2 < 1e290 {
+        return m2.sqrt();
+    }
     ev.iter().map(|z| z.norm()).fold(0.0, |m, r| {
         if m.is_nan() || r.is_nan() {
             f64::NAN
@@ -61,19 +69,32 @@ pub fn metrics(scheme: &Scheme, omega_dt: f64, xi: f64) -> Metrics {
     let ev = eigenvalues(scheme, omega_dt, xi);
     let rho = largest_modulus(&ev);
     // Complex roots come in conjugate pairs; a pair is complex when its imaginary part is more
-    // than round-off.
-    let principal = ev
-        .iter()
-        .filter(|z| z.im > 1e-12 * z.norm().max(1e-300))
-        .max_by(|a, b| a.norm().total_cmp(&b.norm()))
-        .copied();
+    // than round-off. Compared in squares (no `hypot`): `im > 1e-12 |z|`, with `|z|` floored at
+    // 1e-300 as before.
+    let mut principal: Option<Complex<f64>> = None;
+    let mut best = f64::NEG_INFINITY;
+    for z in &ev {
+        let n2 = z.norm_sqr();
+        let complex = if n2.is_finite() && n2 > 1e-290 {
+            z.im > 0.0 && z.im * z.im > 1e-24 * n2
+        } else {
+            z.im > 1e-12 * z.norm().max(1e-300)
+        };
+        if complex && (principal.is_none() || n2 > best) {
+            principal = Some(*z);
+            best = n2;
+        }
+    }
     let (damping_ratio, period_error) = match principal {
         Some(z) => {
             let omega_bar = z.arg();
-            (
-                Some(-z.norm().ln() / omega_bar),
-                Some(omega_dt / omega_bar - 1.0),
-            )
+            // ln |z| = ln(|z|^2) / 2 (no `hypot`) where the square is representable.
+            let ln_mod = if best.is_finite() && best > 1e-290 {
+                0.5 * best.ln()
+            } else {
+                z.norm().ln()
+            };
+            (Some(-ln_mod / omega_bar), Some(omega_dt / omega_bar - 1.0))
         }
         None => (None, None),
     };
