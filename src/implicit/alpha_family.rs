@@ -875,6 +875,9 @@ impl AlphaIntegrator {
     ///
     /// Without constraints `R = 0` holds at every DOF, which the balance form needs; a model with
     /// constraints takes the general path.
+    // `x - x` is 0 for a finite `x` and NaN otherwise: the sums' fourth entry detects a
+    // non-finite result in the same pass.
+    #[allow(clippy::eq_op)]
     fn linear_substep<M: Model + ?Sized>(
         &mut self,
         model: &mut M,
