@@ -308,9 +308,9 @@ impl Model for CubicChain {
         let n = self.n;
         let f = |d: f64| self.k * d + self.k3 * d * d * d;
         let mut left = f(self.stretch(u, 0));
-        for i in 0..n {
+        for (i, o) in out.iter_mut().enumerate().take(n) {
             let right = f(self.stretch(u, i + 1));
-            out[i] = left - right;
+            *o = left - right;
             left = right;
         }
         Ok(())
