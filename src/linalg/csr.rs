@@ -370,9 +370,22 @@ impl CsrMatrix {
         if self.nrows != n || self.ncols != n {
             return f64::NAN;
         }
+        // The same summation order as `dot`'s chunks: four interleaved partial sums over the
+        // rows in groups of four, the remainder summed on its own, then
+        // `(acc0 + acc1) + (acc2 + acc3) + tail`.
         let chunk = |c: usize| {
-            let rows = c * super::CHUNK..((c + 1) * super::CHUNK).min(n);
-            rows.map(|i| x[i] * self.row_dot(i, x)).sum::<f64>()
+            let lo = c * super::CHUNK;
+            let hi = ((c + 1) * super::CHUNK).min(n);
+            let full = lo + (hi - lo) / 4 * 4;
+            let mut acc = [0.0; 4];
+            for base in (lo..full).step_by(4) {
+                for (l, a) in acc.iter_mut().enumerate() {
+                    let i = base + l;
+                    *a += x[i] * self.row_dot(i, x);
+                }
+            }
+            let tail: f64 = (full..hi).map(|i| x[i] * self.row_dot(i, x)).sum();
+            (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
         };
         let chunks = super::chunk_count(n);
         if par.parallel_for(n) {
