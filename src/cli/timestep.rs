@@ -240,8 +240,10 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
         .with_constraints(c)
         .map_err(|e| Failure::Usage(format!("--fix: {e}")))?;
     let state = State::at_rest(n, 0.0);
+    // The highest frequency is reported: Lanczos to its tolerance, not the Gershgorin bound.
     let options = StableStepOptions {
         prefer_elements: false,
+        accept_gershgorin: false,
         ..StableStepOptions::default()
     };
     let stable = estimate(&mut model, &state, &options).map_err(usage)?;
