@@ -370,35 +370,10 @@ impl CsrMatrix {
         if self.nrows != n || self.ncols != n {
             return f64::NAN;
         }
-        // The same summation order as `dot`'s chunks: four interleaved partial sums over the
-        // rows in groups of four, the remainder summed on its own, then
-        // `(acc0 + acc1) + (acc2 + acc3) + tail`.
-        let chunk = |c: usize| {
-            let lo = c * super::CHUNK;
-            let hi = ((c + 1) * super::CHUNK).min(n);
-            let full = lo + (hi - lo) / 4 * 4;
-            let mut acc = [0.0; 4];
-            for base in (lo..full).step_by(4) {
-                for (l, a) in acc.iter_mut().enumerate() {
-                    let i = base + l;
-                    *a += x[i] * self.row_dot(i, x);
-                }
-            }
-            let tail: f64 = (full..hi).map(|i| x[i] * self.row_dot(i, x)).sum();
-            (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
-        };
-        let chunks = super::chunk_count(n);
-        if par.parallel_for(n) {
-            // A vector of one sum per chunk, as `dot` has: set-up code, not a step.
-            let partials: Vec<f64> = (0..chunks).into_par_iter().map(chunk).collect();
-            partials.iter().sum()
-        } else {
-            let mut s = 0.0;
-            for c in 0..chunks {
-                s += chunk(c);
-            }
-            s
-        }
+        // `dot`'s summation order, through the same helper: bit for bit `dot(x, A x)`.
+        super::reduce::ordered_sum(n, par, |lo, hi| {
+            super::reduce::chunk_sum(hi - lo, |j| x[lo + j] * self.row_dot(lo + j, x))
+        })
     }
 
     /// `y = A x`, in parallel above `par.threshold` rows; each row is summed in stored order, so the

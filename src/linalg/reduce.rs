@@ -37,43 +37,64 @@ impl GlobalReduce for Serial {
     }
 }
 
-/// Deterministic local dot product `x . y` (chunked, so identical for any thread count); NaN
-/// when `x` and `y` differ in length (there is no dot product then).
+/// The sum over `0..n` in the fixed order that every chunked sum of the crate uses, so that it
+/// is the same on any thread count and two sums of the same terms agree bit for bit: the indices
+/// in chunks of [`CHUNK`], `chunk(lo, hi)` summing the terms of `lo..hi` with [`chunk_sum`], the
+/// chunk sums added in order. In parallel (over rayon's pool) when `par` says so for `n`.
+///
+/// [`dot`] and `CsrMatrix::quadratic_form` are both this sum (of `x_i y_i` and of
+/// `x_i (A x)_i`), which is why `x^T A x` equals `dot(x, A x)` exactly. `chunk` takes the range
+/// rather than one index so that it can slice its inputs once and index them without bounds
+/// checks.
+pub(crate) fn ordered_sum(
+    n: usize,
+    par: Parallelism,
+    chunk: impl Fn(usize, usize) -> f64 + Sync,
+) -> f64 {
+    let chunk = |c: usize| chunk(c * CHUNK, ((c + 1) * CHUNK).min(n));
+    let chunks = chunk_count(n);
+    if par.parallel_for(n) {
+        // Collecting into a Vec allocates; this path is for set-up code (eigenvalue estimates),
+        // not for the per-step loops, which keep their own partial-sum buffers.
+        let partials: Vec<f64> = (0..chunks).into_par_iter().map(chunk).collect();
+        partials.iter().sum()
+    } else {
+        let mut s = 0.0;
+        for c in 0..chunks {
+            s += chunk(c);
+        }
+        s
+    }
+}
+
+/// The sum of `term(j)` for `j` in `0..len` in a fixed order: four interleaved partial sums over
+/// the indices in groups of four (the additions do not wait on each other), the remainder summed on
+/// its own, then `(acc0 + acc1) + (acc2 + acc3) + tail`.
+#[inline(always)]
+pub(crate) fn chunk_sum(len: usize, term: impl Fn(usize) -> f64) -> f64 {
+    let full = len / 4 * 4;
+    let mut acc = [0.0; 4];
+    let mut j = 0;
+    while j < full {
+        for (l, a) in acc.iter_mut().enumerate() {
+            *a += term(j + l);
+        }
+        j += 4;
+    }
+    let tail: f64 = (full..len).map(&term).sum();
+    (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
+}
+
+/// Deterministic local dot product `x . y` (chunked, so identical for any thread count; see
+/// [`ordered_sum`]); NaN when `x` and `y` differ in length (there is no dot product then).
 pub fn dot(x: &[f64], y: &[f64], par: Parallelism) -> f64 {
     if x.len() != y.len() {
         return f64::NAN;
     }
-    let chunk_dot = |(a, b): (&[f64], &[f64])| {
-        // Four interleaved partial sums (a fixed order, so the result is the same on any
-        // thread count) instead of one: the additions no longer wait on each other.
-        let mut acc = [0.0; 4];
-        let (a4, b4) = (a.chunks_exact(4), b.chunks_exact(4));
-        let (ra, rb) = (a4.remainder(), b4.remainder());
-        for (p, q) in a4.zip(b4) {
-            for l in 0..4 {
-                acc[l] += p[l] * q[l];
-            }
-        }
-        let tail: f64 = ra.iter().zip(rb).map(|(p, q)| p * q).sum();
-        (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
-    };
-    if par.parallel_for(x.len()) {
-        // Collecting into a Vec allocates; this path is for set-up code (eigenvalue estimates),
-        // not for the per-step loops, which keep their own partial-sum buffers.
-        let partials: Vec<f64> = x
-            .par_chunks(CHUNK)
-            .zip(y.par_chunks(CHUNK))
-            .map(chunk_dot)
-            .collect();
-        partials.iter().sum()
-    } else {
-        let mut s = 0.0;
-        debug_assert!(chunk_count(x.len()) == x.chunks(CHUNK).count());
-        for c in x.chunks(CHUNK).zip(y.chunks(CHUNK)) {
-            s += chunk_dot(c);
-        }
-        s
-    }
+    ordered_sum(x.len(), par, |lo, hi| {
+        let (a, b) = (&x[lo..hi], &y[lo..hi]);
+        chunk_sum(a.len(), |j| a[j] * b[j])
+    })
 }
 
 /// Deterministic local Euclidean norm.
