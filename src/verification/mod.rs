@@ -228,6 +228,14 @@ pub fn markdown(checks: &[Check]) -> String {
          says so and the calculations are trusted.\n"
     );
     let _ = writeln!(s, "**{passed} of {} checks pass.**\n", checks.len());
+    let labels = shared_sources(checks);
+    if !labels.is_empty() {
+        let _ = writeln!(
+            s,
+            "A long source that several rows cite is given once, under \"{SHARED_SOURCES}\" \
+             after the tables, and the rows cite it by its label (S1, S2, ...).\n"
+        );
+    }
     let mut notes = Vec::new();
     for kind in Kind::ALL {
         let rows: Vec<&Check> = checks.iter().filter(|c| c.kind == kind).collect();
@@ -244,11 +252,14 @@ pub fn markdown(checks: &[Check]) -> String {
                 notes.push((c.id.clone(), n.clone()));
                 id = format!("{id} [note {}]", notes.len());
             }
+            let source = match labels.iter().position(|l| *l == c.source) {
+                Some(i) => source_label(i),
+                None => cell(&c.source),
+            };
             let _ = writeln!(
                 s,
-                "| {id} | {} | {} | {} | {} | {status} |",
+                "| {id} | {} | {source} | {} | {} | {status} |",
                 cell(&c.what),
-                cell(&c.source),
                 cell(&c.tolerance),
                 cell(&c.result)
             );
@@ -257,6 +268,13 @@ pub fn markdown(checks: &[Check]) -> String {
         if kind == Kind::Convergence {
             s.push_str(&order_matrix(checks));
         }
+    }
+    if !labels.is_empty() {
+        let _ = writeln!(s, "## {SHARED_SOURCES}\n");
+        for (i, text) in labels.iter().enumerate() {
+            let _ = writeln!(s, "- **{}**: {}", source_label(i), cell(text));
+        }
+        let _ = writeln!(s);
     }
     if !notes.is_empty() {
         let _ = writeln!(s, "## Notes\n");
@@ -317,6 +335,34 @@ fn order_matrix(checks: &[Check]) -> String {
 }
 
 /// A table cell: pipes escaped, on one line.
+/// Heading of the page's list of sources that several checks cite.
+pub const SHARED_SOURCES: &str = "Sources cited by several checks";
+
+/// Sources of at least [`SHARED_SOURCE_MIN_LEN`] characters that two or more checks cite, in the
+/// order of their first citation: the page gives each once, under [`SHARED_SOURCES`], and its rows
+/// cite it by label ([`source_label`]) instead of repeating a long text on every row.
+fn shared_sources(checks: &[Check]) -> Vec<&str> {
+    let mut labels: Vec<&str> = Vec::new();
+    for c in checks {
+        let text = c.source.as_str();
+        if text.len() >= SHARED_SOURCE_MIN_LEN
+            && !labels.contains(&text)
+            && checks.iter().filter(|d| d.source == text).count() >= 2
+        {
+            labels.push(text);
+        }
+    }
+    labels
+}
+
+/// Length from which a source repeated on several rows is given once, by label.
+const SHARED_SOURCE_MIN_LEN: usize = 80;
+
+/// The label of shared source number `i` (from 0): "S1", "S2", ...
+pub fn source_label(i: usize) -> String {
+    format!("S{}", i + 1)
+}
+
 fn cell(text: &str) -> String {
     text.replace('|', "\\|").replace('\n', " ")
 }
@@ -349,5 +395,27 @@ mod tests {
         assert!(md.contains("| x.1 [note 1] | a\\|b |"));
         assert!(md.contains("FAIL"));
         assert!(md.contains("1. `x.1`: remembered value differs"));
+    }
+
+    #[test]
+    fn long_sources_cited_twice_are_given_once_by_label() {
+        let long = "A. Author (2000), A long title of a book that many checks of this page cite, ch. 9, eq. 12";
+        assert!(long.len() >= SHARED_SOURCE_MIN_LEN);
+        let checks = vec![
+            Check::at_most("y.1", Kind::Convergence, "w", long, "e", 1.0, 2.0, ""),
+            Check::at_most("y.2", Kind::Convergence, "w", "short", "e", 1.0, 2.0, ""),
+            Check::at_most("y.3", Kind::Convergence, "w", long, "e", 1.0, 2.0, ""),
+            Check::at_most("y.4", Kind::Convergence, "w", "short", "e", 1.0, 2.0, ""),
+        ];
+        let md = markdown(&checks);
+        assert_eq!(md.matches(long).count(), 1, "{md}");
+        assert!(md.contains("| y.1 | w | S1 |") && md.contains("| y.3 | w | S1 |"));
+        assert!(
+            md.contains("| y.2 | w | short |"),
+            "short sources stay in the row"
+        );
+        assert!(md.contains(&format!("## {SHARED_SOURCES}\n\n- **S1**: {long}\n")));
+        // A long source cited once stays in its row.
+        assert!(!markdown(&checks[..2]).contains(SHARED_SOURCES));
     }
 }
