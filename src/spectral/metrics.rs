@@ -4,7 +4,7 @@
 use nalgebra::Complex;
 use serde::{Deserialize, Serialize};
 
-use super::roots::eigenvalues_fast;
+use super::prepared::Prepared;
 use super::scheme::Scheme;
 use crate::error::{Error, Result};
 
@@ -26,22 +26,24 @@ pub struct Metrics {
 }
 
 /// The three eigenvalues of the scheme's amplification matrix: from the characteristic cubic in
-/// closed form, or from the balanced Schur form ([`eigenvalues3`](super::eigenvalues3)) where
-/// the roots are clustered (see [`eigenvalues_fast`](super::eigenvalues_fast)).
+/// closed form (its coefficients formed from the parameters, [`Prepared`]), or from the balanced
+/// Schur form ([`eigenvalues3`](super::eigenvalues3)) where the roots are clustered (the same
+/// test as [`eigenvalues_fast`](super::eigenvalues_fast)).
 pub fn eigenvalues(scheme: &Scheme, omega_dt: f64, xi: f64) -> [Complex<f64>; 3] {
-    eigenvalues_fast(&scheme.amplification(omega_dt, xi))
+    Prepared::new(scheme).eigenvalues(omega_dt, xi)
 }
 
 /// The largest eigenvalue modulus; NaN when the amplification matrix has a non-finite entry
 /// (a NaN or infinite `omega_dt` or `xi`, or one so large that the entries overflow), never a
 /// misleading finite value.
 pub fn spectral_radius(scheme: &Scheme, omega_dt: f64, xi: f64) -> f64 {
-    largest_modulus(&eigenvalues(scheme, omega_dt, xi))
+    Prepared::new(scheme).spectral_radius(omega_dt, xi)
 }
 
 /// The largest modulus of three eigenvalues, NaN when one of them is NaN (`f64::max` would drop
 /// it).
-fn largest_modulus(ev: &[Complex<f64>; 3]) -> f64 {
+#[inline]
+pub(crate) fn largest_modulus(ev: &[Complex<f64>; 3]) -> f64 {
     // Fast path: the largest squared modulus, one square root (`norm` is `hypot`, several times
     // slower), where no square can overflow or underflow; `n0 + n1 + n2` is NaN when any root
     // is, and the careful path below then gives NaN.
@@ -66,14 +68,19 @@ fn largest_modulus(ev: &[Complex<f64>; 3]) -> f64 {
 /// `xi_bar = -ln|z| / Omega_bar` (Hughes 1987, *The Finite Element Method*, sec. 9.3; Chung &
 /// Hulbert 1993).
 pub fn metrics(scheme: &Scheme, omega_dt: f64, xi: f64) -> Metrics {
-    let ev = eigenvalues(scheme, omega_dt, xi);
-    let rho = largest_modulus(&ev);
+    Prepared::new(scheme).metrics(omega_dt, xi)
+}
+
+/// [`metrics`] from the three eigenvalues at `omega_dt`.
+#[inline]
+pub(crate) fn metrics_from(ev: &[Complex<f64>; 3], omega_dt: f64) -> Metrics {
+    let rho = largest_modulus(ev);
     // Complex roots come in conjugate pairs; a pair is complex when its imaginary part is more
     // than round-off. Compared in squares (no `hypot`): `im > 1e-12 |z|`, with `|z|` floored at
     // 1e-300 as before.
     let mut principal: Option<Complex<f64>> = None;
     let mut best = f64::NEG_INFINITY;
-    for z in &ev {
+    for z in ev {
         let n2 = z.norm_sqr();
         let complex = if n2.is_finite() && n2 > 1e-290 {
             z.im > 0.0 && z.im * z.im > 1e-24 * n2
@@ -109,16 +116,10 @@ pub fn metrics(scheme: &Scheme, omega_dt: f64, xi: f64) -> Metrics {
 
 /// Coefficients `[1, c2, c1, c0]` of the characteristic polynomial
 /// `det(z I - A) = z^3 + c2 z^2 + c1 z + c0` at `omega_dt`, `xi`.
+///
+/// Formed from the parameters, without the matrix (derivation in [`Prepared`]).
 pub fn characteristic_polynomial(scheme: &Scheme, omega_dt: f64, xi: f64) -> [f64; 4] {
-    let a = scheme.amplification(omega_dt, xi);
-    let trace = a[0][0] + a[1][1] + a[2][2];
-    let minors = a[0][0] * a[1][1] - a[0][1] * a[1][0] + a[0][0] * a[2][2] - a[0][2] * a[2][0]
-        + a[1][1] * a[2][2]
-        - a[1][2] * a[2][1];
-    let det = a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1])
-        - a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0])
-        + a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0]);
-    [1.0, -trace, minors, -det]
+    Prepared::new(scheme).characteristic_polynomial(omega_dt, xi)
 }
 
 /// The high-frequency spectral radius `rho_inf = lim rho(Omega)` as `Omega -> infinity`, or

@@ -9,6 +9,7 @@
 mod amplification;
 mod bounds;
 mod metrics;
+mod prepared;
 mod roots;
 mod scheme;
 mod sweep;
@@ -22,6 +23,7 @@ pub use metrics::{
     largest_step_for_period_error, metrics, omega_crit_numeric, order_of_accuracy, rho_inf,
     spectral_radius,
 };
+pub use prepared::Prepared;
 pub use roots::{CONDITION_LIMIT, eigenvalues_fast};
 pub use scheme::{Parameters, Scheme, cd_amplification};
 pub use sweep::{log_space, newmark_stability_map, sweep};
