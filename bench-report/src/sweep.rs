@@ -1,14 +1,15 @@
 //! Section "Spectral sweep": points per second per core of the spectral analysis, on one thread:
 //! `spectral::sweep` (spectral radius, damping ratio, period error per point), `spectral_radius`
-//! alone, and, for comparison in the same run, the robust eigen-solver `eigenvalues3` (balanced
-//! real Schur form) that every point went through before the closed-form fast path.
+//! alone (one call per point, and `Prepared::spectral_radii` over the whole grid), and, for
+//! comparison in the same run, the robust eigen-solver `eigenvalues3` (balanced real Schur form)
+//! that every point went through before the closed-form fast path.
 
 use std::fmt::Write as _;
 use std::time::Instant;
 
 use tempora::explicit::ForceVelocity;
 use tempora::params::AlphaParams;
-use tempora::spectral::{Scheme, eigenvalues3, log_space, spectral_radius, sweep};
+use tempora::spectral::{Prepared, Scheme, eigenvalues3, log_space, spectral_radius, sweep};
 
 use crate::{Section, Settings, Target};
 
@@ -63,13 +64,19 @@ pub fn section(settings: Settings) -> Section {
     let mut rows = Vec::new();
     for (name, scheme) in &cases {
         for (grid, omegas) in [("1e-2..1e2", &usual), ("1e-4..1e6", &wide)] {
-            let (r_sweep, r_rho, r_schur) = pool.install(|| {
+            let (r_sweep, r_rho, r_radii, r_schur) = pool.install(|| {
                 let r_sweep = rate(repeats, omegas.len(), || {
                     let m = sweep(std::slice::from_ref(scheme), omegas, xi);
                     m[0].iter().map(|p| p.spectral_radius).sum()
                 });
                 let r_rho = rate(repeats, omegas.len(), || {
                     omegas.iter().map(|&o| spectral_radius(scheme, o, xi)).sum()
+                });
+                let r_radii = rate(repeats, omegas.len(), || {
+                    Prepared::new(scheme)
+                        .spectral_radii(omegas, xi)
+                        .iter()
+                        .sum()
                 });
                 // The path before the fast one: the eigen-solver at every point (a tenth of the
                 // points: it is slow).
@@ -84,13 +91,14 @@ pub fn section(settings: Settings) -> Section {
                         })
                         .sum()
                 });
-                (r_sweep, r_rho, r_schur)
+                (r_sweep, r_rho, r_radii, r_schur)
             });
             eprintln!(
-                "   {name}, {grid}: sweep {:.2e}/s, spectral_radius {:.2e}/s, Schur {:.2e}/s",
-                r_sweep, r_rho, r_schur
+                "   {name}, {grid}: sweep {:.2e}/s, spectral_radius {:.2e}/s, spectral_radii \
+                 {:.2e}/s, Schur {:.2e}/s",
+                r_sweep, r_rho, r_radii, r_schur
             );
-            rows.push((*name, grid, r_sweep, r_rho, r_schur));
+            rows.push((*name, grid, r_sweep, r_rho, r_radii, r_schur));
         }
     }
     let threads = rayon::current_num_threads();
@@ -105,9 +113,12 @@ pub fn section(settings: Settings) -> Section {
         "Points per second on one thread (a one-thread rayon pool), `xi = {xi}`, {points} values \
          of `Omega` evenly spaced on a log axis, medians of {repeats} runs. `sweep` computes the \
          spectral radius, the damping ratio and the period error of each point \
-         (`spectral::metrics`); `spectral_radius` the largest eigenvalue modulus alone. The \
-         eigenvalues come from the characteristic cubic in closed form, with the balanced Schur \
-         form as the fallback for clustered roots (`spectral::eigenvalues_fast`); the last \
+         (`spectral::metrics`, in blocks of points evaluated stage by stage); `spectral_radius` \
+         the largest eigenvalue modulus alone, one call per point; `spectral_radii` the same \
+         values for the whole grid in blocks (`Prepared::spectral_radii`). The eigenvalues come \
+         from the characteristic cubic in closed form, its coefficients formed from the \
+         parameters without the matrix (`spectral::Prepared`), with the balanced Schur form of \
+         the matrix as the fallback for clustered roots; the last \
          column times that Schur form at every point, as every point was computed before the \
          fast path (same run). The usual plotting range is `Omega` 1e-2 to 1e2; on the wide \
          grid, large `Omega` brings the three roots of the dissipative members together and \
@@ -115,16 +126,17 @@ pub fn section(settings: Settings) -> Section {
     );
     let _ = writeln!(
         body,
-        "| scheme | Omega | sweep (M points/s) | spectral_radius (M points/s) | Schur form at every point (M points/s) |"
+        "| scheme | Omega | sweep (M points/s) | spectral_radius (M points/s) | spectral_radii (M points/s) | Schur form at every point (M points/s) |"
     );
-    let _ = writeln!(body, "|---|---|---|---|---|");
+    let _ = writeln!(body, "|---|---|---|---|---|---|");
     let mut targets = Vec::new();
-    for (name, grid, s, r, schur) in &rows {
+    for (name, grid, s, r, radii, schur) in &rows {
         let _ = writeln!(
             body,
-            "| {name} | {grid} | {} | {} | {} |",
+            "| {name} | {grid} | {} | {} | {} | {} |",
             mega(*s),
             mega(*r),
+            mega(*radii),
             mega(*schur)
         );
         if *grid == "1e-2..1e2" {

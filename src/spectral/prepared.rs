@@ -178,6 +178,35 @@ impl Prepared {
         omegas: &'a [f64],
         xi: f64,
     ) -> impl Iterator<Item = Metrics> + use<'a> {
+        let roots = self.roots_block(omegas, xi);
+        (0..omegas.len()).map(move |i| {
+            let o = omegas[i];
+            match &roots[i] {
+                Some(z) => metrics_from(z, o),
+                None => metrics_from(&self.fallback(o, xi), o),
+            }
+        })
+    }
+
+    /// The spectral radius at each point, bit for bit [`Prepared::spectral_radius`], on the
+    /// calling thread, computed in blocks stage by stage (see [`sweep`](super::sweep)): the
+    /// fastest way to many spectral radii.
+    pub fn spectral_radii(&self, omegas: &[f64], xi: f64) -> Vec<f64> {
+        let mut out = Vec::with_capacity(omegas.len());
+        for block in omegas.chunks(BLOCK) {
+            let roots = self.roots_block(block, xi);
+            out.extend(block.iter().zip(&roots).map(|(&o, z)| match z {
+                Some(z) => largest_modulus(z),
+                None => largest_modulus(&self.fallback(o, xi)),
+            }));
+        }
+        out
+    }
+
+    /// The closed-form roots at up to [`BLOCK`] points (`None` where the fallback must take
+    /// over), stage by stage.
+    #[inline(always)]
+    fn roots_block(&self, omegas: &[f64], xi: f64) -> [Option<[Complex<f64>; 3]>; BLOCK] {
         let n = omegas.len();
         assert!(n <= BLOCK);
         let mut c = [(0.0, 0.0, 0.0); BLOCK];
@@ -212,13 +241,7 @@ impl Prepared {
                 None
             };
         }
-        (0..n).map(move |i| {
-            let o = omegas[i];
-            match &roots[i] {
-                Some(z) => metrics_from(z, o),
-                None => metrics_from(&self.fallback(o, xi), o),
-            }
-        })
+        roots
     }
 }
 
@@ -306,6 +329,11 @@ mod tests {
                         let want = p.metrics(o, xi);
                         assert_eq!(format!("{m:?}"), format!("{want:?}"), "{} {o}", s.name());
                     }
+                }
+                let radii = p.spectral_radii(&omegas, xi);
+                assert_eq!(radii.len(), omegas.len());
+                for (r, &o) in radii.iter().zip(&omegas) {
+                    assert_eq!(r.to_bits(), p.spectral_radius(o, xi).to_bits(), "{o}");
                 }
             }
         }

@@ -58,7 +58,7 @@ pub(crate) fn cubic_coefficients(a: &[[f64; 3]; 3]) -> (f64, f64, f64) {
 #[inline(always)]
 fn cbrt_approx(x: f64) -> f64 {
     let a = x.abs();
-    if !(a >= f64::MIN_POSITIVE && a <= f64::MAX) {
+    if !(f64::MIN_POSITIVE..=f64::MAX).contains(&a) {
         return x.cbrt();
     }
     // bits(a) / 3 plus two thirds of the exponent bias, with the mantissa offset of common
