@@ -209,6 +209,9 @@ pub struct AlphaIntegrator {
     linear: bool,
     /// The linear path in its streamlined form (see [`AlphaIntegrator::linear_substep`]).
     fast_linear: bool,
+    /// The fused form of the streamlined path (see [`AlphaIntegrator::linear_substep_fused`])
+    /// where it applies; off only in tests that compare it with the unfused form.
+    fuse_linear: bool,
     factored_for: Option<f64>,
     /// Per-chunk partial sums of the streamlined linear path.
     partials: Vec<[f64; 4]>,
@@ -462,6 +465,7 @@ impl AlphaIntegrator {
             constraints,
             linear,
             fast_linear,
+            fuse_linear: true,
             factored_for: None,
             partials: vec![[0.0; 4]; if fast_linear { chunks } else { 0 }],
             no_partials: vec![(); chunks],
@@ -909,6 +913,16 @@ impl AlphaIntegrator {
             self.solver.factor(&self.jac)?;
             self.factored_for = Some(h);
         }
+        let fused = self.fuse_linear
+            && !damped
+            && self.mass.diagonal().is_some()
+            && [state.u.len(), state.v.len(), state.a.len()] == [n; 3]
+            && model
+                .linear_stiffness()
+                .is_some_and(|k| k.nrows() == n && k.ncols() == n);
+        if fused {
+            return self.linear_substep_fused(model, state, h);
+        }
         model.external_force(t1, &mut self.f_ext1).map_err(&err)?;
         // 1. Predictor (the velocity only where a damping force needs it: the internal force
         // of a linear model does not depend on it).
@@ -1182,6 +1196,133 @@ impl AlphaIntegrator {
         Ok(1)
     }
 
+    /// The streamlined linear path of [`linear_substep`](Self::linear_substep) for a diagonal
+    /// mass, no damping and a model that gives its stiffness ([`Model::linear_stiffness`]), in
+    /// two passes around the solve instead of four, with the same arithmetic (bit for bit the
+    /// same state, forces and ledger):
+    ///
+    /// 1. one pass over the rows of `K` forms `-R_p` directly: the predictor `u_p` is computed
+    ///    on the fly for each entry of a row (`K u_p` summed in stored order, as `spmv` does), so
+    ///    that neither `u_p` nor `K u_p` is stored and read back;
+    /// 2. the solve;
+    /// 3. one pass forms `u`, `v`, `a`, the balance force and the ledger's sums: per chunk, an
+    ///    element-wise loop without sums (which the compiler vectorises: its three divisions
+    ///    dominated the scalar loop) and then the sums in the same order as before, reading the
+    ///    chunk back from cache.
+    ///
+    /// An unloaded model ([`Model::is_unloaded`]) is not asked for its external force, and its
+    /// external-force vectors (zero) are not read.
+    #[allow(clippy::eq_op)]
+    fn linear_substep_fused<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &mut State,
+        h: f64,
+    ) -> Result<usize> {
+        let t1 = state.t + h;
+        let step = state.step + 1;
+        let p = self.params;
+        let (af, bf) = (1.0 - p.alpha_f, p.alpha_f);
+        let (am, bm) = (1.0 - p.alpha_m, p.alpha_m);
+        let bh = p.beta * h;
+        let bh2 = bh * h;
+        let g = p.gamma;
+        let n = self.n;
+        let par = self.options.parallel.parallel_for(n);
+        let err = model_err(step, t1);
+        let unloaded = model.is_unloaded();
+        if !unloaded {
+            model.external_force(t1, &mut self.f_ext1).map_err(&err)?;
+        }
+        let Some(m) = self.mass.diagonal() else {
+            unreachable!("the fused linear path is taken for a diagonal mass only")
+        };
+        let (u0, v0, a0) = (&state.u[..], &state.v[..], &state.a[..]);
+        // 1. -R_p, with K u_p formed row by row.
+        {
+            let Some(k) = model.linear_stiffness() else {
+                unreachable!("the fused linear path is taken for a model with a stiffness only")
+            };
+            let (fi0, fe0, fe1) = (&self.f_int0[..], &self.f_ext0[..], &self.f_ext1[..]);
+            // SAFETY: `c < ncols == n`, and `u0`, `v0`, `a0` have `n` entries (checked by the
+            // caller).
+            let predict = |c: usize| unsafe {
+                *u0.get_unchecked(c) + h * *v0.get_unchecked(c) + 0.5 * h * h * *a0.get_unchecked(c)
+            };
+            crate::linalg::for_chunks1(par, &mut self.du, &mut self.no_partials, |start, du, _| {
+                for (kk, out) in du.iter_mut().enumerate() {
+                    let i = start + kk;
+                    // SAFETY: `i < n == nrows`.
+                    let g1 = unsafe { k.row_dot_by(i, predict) };
+                    let ma = m[i] * a0[i];
+                    // The expressions of `linear_substep`, with `f_ext = +0` when unloaded
+                    // (`x - 0.0 == x` for every `x`).
+                    *out = match (bf == 0.0, unloaded) {
+                        (true, true) => -(ma + g1),
+                        (true, false) => -(ma + g1 - fe1[i]),
+                        (false, true) => -(ma + (af * g1 + bf * fi0[i])),
+                        (false, false) => {
+                            let fe = af * fe1[i] + bf * fe0[i];
+                            -(ma + (af * g1 + bf * fi0[i]) - fe)
+                        }
+                    };
+                }
+            });
+        }
+        self.solver.solve_in_place(&mut self.du)?;
+        // 3. Update, the new balance force and the works.
+        let c = FusedUpdate {
+            h,
+            bh,
+            bh2,
+            g,
+            af,
+            bf,
+            am,
+            bm,
+            du: &self.du,
+            u0,
+            v0,
+            a0,
+            fi0: &self.f_int0,
+            fe0: &self.f_ext0,
+            fe1: &self.f_ext1,
+            m,
+        };
+        let outs = [&mut self.u1, &mut self.v1, &mut self.a1, &mut self.f_int1];
+        let outs = outs.map(|v| &mut v[..]);
+        crate::linalg::for_chunks4(par, outs, &mut self.partials, |start, o, sums| {
+            *sums = if unloaded {
+                c.chunk::<false>(start, o)
+            } else {
+                c.chunk::<true>(start, o)
+            };
+        });
+        let sums = crate::linalg::sum_partials(&self.partials);
+        if !sums[3].is_finite() {
+            for (what, x) in [
+                ("displacement", &self.u1),
+                ("velocity", &self.v1),
+                ("acceleration", &self.a1),
+            ] {
+                if let Some(dof) = x.iter().position(|v| !v.is_finite()) {
+                    return Err(Error::NonFiniteState {
+                        quantity: what,
+                        dof,
+                        step,
+                        t: t1,
+                    });
+                }
+            }
+            check_finite("internal force", &self.f_int1)?;
+        }
+        let mut w = [sums[0], sums[1], 0.0, 0.0];
+        self.options.reduce.sum_in_place(&mut w);
+        let ke = 0.5 * self.options.reduce.sum(sums[2]);
+        self.book(model, state, t1, step, w, ke)?;
+        Ok(1)
+    }
+
     /// `||u1 - u||` over all DOFs.
     fn diff_norm(&self, state: &State) -> f64 {
         let s: f64 = self
@@ -1416,6 +1557,94 @@ impl AlphaIntegrator {
     }
 }
 
+/// The inputs of the update pass of [`AlphaIntegrator::linear_substep_fused`].
+struct FusedUpdate<'a> {
+    h: f64,
+    bh: f64,
+    bh2: f64,
+    g: f64,
+    af: f64,
+    bf: f64,
+    am: f64,
+    bm: f64,
+    du: &'a [f64],
+    u0: &'a [f64],
+    v0: &'a [f64],
+    a0: &'a [f64],
+    fi0: &'a [f64],
+    fe0: &'a [f64],
+    fe1: &'a [f64],
+    m: &'a [f64],
+}
+
+impl FusedUpdate<'_> {
+    /// One chunk (from `start`) of the update: `u`, `v`, `a` and the balance force `g` into the
+    /// outputs, and the sums `[u_step . (g_n + g), u_step . (f_ext,n + f_ext), v . M v, NaN
+    /// check]` of the chunk. `LOADED = false` treats the external forces as `+0` without reading
+    /// them. The same expressions, and the sums in the same order, as the lumped, undamped
+    /// branch of [`AlphaIntegrator::linear_substep`].
+    #[allow(clippy::eq_op)]
+    #[inline(always)]
+    fn chunk<const LOADED: bool>(
+        &self,
+        start: usize,
+        [u1, v1, a1, f1]: Chunks4Mut<'_>,
+    ) -> [f64; 4] {
+        let len = u1.len();
+        let r = start..start + len;
+        let (du, u0, v0, a0) = (
+            &self.du[r.clone()],
+            &self.u0[r.clone()],
+            &self.v0[r.clone()],
+            &self.a0[r.clone()],
+        );
+        let (fi0, m) = (&self.fi0[r.clone()], &self.m[r.clone()]);
+        let (fe0, fe1) = if LOADED {
+            (&self.fe0[r.clone()], &self.fe1[r])
+        } else {
+            (&[][..], &[][..])
+        };
+        let (v1, a1, f1) = (&mut v1[..len], &mut a1[..len], &mut f1[..len]);
+        let (h, bh, bh2, g) = (self.h, self.bh, self.bh2, self.g);
+        let (af, bf, am, bm) = (self.af, self.bf, self.am, self.bm);
+        // Element-wise, no sums: vectorised.
+        for k in 0..len {
+            let d = du[k];
+            let un = u0[k] + h * v0[k] + 0.5 * h * h * a0[k] + d;
+            let an = a0[k] + d / bh2;
+            let vn = v0[k] + h * a0[k] + (g * d) / bh;
+            u1[k] = un;
+            a1[k] = an;
+            v1[k] = vn;
+            // (1 - alpha_f) g1 = f_alpha - alpha_f g0 - M w.
+            let w = am * an + bm * a0[k];
+            let fe = if LOADED {
+                af * fe1[k] + bf * fe0[k]
+            } else {
+                0.0
+            };
+            f1[k] = (fe - bf * fi0[k] - m[k] * w) / af;
+        }
+        // The sums, from the chunk just written (in cache), in order.
+        let mut s = [0.0; 4];
+        for k in 0..len {
+            let (un, an, vn, g1) = (u1[k], a1[k], v1[k], f1[k]);
+            let step_u = un - u0[k];
+            s[0] += step_u * (fi0[k] + g1);
+            if LOADED {
+                s[1] += step_u * (fe0[k] + fe1[k]);
+            }
+            s[2] += m[k] * vn * vn;
+            s[3] +=
+                zero_if_finite(un) + zero_if_finite(an) + zero_if_finite(vn) + zero_if_finite(g1);
+        }
+        s
+    }
+}
+
+/// The four output chunks of [`FusedUpdate::chunk`].
+type Chunks4Mut<'a> = [&'a mut [f64]; 4];
+
 /// `0` for a finite `x`, NaN otherwise: summed over a vector, a finiteness check without a
 /// branch in the loop.
 #[inline]
@@ -1563,6 +1792,83 @@ mod tests {
             it.step(model, &mut state, dt).unwrap();
         }
         (state, it.energy().clone())
+    }
+
+    /// The fused streamlined path (diagonal mass, no damping, the model's `K` formed inside the
+    /// right-hand side's pass, no external force read for an unloaded model) gives bit for bit
+    /// the state and ledger of the unfused streamlined path: loaded and unloaded, `alpha_f`
+    /// zero and not, serial and parallel passes (several chunks).
+    #[test]
+    fn fused_linear_path_is_bit_identical() {
+        let n = 3 * crate::linalg::CHUNK + 17;
+        let params = [
+            AlphaParams::average_acceleration(),
+            AlphaParams::hht(-0.1).unwrap(),
+            AlphaParams::generalized_alpha(0.6).unwrap(),
+        ];
+        for loaded in [false, true] {
+            for p in params {
+                for threshold in [usize::MAX, 1] {
+                    let (m, k) = chain(n, false);
+                    let mut model = LinearModel::new(&m, &k).unwrap();
+                    if loaded {
+                        let mut pattern = vec![0.0; n];
+                        pattern[n - 1] = 1.0;
+                        pattern[3] = -0.5;
+                        model = model
+                            .with_load(Load::Pattern {
+                                pattern,
+                                factor: TimeFunction::function(|t| (1.3 * t).sin()),
+                            })
+                            .unwrap();
+                    }
+                    assert_eq!(model.is_unloaded(), !loaded);
+                    assert!(model.linear_stiffness().is_some());
+                    let run = |fuse: bool, model: &mut LinearModel| {
+                        let u0: Vec<f64> = (0..n).map(|i| (0.3 * i as f64).sin()).collect();
+                        let v0: Vec<f64> = (0..n).map(|i| 0.1 * (0.7 * i as f64).cos()).collect();
+                        let mut state = State::new(0.0, u0, v0).unwrap();
+                        let options = ImplicitOptions {
+                            parallel: Parallelism { threshold },
+                            ..ImplicitOptions::default()
+                        };
+                        let mut it = AlphaIntegrator::new(
+                            model,
+                            &mut state,
+                            p,
+                            Box::new(SparseCholesky::new()),
+                            options,
+                        )
+                        .unwrap();
+                        assert!(it.fast_linear);
+                        it.fuse_linear = fuse;
+                        for k in 0..12 {
+                            let dt = if k < 6 { 0.3 } else { 0.45 };
+                            it.step(model, &mut state, dt).unwrap();
+                        }
+                        (state, it.energy().clone(), it.f_int0.clone())
+                    };
+                    let (sf, lf, ff) = run(true, &mut model.clone());
+                    let (ss, ls, fs) = run(false, &mut model);
+                    let bits = |x: &[f64]| x.iter().map(|v| v.to_bits()).collect::<Vec<_>>();
+                    let what = format!("loaded {loaded}, {p:?}, threshold {threshold}");
+                    assert_eq!(bits(&sf.u), bits(&ss.u), "u: {what}");
+                    assert_eq!(bits(&sf.v), bits(&ss.v), "v: {what}");
+                    assert_eq!(bits(&sf.a), bits(&ss.a), "a: {what}");
+                    assert_eq!(bits(&ff), bits(&fs), "internal force: {what}");
+                    for (x, y) in [
+                        (lf.kinetic, ls.kinetic),
+                        (lf.internal_work, ls.internal_work),
+                        (lf.external_work, ls.external_work),
+                        (lf.numerical_dissipation, ls.numerical_dissipation),
+                        (lf.energy_in, ls.energy_in),
+                    ] {
+                        assert_eq!(x.to_bits(), y.to_bits(), "ledger: {what}");
+                    }
+                    assert!(lf.kinetic > 0.0 && lf.internal_work != 0.0);
+                }
+            }
+        }
     }
 
     /// The streamlined linear path solves the same balance as the general path (Newton's first

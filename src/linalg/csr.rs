@@ -342,6 +342,30 @@ impl CsrMatrix {
         }
     }
 
+    /// Row `i` of `A` times the vector whose entry `c` is `x(c)`, summed in stored order from
+    /// `0.0` like [`row_dot_unchecked`](Self::row_dot_unchecked) (bit for bit the same as that
+    /// product with the vector formed first): lets a caller compute the vector's entries on the
+    /// fly instead of storing them in a pass of their own. `x` is called with column indices
+    /// below `ncols` only.
+    ///
+    /// # Safety
+    /// `i < nrows`.
+    #[inline(always)]
+    pub(crate) unsafe fn row_dot_by(&self, i: usize, x: impl Fn(usize) -> f64) -> f64 {
+        // SAFETY: as in `row_dot_unchecked`: `i < nrows` (the caller's promise) and the type's
+        // invariants put `i`, `i + 1` inside `indptr` and `lo..hi` inside `indices` and `data`.
+        unsafe {
+            let lo = *self.indptr.get_unchecked(i);
+            let hi = *self.indptr.get_unchecked(i + 1);
+            let mut s = 0.0;
+            for k in lo..hi {
+                let c = *self.indices.get_unchecked(k) as usize;
+                s += self.data.get_unchecked(k) * x(c);
+            }
+            s
+        }
+    }
+
     /// The stored entries `lo..hi` times the matching entries of `x`, summed in order from
     /// `0.0`, without bounds checks (`lo..hi` is a row's range `indptr[i]..indptr[i + 1]` in
     /// the explicit scheme's fused update, which walks the row pointers itself).
