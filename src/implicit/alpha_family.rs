@@ -1243,29 +1243,25 @@ impl AlphaIntegrator {
             let Some(k) = model.linear_stiffness() else {
                 unreachable!("the fused linear path is taken for a model with a stiffness only")
             };
-            let (fi0, fe0, fe1) = (&self.f_int0[..], &self.f_ext0[..], &self.f_ext1[..]);
-            // SAFETY: `c < ncols == n`, and `u0`, `v0`, `a0` have `n` entries (checked by the
-            // caller).
-            let predict = |c: usize| unsafe {
-                *u0.get_unchecked(c) + h * *v0.get_unchecked(c) + 0.5 * h * h * *a0.get_unchecked(c)
+            let r = FusedRhs {
+                k,
+                h,
+                af,
+                bf,
+                u0,
+                v0,
+                a0,
+                m,
+                fi0: &self.f_int0,
+                fe0: &self.f_ext0,
+                fe1: &self.f_ext1,
             };
             crate::linalg::for_chunks1(par, &mut self.du, &mut self.no_partials, |start, du, _| {
-                for (kk, out) in du.iter_mut().enumerate() {
-                    let i = start + kk;
-                    // SAFETY: `i < n == nrows`.
-                    let g1 = unsafe { k.row_dot_by(i, predict) };
-                    let ma = m[i] * a0[i];
-                    // The expressions of `linear_substep`, with `f_ext = +0` when unloaded
-                    // (`x - 0.0 == x` for every `x`).
-                    *out = match (bf == 0.0, unloaded) {
-                        (true, true) => -(ma + g1),
-                        (true, false) => -(ma + g1 - fe1[i]),
-                        (false, true) => -(ma + (af * g1 + bf * fi0[i])),
-                        (false, false) => {
-                            let fe = af * fe1[i] + bf * fe0[i];
-                            -(ma + (af * g1 + bf * fi0[i]) - fe)
-                        }
-                    };
+                match (bf == 0.0, unloaded) {
+                    (true, true) => r.chunk::<true, false>(start, du),
+                    (true, false) => r.chunk::<true, true>(start, du),
+                    (false, true) => r.chunk::<false, false>(start, du),
+                    (false, false) => r.chunk::<false, true>(start, du),
                 }
             });
         }
@@ -1554,6 +1550,61 @@ impl AlphaIntegrator {
         state.step = step;
         model.commit(t1);
         Ok(())
+    }
+}
+
+/// The inputs of the right-hand side's pass of [`AlphaIntegrator::linear_substep_fused`].
+struct FusedRhs<'a> {
+    k: &'a CsrMatrix,
+    h: f64,
+    af: f64,
+    bf: f64,
+    u0: &'a [f64],
+    v0: &'a [f64],
+    a0: &'a [f64],
+    m: &'a [f64],
+    fi0: &'a [f64],
+    fe0: &'a [f64],
+    fe1: &'a [f64],
+}
+
+impl FusedRhs<'_> {
+    /// One chunk (from `start`) of `-R_p`, with `K u_p` formed row by row from the predictor
+    /// computed on the fly. The expressions of [`AlphaIntegrator::linear_substep`]: `BF0` for
+    /// `alpha_f = 0` (`(1 - alpha_f) = 1`, `g_n` not read), `LOADED = false` for `f_ext = +0`,
+    /// not read (`x - 0.0 == x` for every `x`). The caller checked `K` is `n x n` and `u0`,
+    /// `v0`, `a0` have `n` entries.
+    #[inline(always)]
+    fn chunk<const BF0: bool, const LOADED: bool>(&self, start: usize, du: &mut [f64]) {
+        let (u0, v0, a0, h) = (self.u0, self.v0, self.a0, self.h);
+        // SAFETY: `row_dot_by` passes column indices `c < ncols == n`, and `u0`, `v0`, `a0`
+        // have `n` entries.
+        let predict = |c: usize| unsafe {
+            *u0.get_unchecked(c) + h * *v0.get_unchecked(c) + 0.5 * h * h * *a0.get_unchecked(c)
+        };
+        let len = du.len();
+        let r = start..start + len;
+        let (m, a0c, fi0) = (&self.m[r.clone()], &a0[r.clone()], &self.fi0[r.clone()]);
+        let (fe0, fe1) = if LOADED {
+            (&self.fe0[r.clone()], &self.fe1[r])
+        } else {
+            (&[][..], &[][..])
+        };
+        let (af, bf) = (self.af, self.bf);
+        for (kk, out) in du.iter_mut().enumerate() {
+            // SAFETY: `start + kk < n == nrows`.
+            let g1 = unsafe { self.k.row_dot_by(start + kk, predict) };
+            let ma = m[kk] * a0c[kk];
+            *out = match (BF0, LOADED) {
+                (true, false) => -(ma + g1),
+                (true, true) => -(ma + g1 - fe1[kk]),
+                (false, false) => -(ma + (af * g1 + bf * fi0[kk])),
+                (false, true) => {
+                    let fe = af * fe1[kk] + bf * fe0[kk];
+                    -(ma + (af * g1 + bf * fi0[kk]) - fe)
+                }
+            };
+        }
     }
 }
 
