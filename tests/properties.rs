@@ -313,7 +313,10 @@ proptest! {
         let ev = eigenvalues3(&a);
         let z = *ev.iter().max_by(|x, y| x.norm().total_cmp(&y.norm())).unwrap();
         let rho = spectral_radius(&scheme, omega_dt, xi);
-        prop_assert!((z.norm() - rho).abs() <= 1e-14 * rho.max(1e-300));
+        // The closed-form radius agrees with the Schur form to 3e-12 of max(1, rho), the bound
+        // of the fast path's own proptest in tests/spectral.rs (both sides round; at small rho,
+        // for example rho_inf = 0 at large Omega, the error is absolute, not relative).
+        prop_assert!((z.norm() - rho).abs() <= 3e-12 * rho.max(1.0), "{} vs {rho}", z.norm());
         // Refuse nearly repeated roots (a defective A has no isolated left eigenvector) and a
         // spectral radius at round-off level.
         let gap = ev.iter().filter(|w| (**w - z).norm() > 0.0).map(|w| (*w - z).norm()).fold(f64::INFINITY, f64::min);
