@@ -508,15 +508,7 @@ impl CentralDifference {
                 |start, un, vh, p| {
                     let end = start + un.len();
                     let (u, v, a) = (&u[start..end], &v[start..end], &a[start..end]);
-                    let mut s = 0.0;
-                    for j in 0..un.len() {
-                        let h = v[j] + half * a[j];
-                        let x = u[j] + dt * h;
-                        vh[j] = h;
-                        un[j] = x;
-                        s += x;
-                    }
-                    p[0] = s;
+                    p[0] = loop_a_chunk(u, v, a, un, vh, dt, half);
                 },
             );
         }
@@ -904,8 +896,25 @@ impl EndLoop<'_> {
         partials: &mut [EndSums],
     ) {
         for_chunks2(par, an, vn, partials, |start, an, vn, p| {
-            *p = self.chunk::<FUSED, LOADED, DAMPED, EXTRA>(start, an, vn);
+            *p = self.chunk_outlined::<FUSED, LOADED, DAMPED, EXTRA>(start, an, vn);
         });
+    }
+
+    /// [`chunk`](Self::chunk) as a function of its own: its output slices are then known not to
+    /// overlap the inputs (inlined into the chunk iterator, that knowledge can be lost).
+    #[inline(never)]
+    fn chunk_outlined<
+        const FUSED: bool,
+        const LOADED: bool,
+        const DAMPED: bool,
+        const EXTRA: bool,
+    >(
+        &self,
+        start: usize,
+        an: &mut [f64],
+        vn: &mut [f64],
+    ) -> EndSums {
+        self.chunk::<FUSED, LOADED, DAMPED, EXTRA>(start, an, vn)
     }
 
     /// One chunk, from entry `start`.
@@ -999,6 +1008,32 @@ impl EndLoop<'_> {
         }
         s
     }
+}
+
+/// Loop A on one chunk: `vh = v + (dt/2) a`, `un = u + dt vh`; returns the sum of `un` (the
+/// finiteness guard). All slices are of one length. Not inlined, so that the compiler knows the
+/// output slices do not overlap the inputs.
+#[inline(never)]
+fn loop_a_chunk(
+    u: &[f64],
+    v: &[f64],
+    a: &[f64],
+    un: &mut [f64],
+    vh: &mut [f64],
+    dt: f64,
+    half: f64,
+) -> f64 {
+    let len = un.len();
+    let (u, v, a, vh) = (&u[..len], &v[..len], &a[..len], &mut vh[..len]);
+    let mut s = 0.0;
+    for j in 0..len {
+        let h = v[j] + half * a[j];
+        let x = u[j] + dt * h;
+        vh[j] = h;
+        un[j] = x;
+        s += x;
+    }
+    s
 }
 
 fn first_non_finite(x: &[f64]) -> Option<usize> {
