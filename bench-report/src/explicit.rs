@@ -10,19 +10,19 @@
 //! and the peak heap of an explicit run per DOF.
 //!
 //! # Bytes a step must move
-//! For an undamped, unloaded linear model with lumped mass the step reads `u, v, a`, the
-//! stiffness matrix (row pointers `8 (n + 1)`, column indices `4 nnz`, values `8 nnz` bytes), the
-//! mass `m` and its inverse `1/m`, and writes `u_{n+1}, v_{n+1/2}, a_{n+1}, v_{n+1}`. tempora's
-//! step runs its two loops as one sweep over memory (loop A a matrix bandwidth ahead of loop B),
-//! so `u_{n+1}` and `v_{n+1/2}` are read back from cache, not memory, and count once (written):
+//! For an undamped, unloaded linear model with lumped mass the step reads `u, v, a` and writes
+//! `u_{n+1}, v_{n+1/2}` (pass 1), then reads the stiffness matrix (row pointers `8 (n + 1)`,
+//! column indices `4 nnz`, values `8 nnz` bytes), `u_{n+1}` (once: the neighbours' entries are
+//! reused from cache), `v_{n+1/2}`, the mass `m` and its inverse `1/m` (for the kinetic energy and
+//! the acceleration), and writes `a_{n+1}, v_{n+1}` (pass 2):
 //!
 //! ```text
-//! bytes = 8 (5 + 4) n + 8 (n + 1) + 12 nnz
+//! bytes = 8 (5 + 6) n + 8 (n + 1) + 12 nnz
 //! ```
 //!
 //! Each array is counted once, reads and writes alike; the write-allocate traffic of the
 //! processor's caches is not counted, as STREAM does not count it for the triad (`24` bytes per
-//! entry) either. The hand loop makes two passes and moves `8 (5 + 6) n` vector bytes.
+//! entry) either.
 //!
 //! # Fairness of the timing
 //! The hand loop runs on two identical copies, one allocated before the integrator and one
@@ -153,7 +153,7 @@ pub fn csr_bytes(k: &CsrMatrix) -> usize {
 /// The bytes one explicit step must move (see the module documentation).
 fn step_bytes(k: &CsrMatrix) -> f64 {
     let n = k.nrows() as f64;
-    8.0 * 9.0 * n + csr_bytes(k) as f64
+    8.0 * 11.0 * n + csr_bytes(k) as f64
 }
 
 /// The size of the last-level cache (the largest cache level of CPU 0), if the OS tells.
@@ -434,12 +434,7 @@ pub fn interleaved_samples(
 }
 
 /// [`interleaved_samples`]' medians.
-pub fn interleaved(
-    repeats: usize,
-    inner: usize,
-    count: usize,
-    f: impl FnMut(usize),
-) -> Vec<f64> {
+pub fn interleaved(repeats: usize, inner: usize, count: usize, f: impl FnMut(usize)) -> Vec<f64> {
     interleaved_samples(repeats, inner, count, f)
         .into_iter()
         .map(median)
@@ -670,21 +665,16 @@ pub fn section(settings: Settings) -> Section {
          vectors of the same size, in two passes (`v_half, u_new` and the finiteness sum; then \
          per row `f = K u_new` fused with `a, v` and the energy sums `v_half f, v f, a f, m v^2`), \
          serial below tempora's parallel threshold ({} entries) and over rayon's pool above it, \
-         in the same chunks as the integrator. tempora's step runs the same two loops as one \
-         sweep: the first loop runs ahead of the second by the matrix's bandwidth (rounded up \
-         to whole chunks), so `u_new` and `v_half` are read back from cache; the arithmetic and \
-         the results are the same bit for bit, and the hand loop is kept as the plain two-pass \
-         reference, so **step / hand** includes the gain of the one-pass schedule (a hand loop \
-         with the same schedule would be the closer measure of the step's overhead). **control** \
-         times a second, identical copy of the hand loop: one copy is allocated before the \
-         integrator and one after it, each round of samples starts with another of the four \
-         loops, and **hand** is the median over both copies' samples, so that buffer placement \
-         and running order count for neither side; the control must read about 1.00, and its \
-         distance from 1 is the resolution of **step / hand**. **GB/s** counts the bytes the \
-         one-pass step must move, each array once: `8 (5 + 4) n` for the vectors (`u, v, a, m, \
-         1/m` read, `u_new, v_half, a, v` written; `u_new` and `v_half` are read again from \
-         cache and not counted twice) plus the matrix `8 (n + 1) + 12 nnz`. **triad** is \
-         `a[i] = b[i] + s c[i]` on three arrays of the same total size (24 bytes an entry), same \
+         in the same chunks as the integrator, as tempora's step does. **control** times a \
+         second, identical copy of the hand loop: one copy is allocated before the integrator \
+         and one after it, each round of samples starts with another of the four loops, and \
+         **hand** is the median over both copies' samples, so that buffer placement and running \
+         order count for neither side; the control must read about 1.00, and its distance from \
+         1 is the resolution of **step / hand** on the machine at the time. **GB/s** counts the \
+         bytes a step must move, each array once: `8 (5 + 6) n` for the vectors (`u, v, a` read \
+         and `u_new, v_half` written; `u_new, v_half, m, 1/m` read and `a, v` written) plus the \
+         matrix `8 (n + 1) + 12 nnz`. **triad** is `a[i] = b[i] + s c[i]` on three arrays of the \
+         same total size (24 bytes an entry), same \
          threads. Medians of {} samples. Last-level cache: {}.\n",
         Parallelism::default().threshold,
         if settings.quick { 5 } else { 9 },
