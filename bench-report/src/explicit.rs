@@ -703,6 +703,7 @@ pub fn section(settings: Settings) -> Section {
             if r.beyond_llc { "" } else { " (in cache)" }
         );
         targets.push(Target {
+            threads: rayon::current_num_threads().to_string(),
             what: format!("step / hand loop, {} n = {}", r.model, exp10(r.n)),
             measured: format!("{ratio:.3}"),
             target: format!("<= {HAND_TARGET}"),
@@ -710,6 +711,7 @@ pub fn section(settings: Settings) -> Section {
         });
         if r.beyond_llc {
             targets.push(Target {
+                threads: rayon::current_num_threads().to_string(),
                 what: format!(
                     "step bandwidth / triad, {} n = {} (beyond LLC)",
                     r.model,
@@ -753,6 +755,7 @@ pub fn section(settings: Settings) -> Section {
                 tsp
             );
             targets.push(Target {
+                threads: "1 and 2".to_string(),
                 what: format!("2-thread speed-up, {} n = {}", r.model, exp10(r.n)),
                 measured: format!("{sp:.2} (triad {tsp:.2})"),
                 target: format!(">= {SPEEDUP_TARGET}"),
@@ -800,6 +803,7 @@ pub fn section(settings: Settings) -> Section {
          avoids it.\n"
     );
     targets.push(Target {
+        threads: rayon::current_num_threads().to_string(),
         what: format!(
             "peak heap per DOF of an explicit run beyond the model, chain n = {}",
             exp10(mem_n)

@@ -489,6 +489,7 @@ pub fn section(settings: Settings) -> Section {
             ratio
         );
         targets.push(Target {
+            threads: rayon::current_num_threads().to_string(),
             what: format!(
                 "implicit linear step / (solve + products), {}, n = {}",
                 r.name,

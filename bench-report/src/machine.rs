@@ -20,6 +20,11 @@ impl Machine {
             self.cpu, self.cpus, self.memory_gib
         )
     }
+
+    /// Short form for a table cell: "CPU, N CPUs".
+    pub fn short(&self) -> String {
+        format!("{}, {} CPUs", self.cpu, self.cpus)
+    }
 }
 
 /// Reads /proc/cpuinfo, /proc/meminfo and the clock.

@@ -52,6 +52,8 @@ pub struct Target {
     pub target: String,
     /// Whether it is met.
     pub met: bool,
+    /// Threads the figure was measured on ("1", "2", "1 and 2" for a speed-up).
+    pub threads: String,
 }
 
 /// Run settings shared by the sections.
@@ -146,18 +148,24 @@ fn page(machine: &machine::Machine, sections: &[Section], seconds: f64, quick: b
     );
     let _ = writeln!(s, "- Report run time: {seconds:.0} s\n");
     let _ = writeln!(s, "## Targets\n");
-    let _ = writeln!(s, "| section | what | measured | target | met |");
-    let _ = writeln!(s, "|---|---|---|---|---|");
+    let _ = writeln!(
+        s,
+        "| section | what | measured | target | met | threads | machine | date |"
+    );
+    let _ = writeln!(s, "|---|---|---|---|---|---|---|---|");
     for sec in sections {
         for t in &sec.targets {
             let _ = writeln!(
                 s,
-                "| {} | {} | {} | {} | {} |",
+                "| {} | {} | {} | {} | {} | {} | {} | {} |",
                 sec.title,
                 t.what,
                 t.measured,
                 t.target,
-                if t.met { "yes" } else { "**no**" }
+                if t.met { "yes" } else { "**no**" },
+                t.threads,
+                machine.short(),
+                machine.date
             );
         }
     }

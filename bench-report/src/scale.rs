@@ -90,6 +90,7 @@ pub fn explicit_scale(settings: Settings) -> (String, Vec<Target>) {
         Err(e) => {
             let _ = writeln!(body, "The explicit run could not start: {e}.");
             targets.push(Target {
+                threads: rayon::current_num_threads().to_string(),
                 what: format!("explicit run of a {n}-DOF chain completes"),
                 measured: format!("failed: {e}"),
                 target: "completes".into(),
@@ -196,6 +197,7 @@ pub fn explicit_scale(settings: Settings) -> (String, Vec<Target>) {
     );
 
     targets.push(Target {
+        threads: rayon::current_num_threads().to_string(),
         what: format!("explicit run of a chain of n = {n} completes ({STEPS} steps)"),
         measured: if completed {
             format!("{run_secs:.1} s, {steps_per_sec:.1} steps/s")
@@ -206,6 +208,7 @@ pub fn explicit_scale(settings: Settings) -> (String, Vec<Target>) {
         met: completed,
     });
     targets.push(Target {
+        threads: rayon::current_num_threads().to_string(),
         what: format!("peak heap of the n = {n} explicit run beyond the model"),
         measured: format!("{per_dof:.2} doubles per DOF"),
         target: "<= 10".into(),

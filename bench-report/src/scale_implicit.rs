@@ -165,6 +165,7 @@ pub fn implicit_scale(settings: Settings) -> (String, Vec<Target>) {
         let _ = writeln!(s, "\nThe run failed: {e}");
     }
     let targets = vec![Target {
+        threads: rayon::current_num_threads().to_string(),
         what: format!("implicit linear run, 2D stencil, n = {n}, {steps} steps, completes"),
         measured: if completed {
             format!(

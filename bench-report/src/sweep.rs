@@ -142,6 +142,7 @@ pub fn section(settings: Settings) -> Section {
         if *grid == "1e-2..1e2" {
             for (what, v) in [("sweep (metrics)", s), ("spectral_radius", r)] {
                 targets.push(Target {
+                    threads: "1".to_string(),
                     what: format!("{what} points/s per core, {name}, Omega {grid}"),
                     measured: format!("{:.2e}", v),
                     target: format!(">= {TARGET:.0e}"),

@@ -681,6 +681,7 @@ pub fn section(settings: Settings) -> Section {
             }
             let (measured, x) = speedup(&b.best_tempora(i, false), &b.best_diffsol(i));
             targets.push(Target {
+                threads: "1".to_string(),
                 what: format!(
                     "case (b) step load, error {target:.0e}: best diffsol time / best tempora time"
                 ),
