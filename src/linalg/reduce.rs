@@ -85,8 +85,11 @@ pub(crate) fn chunk_sum(len: usize, term: impl Fn(usize) -> f64) -> f64 {
     (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
 }
 
-/// Deterministic local dot product `x . y` (chunked, so identical for any thread count; see
-/// [`ordered_sum`]); NaN when `x` and `y` differ in length (there is no dot product then).
+/// Deterministic local dot product `x . y`; NaN when `x` and `y` differ in length (there is no dot
+/// product then).
+///
+/// The terms are summed in chunks of [`CHUNK`] entries, four interleaved partial sums in each
+/// chunk and the chunk sums in order, so the result is the same on any thread count.
 pub fn dot(x: &[f64], y: &[f64], par: Parallelism) -> f64 {
     if x.len() != y.len() {
         return f64::NAN;
