@@ -90,14 +90,24 @@ fn main() -> Result<(), Box<dyn Error>> {
     let (omegas, shapes) = modes(&asm.k, &asm.m)?;
     let eff = effective_masses(&asm, &shapes);
     let m_h = asm.horizontal_mass();
-    println!("mode  period (s)  frequency (Hz)  horizontal effective mass");
+    println!("mode  period (s)  frequency (Hz)  horizontal effective mass  translations mostly");
     for i in 0..6.min(omegas.len()) {
+        // Which translations dominate the shape (sum of squares of u against v).
+        let (mut sx, mut sy) = (0.0, 0.0);
+        for (k, g) in asm.free.iter().enumerate() {
+            match g % 3 {
+                0 => sx += shapes[(k, i)].powi(2),
+                1 => sy += shapes[(k, i)].powi(2),
+                _ => {}
+            }
+        }
         println!(
-            "{:>4}  {:>10.4}  {:>14.3}  {:>6.1} %",
+            "{:>4}  {:>10.4}  {:>14.3}  {:>24.1} %  {}",
             i + 1,
             2.0 * std::f64::consts::PI / omegas[i],
             omegas[i] / (2.0 * std::f64::consts::PI),
-            100.0 * eff[i] / m_h
+            100.0 * eff[i] / m_h,
+            if sx > sy { "horizontal" } else { "vertical" }
         );
     }
     if omegas.len() < 3 {
@@ -108,12 +118,12 @@ fn main() -> Result<(), Box<dyn Error>> {
         return Err("Rayleigh damping expected".into());
     };
     println!(
-        "Rayleigh damping {:.0} % at modes 1 and 3: a0 = {a0:.4} 1/s, a1 = {a1:.4e} s; ratio at mode 2 {:.2} %, at mode 6 {:.2} %",
+        "Rayleigh damping {:.0} % at modes 1 and 3: a0 = {a0:.4} 1/s, a1 = {a1:.4e} s; ratio at the sway modes 2 and 4: {:.2} % and {:.2} %",
         100.0 * XI,
         100.0 * damping.ratio_at(omegas[1]).unwrap_or(f64::NAN),
         100.0
             * damping
-                .ratio_at(omegas[5.min(omegas.len() - 1)])
+                .ratio_at(omegas[3.min(omegas.len() - 1)])
                 .unwrap_or(f64::NAN)
     );
     println!(

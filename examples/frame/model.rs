@@ -673,6 +673,14 @@ pub fn simulate(
     t_end: f64,
     roof_dof: usize,
 ) -> Result<Response> {
+    let n = asm.dofs();
+    if roof_dof >= n {
+        return Err(Error::DofOutOfRange {
+            what: "roof DOF",
+            dof: roof_dof,
+            n,
+        });
+    }
     let mut model = base_excited(asm, damping, ground)?;
     let mut state = State::at_rest(asm.dofs(), 0.0);
     let mut integrator = AlphaIntegrator::new(
@@ -695,14 +703,6 @@ pub fn simulate(
     })?
     .into_result()?;
     let record = outcome.record;
-    let n = asm.dofs();
-    if roof_dof >= n {
-        return Err(Error::DofOutOfRange {
-            what: "roof DOF",
-            dof: roof_dof,
-            n,
-        });
-    }
     let roof = record.u_column(roof_dof).collect();
     let base_shear = record.u.chunks(n).map(|u| asm.base_shear(u)).collect();
     Ok(Response {
