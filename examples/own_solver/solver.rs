@@ -14,7 +14,8 @@
 //!   `PIVOT_LOSS_FACTOR (n + 1) eps a_ii` is refused with `Error::NotPositiveDefinite` (the row
 //!   in the caller's numbering and the pivot), the same threshold as the built-in sparse
 //!   Cholesky (Higham 2002, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., theorem
-//!   10.3: the computed factor is exact for `A + dA`, `|dA| <= (n + 1) eps |L| |L^T|`).
+//!   10.3, number from memory: the computed factor is exact for `A + dA` with
+//!   `|dA| <= (n + 1) eps |L| |L^T|`).
 //! - `solve_in_place`: permutes the right-hand side, one forward and one backward substitution
 //!   over the band (`4 n b` flops), permutes back.
 //!
