@@ -71,14 +71,14 @@ pub fn simulate(
 
 /// `max |u_a - u_b| / max |u_a|` over every recorded DOF and time.
 pub fn relative_difference(a: &Record, b: &Record) -> f64 {
+    if a.u.len() != b.u.len() {
+        return f64::INFINITY;
+    }
     let scale = a.u.iter().fold(0.0f64, |m, x| m.max(x.abs()));
     let diff =
         a.u.iter()
             .zip(&b.u)
             .fold(0.0f64, |m, (x, y)| m.max((x - y).abs()));
-    if a.u.len() != b.u.len() {
-        return f64::INFINITY;
-    }
     diff / scale
 }
 
