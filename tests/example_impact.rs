@@ -184,3 +184,14 @@ fn stable_step_is_reestimated() {
     let flight = o.samples[1].dt;
     assert!((flight - hi).abs() <= 1e-12 * hi);
 }
+
+/// The integrator evaluates the internal force once per step (plus once at the start, for the
+/// initial acceleration) and commits once per accepted step: the protocol that makes trial
+/// history variables safe (`src/model/mod.rs`, "Trial evaluations and history variables"). The
+/// stable-step re-estimate uses the element bound and evaluates no force.
+#[test]
+fn one_force_evaluation_and_one_commit_per_step() {
+    let o = plastic();
+    assert_eq!(o.billet.commits, o.steps);
+    assert_eq!(o.billet.evaluations, o.steps + 1);
+}
