@@ -200,13 +200,16 @@ fn plot_energy(path: &std::path::Path, o: &Outcome) -> Result<(), Box<dyn Error>
         .x_desc("t (us)")
         .y_desc("energy (J)")
         .draw()?;
-    let series: [Series; 6] = [
+    // The balance error is relative in the samples; drawn in joules against the impact energy.
+    let t0 = o.samples[0].kinetic;
+    let series: [Series; 7] = [
         ("kinetic", BLUE, |s| s.kinetic),
         ("internal (ledger)", RED, |s| s.internal),
         ("elastic", MAGENTA, |s| s.elastic),
         ("plastic", GREEN, |s| s.plastic),
         ("hourglass", BLACK, |s| s.hourglass),
         ("contact", CYAN, |s| s.contact),
+        ("external work", RGBColor(230, 140, 0), |s| s.external),
     ];
     for (name, color, f) in series {
         chart
@@ -215,6 +218,16 @@ fn plot_energy(path: &std::path::Path, o: &Outcome) -> Result<(), Box<dyn Error>
                 &color,
             ))?
             .label(name)
+            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color));
+    }
+    {
+        let color = RGBColor(120, 120, 120);
+        chart
+            .draw_series(LineSeries::new(
+                o.samples.iter().map(|s| (s.t * 1e6, s.balance * t0)),
+                &color,
+            ))?
+            .label("balance error (relative x initial kinetic)")
             .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color));
     }
     chart
