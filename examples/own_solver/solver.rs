@@ -25,7 +25,9 @@
 //! Positive Definite Systems*, ch. 4.
 
 use tempora::Error;
-use tempora::linalg::{CsrMatrix, LinearSolver, PIVOT_LOSS_FACTOR, SYMMETRY_TOLERANCE, SolveInfo};
+use tempora::linalg::{
+    CsrMatrix, LinearSolver, PIVOT_LOSS_FACTOR, SYMMETRY_TOLERANCE, SolveInfo, check_rhs,
+};
 
 /// The solver's name in reports and errors.
 pub const NAME: &str = "banded Cholesky (reverse Cuthill-McKee)";
@@ -360,20 +362,7 @@ impl LinearSolver for BandedCholesky {
             });
         }
         let n = an.perm.len();
-        if rhs.len() != n {
-            return Err(Error::DimensionMismatch {
-                what: "right-hand side",
-                expected: n,
-                found: rhs.len(),
-            });
-        }
-        if let Some(i) = rhs.iter().position(|v| !v.is_finite()) {
-            return Err(Error::NonFiniteInput {
-                what: "right-hand side",
-                index: i,
-                value: rhs[i],
-            });
-        }
+        check_rhs(rhs, n)?;
         let (b, w) = (an.band, an.band + 1);
         let (l, y) = (&self.l, &mut self.work);
         for (yi, &old) in y.iter_mut().zip(&an.perm) {
@@ -542,20 +531,7 @@ impl LinearSolver for JacobiCg {
             }
         };
         let n = a.nrows();
-        if rhs.len() != n {
-            return Err(Error::DimensionMismatch {
-                what: "right-hand side",
-                expected: n,
-                found: rhs.len(),
-            });
-        }
-        if let Some(i) = rhs.iter().position(|v| !v.is_finite()) {
-            return Err(Error::NonFiniteInput {
-                what: "right-hand side",
-                index: i,
-                value: rhs[i],
-            });
-        }
+        check_rhs(rhs, n)?;
         let par = tempora::linalg::Parallelism::serial();
         let b_norm = dot(rhs, rhs).sqrt();
         self.x.fill(0.0);

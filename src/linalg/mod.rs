@@ -19,7 +19,7 @@ pub use cholesky::{PIVOT_LOSS_FACTOR, SparseCholesky};
 pub use csr::{CsrMatrix, spmv};
 pub use lu::{LU_RESIDUAL_LIMIT, SparseLu};
 pub use reduce::{GlobalReduce, Serial, dot, norm2};
-pub use solver::{LinearSolver, SYMMETRY_TOLERANCE, SolveInfo};
+pub use solver::{LinearSolver, SYMMETRY_TOLERANCE, SolveInfo, check_rhs};
 
 use rayon::prelude::*;
 

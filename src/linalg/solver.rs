@@ -86,8 +86,13 @@ pub(crate) fn check_finite_matrix(a: &CsrMatrix) -> Result<()> {
     Ok(())
 }
 
-/// `Error::DimensionMismatch` or `Error::NonFiniteInput` for a bad right-hand side.
-pub(crate) fn check_rhs(rhs: &[f64], n: usize) -> Result<()> {
+/// Checks a right-hand side handed to [`LinearSolver::solve_in_place`]: `Ok` when it has `n`
+/// entries, all finite. The built-in solvers call it first; a solver of your own can too.
+///
+/// # Errors
+/// [`Error::DimensionMismatch`] for a length other than `n`; [`Error::NonFiniteInput`] (index =
+/// the first non-finite entry) for a NaN or infinite entry.
+pub fn check_rhs(rhs: &[f64], n: usize) -> Result<()> {
     if rhs.len() != n {
         return Err(Error::DimensionMismatch {
             what: "right-hand side",
