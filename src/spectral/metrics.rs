@@ -146,43 +146,45 @@ fn metrics_with(omega_dt: f64, rho: f64, principal: Option<(Complex<f64>, f64)>)
 /// `re < 0`, with the arctangent by argument reduction to `|x| < 7/16` around `atan(1/2)`,
 /// `atan(1)`, `atan(3/2)` or `atan(inf)` and an odd polynomial of degree 23 (the method and the
 /// constants of fdlibm's `s_atan.c`, Sun Microsystems 1993, as in the Rust `libm` crate 0.2.16,
-/// `src/math/atan.rs`, hexadecimal forms beside them there; error below one unit in the last
-/// place). Within one unit in the last place of the library's `atan2` (correctly rounded), which
-/// this replaces: checked in the tests over twenty decades of both parts. The library's took
-/// about a fifth of a sweep point's instructions (counted with `valgrind --tool=callgrind`);
-/// this one is a few dozen instructions, two of them divisions. The root itself carries a few
-/// units of rounding from the cubic, so the difference does not show in the period error or the
-/// damping ratio beyond their own rounding.
+/// `src/math/atan.rs`, taken here by their bits; error below one unit in the last place, from
+/// memory). Within one unit in the last place of the platform library's `atan2` (glibc's aims
+/// at correct rounding, from memory), which this replaces: checked in the tests over twenty
+/// decades of both parts. The library's took about a fifth of a sweep point's instructions
+/// (counted with `valgrind --tool=callgrind`); this one is a few dozen, two of them divisions.
+/// The root itself carries a few units of rounding from the cubic, so the difference does not
+/// show in the period error or the damping ratio beyond their own rounding.
 #[inline(always)]
 fn arg_upper(re: f64, im: f64) -> f64 {
+    // The constants by their bits, as given in the source named above.
     const ATAN_HI: [f64; 4] = [
-        4.636_476_090_008_060_935_15e-1,
-        7.853_981_633_974_482_789_99e-1,
-        9.827_937_232_473_290_540_82e-1,
-        1.570_796_326_794_896_558_00e0,
+        f64::from_bits(0x3FDDAC67_0561BB4F),
+        f64::from_bits(0x3FE921FB_54442D18),
+        f64::from_bits(0x3FEF730B_D281F69B),
+        f64::from_bits(0x3FF921FB_54442D18),
     ];
     const ATAN_LO: [f64; 4] = [
-        2.269_877_745_296_168_709_24e-17,
-        3.061_616_997_868_383_017_93e-17,
-        1.390_331_103_123_099_845_16e-17,
-        6.123_233_995_736_766_035_87e-17,
+        f64::from_bits(0x3C7A2B7F_222F65E2),
+        f64::from_bits(0x3C81A626_33145C07),
+        f64::from_bits(0x3C700788_7AF0CBBD),
+        f64::from_bits(0x3C91A626_33145C07),
     ];
     const AT: [f64; 11] = [
-        3.333_333_333_333_293_180_27e-1,
-        -1.999_999_999_987_648_324_76e-1,
-        1.428_571_427_250_346_637_11e-1,
-        -1.111_111_040_546_235_578_80e-1,
-        9.090_887_133_436_506_561_96e-2,
-        -7.691_876_205_044_829_994_95e-2,
-        6.661_073_137_387_531_206_69e-2,
-        -5.833_570_133_790_573_486_45e-2,
-        4.976_877_994_615_932_360_17e-2,
-        -3.653_157_274_421_691_552_70e-2,
-        1.628_582_011_536_578_236_23e-2,
+        f64::from_bits(0x3FD55555_5555550D),
+        f64::from_bits(0xBFC99999_9998EBC4),
+        f64::from_bits(0x3FC24924_920083FF),
+        f64::from_bits(0xBFBC71C6_FE231671),
+        f64::from_bits(0x3FB745CD_C54C206E),
+        f64::from_bits(0xBFB3B0F2_AF749A6D),
+        f64::from_bits(0x3FB10D66_A0D03D51),
+        f64::from_bits(0xBFADDE2D_52DEFD9A),
+        f64::from_bits(0x3FA97B4B_24760DEB),
+        f64::from_bits(0xBFA2B444_2C6A6C2F),
+        f64::from_bits(0x3F90AD3A_E322DA11),
     ];
-    const PI_LO: f64 = 1.224_646_799_147_353_177_2e-16;
+    // pi - PI (the pi of fdlibm's e_atan2.c).
+    const PI_LO: f64 = f64::from_bits(0x3CA1A626_33145C07);
     let t = im / re.abs();
-    let a = if t < 3.725_290_298_461_914e-9 {
+    let a = if t < f64::from_bits(0x3E40_0000_0000_0000) {
         // t < 2^-27: atan(t) = t to round-off.
         t
     } else {
