@@ -143,71 +143,21 @@ fn metrics_with(omega_dt: f64, rho: f64, principal: Option<(Complex<f64>, f64)>)
 
 /// `atan2(im, re)` for a root in the upper half plane (`im > 0`, `re` finite; the principal
 /// roots have `im > 1e-12 |z|`), in `(0, pi)`: `atan(im / |re|)`, or `pi` minus it for
-/// `re < 0`, with the arctangent by argument reduction to `|x| < 7/16` around `atan(1/2)`,
-/// `atan(1)`, `atan(3/2)` or `atan(inf)` and an odd polynomial of degree 23 (the method and the
-/// constants of fdlibm's `s_atan.c`, Sun Microsystems 1993, as in the Rust `libm` crate 0.2.16,
-/// `src/math/atan.rs`, taken here by their bits; error below one unit in the last place, from
-/// memory). Within one unit in the last place of the platform library's `atan2` (glibc's aims
-/// at correct rounding, from memory), which this replaces: checked in the tests over twenty
-/// decades of both parts. The library's took about a fifth of a sweep point's instructions
-/// (counted with `valgrind --tool=callgrind`); this one is a few dozen, two of them divisions.
-/// The root itself carries a few units of rounding from the cubic, so the difference does not
-/// show in the period error or the damping ratio beyond their own rounding.
+/// `re < 0`, as fdlibm's `e_atan2.c` finishes it (Sun Microsystems 1993).
+///
+/// The arctangent is the `libm` crate's (a port of fdlibm's `s_atan.c`: argument reduction to
+/// `|x| < 7/16` and an odd polynomial; error below one unit in the last place, from memory).
+/// Within one unit in the last place of the platform library's `atan2` (glibc's aims at correct
+/// rounding, from memory), which it replaces in the sweep: checked in the tests over twenty
+/// decades of both parts. The platform's took about a fifth of a sweep point's instructions
+/// (counted with `valgrind --tool=callgrind`). The root itself carries a few units of rounding
+/// from the cubic, so the difference does not show in the period error or the damping ratio
+/// beyond their own rounding.
 #[inline(always)]
 fn arg_upper(re: f64, im: f64) -> f64 {
-    // The constants by their bits, as given in the source named above.
-    const ATAN_HI: [f64; 4] = [
-        f64::from_bits(0x3FDDAC67_0561BB4F),
-        f64::from_bits(0x3FE921FB_54442D18),
-        f64::from_bits(0x3FEF730B_D281F69B),
-        f64::from_bits(0x3FF921FB_54442D18),
-    ];
-    const ATAN_LO: [f64; 4] = [
-        f64::from_bits(0x3C7A2B7F_222F65E2),
-        f64::from_bits(0x3C81A626_33145C07),
-        f64::from_bits(0x3C700788_7AF0CBBD),
-        f64::from_bits(0x3C91A626_33145C07),
-    ];
-    const AT: [f64; 11] = [
-        f64::from_bits(0x3FD55555_5555550D),
-        f64::from_bits(0xBFC99999_9998EBC4),
-        f64::from_bits(0x3FC24924_920083FF),
-        f64::from_bits(0xBFBC71C6_FE231671),
-        f64::from_bits(0x3FB745CD_C54C206E),
-        f64::from_bits(0xBFB3B0F2_AF749A6D),
-        f64::from_bits(0x3FB10D66_A0D03D51),
-        f64::from_bits(0xBFADDE2D_52DEFD9A),
-        f64::from_bits(0x3FA97B4B_24760DEB),
-        f64::from_bits(0xBFA2B444_2C6A6C2F),
-        f64::from_bits(0x3F90AD3A_E322DA11),
-    ];
     // pi - PI (the pi of fdlibm's e_atan2.c).
-    const PI_LO: f64 = f64::from_bits(0x3CA1A626_33145C07);
-    let t = im / re.abs();
-    let a = if t < f64::from_bits(0x3E40_0000_0000_0000) {
-        // t < 2^-27: atan(t) = t to round-off.
-        t
-    } else {
-        let (id, x) = if t < 0.4375 {
-            (None, t)
-        } else if t < 0.6875 {
-            (Some(0), (2.0 * t - 1.0) / (2.0 + t))
-        } else if t < 1.1875 {
-            (Some(1), (t - 1.0) / (t + 1.0))
-        } else if t < 2.4375 {
-            (Some(2), (t - 1.5) / (1.0 + 1.5 * t))
-        } else {
-            (Some(3), -1.0 / t)
-        };
-        let z = x * x;
-        let w = z * z;
-        let s1 = z * (AT[0] + w * (AT[2] + w * (AT[4] + w * (AT[6] + w * (AT[8] + w * AT[10])))));
-        let s2 = w * (AT[1] + w * (AT[3] + w * (AT[5] + w * (AT[7] + w * AT[9]))));
-        match id {
-            None => x - x * (s1 + s2),
-            Some(k) => ATAN_HI[k] - ((x * (s1 + s2) - ATAN_LO[k]) - x),
-        }
-    };
+    const PI_LO: f64 = f64::from_bits(0x3CA1_A626_3314_5C07);
+    let a = libm::atan(im / re.abs());
     if re < 0.0 {
         std::f64::consts::PI - (a - PI_LO)
     } else {
