@@ -67,6 +67,19 @@ fn model(n: usize) -> LinearModel {
     .unwrap()
 }
 
+/// The one two-thread pool of this file, built once and never dropped: a dropped pool's threads
+/// exit later, and a thread's exit allocates (the work-stealing deques' epoch bookkeeping), which
+/// a loaded machine can delay into another check's counting window.
+fn pool() -> &'static rayon::ThreadPool {
+    static POOL: std::sync::OnceLock<rayon::ThreadPool> = std::sync::OnceLock::new();
+    POOL.get_or_init(|| {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(2)
+            .build()
+            .unwrap()
+    })
+}
+
 // One test function so that no other test thread allocates while counting.
 #[test]
 fn steps_allocate_nothing() {
@@ -88,10 +101,7 @@ fn plain_model(n: usize) -> LinearModel {
 }
 
 fn explicit_plain_linear_steps_allocate_nothing() {
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(2)
-        .build()
-        .unwrap();
+    let pool = pool();
     for n in [50, 200_000] {
         pool.install(|| {
             let mut m = plain_model(n);
@@ -159,10 +169,7 @@ fn explicit_steps_allocate_nothing() {
             // Parallel path. Called from a thread outside rayon's pool, every parallel loop is
             // handed over through rayon's injector queue, which allocates a block per 63
             // hand-offs; from inside the pool (as here) the step allocates nothing at all.
-            let pool = rayon::ThreadPoolBuilder::new()
-                .num_threads(2)
-                .build()
-                .unwrap();
+            let pool = pool();
             pool.install(|| check(n, treatment));
         }
     }
@@ -283,10 +290,7 @@ fn implicit_streamlined_steps_allocate_nothing() {
             "the load moved the chain"
         );
     };
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(2)
-        .build()
-        .unwrap();
+    let pool = pool();
     for consistent in [false, true] {
         for damped in [false, true] {
             run(2000, consistent, damped);
