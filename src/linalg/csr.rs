@@ -366,26 +366,6 @@ impl CsrMatrix {
         }
     }
 
-    /// The stored entries `lo..hi` times the matching entries of `x`, summed in order from
-    /// `0.0`, without bounds checks (`lo..hi` is a row's range `indptr[i]..indptr[i + 1]` in
-    /// the explicit scheme's fused update, which walks the row pointers itself).
-    ///
-    /// # Safety
-    /// `lo <= hi <= nnz` and `x.len() >= ncols`.
-    #[inline(always)]
-    pub(crate) unsafe fn range_dot_unchecked(&self, lo: usize, hi: usize, x: &[f64]) -> f64 {
-        let mut s = 0.0;
-        for k in lo..hi {
-            // SAFETY: `k < hi <= nnz == indices.len() == data.len()` (the caller's promise and
-            // the type's invariant); the column index is below `ncols <= x.len()`.
-            unsafe {
-                let c = *self.indices.get_unchecked(k) as usize;
-                s += self.data.get_unchecked(k) * x.get_unchecked(c);
-            }
-        }
-        s
-    }
-
     /// `x^T A x`, with the row products summed in chunks of [`CHUNK`](super::CHUNK) rows and the
     /// chunk sums in order: bit for bit `dot(x, A x)` (see [`dot`](super::dot)), without a vector
     /// for `A x`. NaN when `A` is not square of the size of `x`.
@@ -496,10 +476,6 @@ mod tests {
         }
         for i in [0, 1, 17, n - 1] {
             assert_eq!(a.row_dot(i, &x).to_bits(), ax[i].to_bits());
-            let (lo, hi) = (a.indptr()[i], a.indptr()[i + 1]);
-            // SAFETY: a row's range of a matrix of x.len() columns.
-            let r = unsafe { a.range_dot_unchecked(lo, hi, &x) };
-            assert_eq!(r.to_bits(), ax[i].to_bits());
         }
         assert!(a.quadratic_form(&x[1..], Parallelism::serial()).is_nan());
     }
