@@ -10,6 +10,8 @@
 //! Options: `--quick` (small sizes, a few seconds; does not write the page unless `--out` is
 //! given), `--out FILE` (default `docs/performance.md` for a full run), `--only NAME` (one
 //! section: explicit, implicit, sweep, work-precision, scale; repeatable).
+//! `--explicit-steps step|hand chain|cube N STEPS` runs only the steps of one loop, for
+//! instruction counts with valgrind (`bench-report/explicit-instructions.sh`).
 //!
 //! Ratios, not absolute times, are what the report claims: absolute times depend on the machine
 //! and on what else runs on it. Every timing is the median of repeats.
@@ -73,6 +75,27 @@ fn main() {
             "--quick" => quick = true,
             "--out" => out = args.next().map(PathBuf::from),
             "--only" => only.extend(args.next()),
+            "--explicit-steps" => {
+                // The driver for instruction counts (bench-report/explicit-instructions.sh).
+                let v: Vec<String> = args.by_ref().take(4).collect();
+                let parsed = match v.as_slice() {
+                    [w, m, n, s] => n
+                        .parse()
+                        .ok()
+                        .zip(s.parse().ok())
+                        .map(|(n, s)| (w, m, n, s)),
+                    _ => None,
+                };
+                let Some((w, m, n, s)) = parsed else {
+                    eprintln!("usage: bench-report --explicit-steps step|hand chain|cube N STEPS");
+                    std::process::exit(2);
+                };
+                if let Err(e) = explicit::drive_steps(w, m, n, s) {
+                    eprintln!("bench-report: {e}");
+                    std::process::exit(1);
+                }
+                return;
+            }
             "-h" | "--help" => {
                 println!(
                     "usage: bench-report [--quick] [--out FILE] [--only explicit|implicit|sweep|work-precision|scale]..."
