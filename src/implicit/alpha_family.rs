@@ -6,7 +6,9 @@ use std::sync::Arc;
 use super::newton::{NewtonOptions, NewtonReport, NewtonVariant};
 use crate::energy::EnergyLedger;
 use crate::error::{Error, ModelError, Result};
-use crate::linalg::{CsrMatrix, GlobalReduce, LinearSolver, Parallelism, Serial};
+use crate::linalg::{
+    CsrMatrix, GlobalReduce, LinearSolver, Parallelism, Serial, SimplicialFactor, SparseCholesky,
+};
 use crate::model::{Damping, Model, Motion};
 use crate::params::AlphaParams;
 use crate::run::{Integrator, StepReport};
@@ -212,6 +214,9 @@ pub struct AlphaIntegrator {
     /// The fused form of the streamlined path (see [`AlphaIntegrator::linear_substep_fused`])
     /// where it applies; off only in tests that compare it with the unfused form.
     fuse_linear: bool,
+    /// Fewest unknowns for which the fused path runs inside the sweeps of a simplicial factor
+    /// ([`FUSED_SWEEP_MIN_N`]; lowered only in tests).
+    sweep_min_n: usize,
     factored_for: Option<f64>,
     /// Per-chunk partial sums of the streamlined linear path.
     partials: Vec<[f64; 4]>,
@@ -466,6 +471,7 @@ impl AlphaIntegrator {
             linear,
             fast_linear,
             fuse_linear: true,
+            sweep_min_n: FUSED_SWEEP_MIN_N,
             factored_for: None,
             partials: vec![[0.0; 4]; if fast_linear { chunks } else { 0 }],
             no_partials: vec![(); chunks],
@@ -1238,36 +1244,23 @@ impl AlphaIntegrator {
             unreachable!("the fused linear path is taken for a diagonal mass only")
         };
         let (u0, v0, a0) = (&state.u[..], &state.v[..], &state.a[..]);
-        // 1. -R_p, with K u_p formed row by row.
-        {
-            let Some(k) = model.linear_stiffness() else {
-                unreachable!("the fused linear path is taken for a model with a stiffness only")
-            };
-            let r = FusedRhs {
-                k,
-                h,
-                af,
-                bf,
-                u0,
-                v0,
-                a0,
-                m,
-                fi0: &self.f_int0,
-                fe0: &self.f_ext0,
-                fe1: &self.f_ext1,
-            };
-            crate::linalg::for_chunks1(par, &mut self.du, &mut self.no_partials, |start, du, _| {
-                match (bf == 0.0, unloaded) {
-                    (true, true) => r.chunk::<true, false>(start, du),
-                    (true, false) => r.chunk::<true, true>(start, du),
-                    (false, true) => r.chunk::<false, false>(start, du),
-                    (false, false) => r.chunk::<false, true>(start, du),
-                }
-            });
-        }
-        self.solver.solve_in_place(&mut self.du)?;
-        // 3. Update, the new balance force and the works.
-        let c = FusedUpdate {
+        let Some(k) = model.linear_stiffness() else {
+            unreachable!("the fused linear path is taken for a model with a stiffness only")
+        };
+        let r = FusedRhs {
+            k,
+            h,
+            af,
+            bf,
+            u0,
+            v0,
+            a0,
+            m,
+            fi0: &self.f_int0,
+            fe0: &self.f_ext0,
+            fe1: &self.f_ext1,
+        };
+        let mut c = FusedUpdate {
             h,
             bh,
             bh2,
@@ -1276,7 +1269,7 @@ impl AlphaIntegrator {
             bf,
             am,
             bm,
-            du: &self.du,
+            du: &[],
             u0,
             v0,
             a0,
@@ -1285,15 +1278,51 @@ impl AlphaIntegrator {
             fe1: &self.f_ext1,
             m,
         };
-        let outs = [&mut self.u1, &mut self.v1, &mut self.a1, &mut self.f_int1];
-        let outs = outs.map(|v| &mut v[..]);
-        crate::linalg::for_chunks4(par, outs, &mut self.partials, |start, o, sums| {
-            *sums = if unloaded {
-                c.chunk::<false>(start, o)
-            } else {
-                c.chunk::<true>(start, o)
-            };
-        });
+        let simplicial = self
+            .solver
+            .as_sparse_cholesky()
+            .and_then(SparseCholesky::simplicial_factor)
+            .filter(|f| f.n() == n && f.len() <= 2 * n && n >= self.sweep_min_n);
+        if let Some(f) = simplicial {
+            // 1-3 inside the sweeps of the factor, for a factor with at most two entries a
+            // column on average (a chain's): its sweeps are chains of dependent operations with
+            // little work beside them. With more entries the sweeps have work of their own and
+            // the rows' work, scalar there, costs more than the chunked passes (2D stencil,
+            // n = 1e4, about 20 entries a column: the step 1.4x slower, measured). Below
+            // `FUSED_SWEEP_MIN_N` unknowns the chunked passes work in cache and are cheaper
+            // (chain, n = 1e4: the step 1.15x slower in the sweeps, measured).
+            let outs = [&mut self.u1, &mut self.v1, &mut self.a1, &mut self.f_int1];
+            let outs = outs.map(|v| &mut v[..]);
+            let (du, partials) = (&mut self.du[..], &mut self.partials[..]);
+            match (bf == 0.0, unloaded) {
+                (true, true) => fused_sweeps::<true, false>(&f, du, &r, &c, outs, partials),
+                (true, false) => fused_sweeps::<true, true>(&f, du, &r, &c, outs, partials),
+                (false, true) => fused_sweeps::<false, false>(&f, du, &r, &c, outs, partials),
+                (false, false) => fused_sweeps::<false, true>(&f, du, &r, &c, outs, partials),
+            }
+        } else {
+            // 1. -R_p, with K u_p formed row by row.
+            crate::linalg::for_chunks1(par, &mut self.du, &mut self.no_partials, |start, du, _| {
+                match (bf == 0.0, unloaded) {
+                    (true, true) => r.chunk::<true, false>(start, du),
+                    (true, false) => r.chunk::<true, true>(start, du),
+                    (false, true) => r.chunk::<false, false>(start, du),
+                    (false, false) => r.chunk::<false, true>(start, du),
+                }
+            });
+            self.solver.solve_in_place(&mut self.du)?;
+            // 3. Update, the new balance force and the works.
+            c.du = &self.du;
+            let outs = [&mut self.u1, &mut self.v1, &mut self.a1, &mut self.f_int1];
+            let outs = outs.map(|v| &mut v[..]);
+            crate::linalg::for_chunks4(par, outs, &mut self.partials, |start, o, sums| {
+                *sums = if unloaded {
+                    c.chunk::<false>(start, o)
+                } else {
+                    c.chunk::<true>(start, o)
+                };
+            });
+        }
         let sums = crate::linalg::sum_partials(&self.partials);
         if !sums[3].is_finite() {
             for (what, x) in [
@@ -1553,6 +1582,13 @@ impl AlphaIntegrator {
     }
 }
 
+/// Fewest unknowns for which [`AlphaIntegrator::linear_substep_fused`] runs inside the sweeps of
+/// a simplicial factor ([`fused_sweeps`]): chain of unit masses, average acceleration, medians
+/// of alternated runs on a loaded 2-core machine, step / (solve + `M x` + `K x`): n = 1e4 1.43
+/// in the sweeps against 1.23 in chunked passes, n = 1e5 0.73 against 1.23, n = 1e6 0.99
+/// against 1.21 (noisy figures; the crossing is somewhere between).
+const FUSED_SWEEP_MIN_N: usize = 32_768;
+
 /// The inputs of the right-hand side's pass of [`AlphaIntegrator::linear_substep_fused`].
 struct FusedRhs<'a> {
     k: &'a CsrMatrix,
@@ -1569,6 +1605,33 @@ struct FusedRhs<'a> {
 }
 
 impl FusedRhs<'_> {
+    /// Row `i` of `-R_p`: the expressions of [`FusedRhs::chunk`].
+    ///
+    /// # Panics
+    /// If `i >= n`.
+    #[inline(always)]
+    fn row<const BF0: bool, const LOADED: bool>(&self, i: usize) -> f64 {
+        let (u0, v0, a0, h) = (self.u0, self.v0, self.a0, self.h);
+        assert!(i < self.k.nrows());
+        // SAFETY: `row_dot_by` passes column indices `c < ncols == n`, and `u0`, `v0`, `a0`
+        // have `n` entries (checked by the caller); `i < nrows` (asserted).
+        let predict = |c: usize| unsafe {
+            *u0.get_unchecked(c) + h * *v0.get_unchecked(c) + 0.5 * h * h * *a0.get_unchecked(c)
+        };
+        let g1 = unsafe { self.k.row_dot_by(i, predict) };
+        let ma = self.m[i] * a0[i];
+        let (af, bf) = (self.af, self.bf);
+        match (BF0, LOADED) {
+            (true, false) => -(ma + g1),
+            (true, true) => -(ma + g1 - self.fe1[i]),
+            (false, false) => -(ma + (af * g1 + bf * self.fi0[i])),
+            (false, true) => {
+                let fe = af * self.fe1[i] + bf * self.fe0[i];
+                -(ma + (af * g1 + bf * self.fi0[i]) - fe)
+            }
+        }
+    }
+
     /// One chunk (from `start`) of `-R_p`, with `K u_p` formed row by row from the predictor
     /// computed on the fly. The expressions of [`AlphaIntegrator::linear_substep`]: `BF0` for
     /// `alpha_f = 0` (`(1 - alpha_f) = 1`, `g_n` not read), `LOADED = false` for `f_ext = +0`,
@@ -1690,6 +1753,96 @@ impl FusedUpdate<'_> {
                 zero_if_finite(un) + zero_if_finite(an) + zero_if_finite(vn) + zero_if_finite(g1);
         }
         s
+    }
+}
+
+impl FusedUpdate<'_> {
+    /// Row `i` of the update from its correction `d`: the expressions of
+    /// [`FusedUpdate::chunk`], the outputs written and the row's terms added to the sums `s`
+    /// in the same order.
+    #[allow(clippy::eq_op)]
+    #[inline(always)]
+    fn row<const LOADED: bool>(
+        &self,
+        i: usize,
+        d: f64,
+        [u1, v1, a1, f1]: &mut Chunks4Mut<'_>,
+        s: &mut [f64; 4],
+    ) {
+        let (u0, v0, a0) = (self.u0[i], self.v0[i], self.a0[i]);
+        let (fi0, m) = (self.fi0[i], self.m[i]);
+        let (h, bh, bh2, g) = (self.h, self.bh, self.bh2, self.g);
+        let (af, bf, am, bm) = (self.af, self.bf, self.am, self.bm);
+        let un = u0 + h * v0 + 0.5 * h * h * a0 + d;
+        let an = a0 + d / bh2;
+        let vn = v0 + h * a0 + (g * d) / bh;
+        u1[i] = un;
+        a1[i] = an;
+        v1[i] = vn;
+        let w = am * an + bm * a0;
+        let fe = if LOADED {
+            af * self.fe1[i] + bf * self.fe0[i]
+        } else {
+            0.0
+        };
+        let g1 = (fe - bf * fi0 - m * w) / af;
+        f1[i] = g1;
+        let step_u = un - u0;
+        s[0] += step_u * (fi0 + g1);
+        if LOADED {
+            s[1] += step_u * (self.fe0[i] + self.fe1[i]);
+        }
+        s[2] += m * vn * vn;
+        s[3] += zero_if_finite(un) + zero_if_finite(an) + zero_if_finite(vn) + zero_if_finite(g1);
+    }
+}
+
+/// Steps 1-3 of [`AlphaIntegrator::linear_substep_fused`] inside the sweeps of a simplicial
+/// factor ([`SimplicialFactor::solve_fused`]): row `i` of `-R_p` is formed when the forward sweep
+/// first needs it, and row `i` of the update as soon as the backward sweep has its correction, so
+/// that this work overlaps the sweeps' chains of dependent operations, and neither the
+/// right-hand side nor the correction goes through memory in the caller's order. The correction
+/// is the one [`LinearSolver::solve_in_place`] gives, bit for bit, so are `u`, `v`, `a` and the
+/// balance force. The sums of the rows of chunk `i / CHUNK` go to `partials[i / CHUNK]` in the
+/// backward sweep's order: the order of the chunked pass when that sweep visits the rows in
+/// increasing order (for the chain, whose elimination order is the reverse one), otherwise
+/// another fixed order (the results differ from the chunked pass's at round-off, and do not
+/// depend on the thread count).
+fn fused_sweeps<const BF0: bool, const LOADED: bool>(
+    f: &SimplicialFactor<'_>,
+    work: &mut [f64],
+    r: &FusedRhs<'_>,
+    c: &FusedUpdate<'_>,
+    mut outs: Chunks4Mut<'_>,
+    partials: &mut [[f64; 4]],
+) {
+    let n = f.n();
+    assert!(outs.iter().all(|o| o.len() == n));
+    assert_eq!(partials.len(), crate::linalg::chunk_count(n));
+    partials.fill([0.0; 4]);
+    let mut cur = usize::MAX;
+    let mut s = [0.0; 4];
+    f.solve_fused(
+        work,
+        |i| r.row::<BF0, LOADED>(i),
+        |i, d| {
+            let chunk = i / crate::linalg::CHUNK;
+            if chunk != cur {
+                if let Some(p) = partials.get_mut(cur) {
+                    for (p, x) in p.iter_mut().zip(s) {
+                        *p += x;
+                    }
+                }
+                s = [0.0; 4];
+                cur = chunk;
+            }
+            c.row::<LOADED>(i, d, &mut outs, &mut s);
+        },
+    );
+    if let Some(p) = partials.get_mut(cur) {
+        for (p, x) in p.iter_mut().zip(s) {
+            *p += x;
+        }
     }
 }
 
@@ -1893,10 +2046,22 @@ mod tests {
                         .unwrap();
                         assert!(it.fast_linear);
                         it.fuse_linear = fuse;
+                        it.sweep_min_n = 0;
                         for k in 0..12 {
                             let dt = if k < 6 { 0.3 } else { 0.45 };
                             it.step(model, &mut state, dt).unwrap();
                         }
+                        // The chain's factor is simplicial, with (AMD) the reverse elimination
+                        // order but for the last two rows: the fused form runs inside its
+                        // sweeps, whose backward sweep visits rows 1, 0, 2, 3, ..., n - 1.
+                        // The chunked pass's sums add the rows in increasing order; the first
+                        // two terms added to 0 in either order give the same sum (addition is
+                        // commutative), so the ledger is bit for bit the same as well.
+                        let f = it.solver.as_sparse_cholesky().unwrap();
+                        let f = f.simplicial_factor().unwrap();
+                        let order: Vec<usize> = f.perm.unwrap().iter().rev().copied().collect();
+                        assert!(order[..2] == [1, 0] || order[..2] == [0, 1]);
+                        assert!(order[2..].windows(2).all(|w| w[0] < w[1]));
                         (state, it.energy().clone(), it.f_int0.clone())
                     };
                     let (sf, lf, ff) = run(true, &mut model.clone());
@@ -1918,6 +2083,92 @@ mod tests {
                     }
                     assert!(lf.kinetic > 0.0 && lf.internal_work != 0.0);
                 }
+            }
+        }
+    }
+
+    /// On a chain whose DOFs are numbered in a scrambled order (`q(i) = 7919 i mod n`; simplicial
+    /// factor with two entries a column, an elimination order that is not monotone in the DOF
+    /// numbers) the fused form inside the factor's sweeps gives bit for bit the state and
+    /// internal force of the unfused form (the same correction, the same element-wise
+    /// expressions), and its ledger to round-off: the sums over the rows are taken in the
+    /// backward sweep's order instead of the rows' order. A reordered sum of `n` terms differs
+    /// by at most `2 (n - 1) eps` times the sum of the terms' magnitudes (Higham 2002, eq. 4.4,
+    /// both orders against the exact sum); each ledger entry's terms sum in magnitude to a few
+    /// times the energy scale, so `1e-11` of it covers `n = 400` (`2 n eps = 1.8e-13`) with
+    /// margin and still fails on any error in a single row's term.
+    #[test]
+    fn fused_sweeps_agree_on_a_scrambled_chain() {
+        let n = 400;
+        let q = |i: usize| (7919 * i) % n;
+        let mut kt = TriMat::new((n, n));
+        let mut mt = TriMat::new((n, n));
+        for i in 0..n {
+            kt.add_triplet(q(i), q(i), 2.0);
+            mt.add_triplet(i, i, 1.0 + 0.1 * (i % 7) as f64);
+            if i + 1 < n {
+                kt.add_triplet(q(i), q(i + 1), -1.0);
+                kt.add_triplet(q(i + 1), q(i), -1.0);
+            }
+        }
+        let (k, mass): (CsMat<f64>, CsMat<f64>) = (kt.to_csr(), mt.to_csr());
+        for p in [
+            AlphaParams::average_acceleration(),
+            AlphaParams::generalized_alpha(0.6).unwrap(),
+        ] {
+            let mut pattern = vec![0.0; n];
+            pattern[q(n / 2 + 3)] = 1.0;
+            let model = LinearModel::new(&mass, &k)
+                .unwrap()
+                .with_load(Load::Pattern {
+                    pattern,
+                    factor: TimeFunction::function(|t| (0.9 * t).cos()),
+                })
+                .unwrap();
+            let run = |fuse: bool, model: &mut LinearModel| {
+                let u0: Vec<f64> = (0..n).map(|i| (0.37 * i as f64).sin()).collect();
+                let mut state = State::new(0.0, u0, vec![0.0; n]).unwrap();
+                let mut it = AlphaIntegrator::new(
+                    model,
+                    &mut state,
+                    p,
+                    Box::new(SparseCholesky::new()),
+                    ImplicitOptions::default(),
+                )
+                .unwrap();
+                it.fuse_linear = fuse;
+                it.sweep_min_n = 0;
+                for _ in 0..10 {
+                    it.step(model, &mut state, 0.7).unwrap();
+                }
+                if fuse {
+                    let s = it.solver.as_sparse_cholesky().unwrap();
+                    let f = s.simplicial_factor().expect("a simplicial factor");
+                    assert!(f.len() <= 2 * n, "the fused sweeps are taken");
+                    assert!(!f.is_identity());
+                    let order = f.perm.unwrap();
+                    assert!(order.windows(2).any(|w| w[0] < w[1]));
+                    assert!(order.windows(2).any(|w| w[0] > w[1]));
+                }
+                (state, it.energy().clone(), it.f_int0.clone())
+            };
+            let (sf, lf, ff) = run(true, &mut model.clone());
+            let (ss, ls, fs) = run(false, &mut model.clone());
+            let bits = |x: &[f64]| x.iter().map(|v| v.to_bits()).collect::<Vec<_>>();
+            assert_eq!(bits(&sf.u), bits(&ss.u), "u: {p:?}");
+            assert_eq!(bits(&sf.v), bits(&ss.v), "v: {p:?}");
+            assert_eq!(bits(&sf.a), bits(&ss.a), "a: {p:?}");
+            assert_eq!(bits(&ff), bits(&fs), "internal force: {p:?}");
+            let e = ls.energy_in.abs().max(ls.kinetic.abs());
+            assert!(e > 0.0);
+            for (x, y) in [
+                (lf.kinetic, ls.kinetic),
+                (lf.internal_work, ls.internal_work),
+                (lf.external_work, ls.external_work),
+                (lf.numerical_dissipation, ls.numerical_dissipation),
+                (lf.energy_in, ls.energy_in),
+            ] {
+                assert!((x - y).abs() <= 1e-11 * e, "ledger {p:?}: {x} vs {y}");
             }
         }
     }

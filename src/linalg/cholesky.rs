@@ -115,6 +115,21 @@ impl SparseCholesky {
             .map(|an| matches!(an.symbolic.raw(), SymbolicCholeskyRaw::Supernodal(_)))
     }
 
+    /// The factor's arrays when faer chose its simplicial variant and a factor is ready
+    /// (`None` otherwise).
+    pub(crate) fn simplicial_factor(&self) -> Option<SimplicialFactor<'_>> {
+        let an = self.analysed.as_ref().filter(|_| self.factored)?;
+        match an.symbolic.raw() {
+            SymbolicCholeskyRaw::Simplicial(sym) => Some(SimplicialFactor {
+                col_ptr: sym.col_ptr(),
+                row_idx: sym.row_idx(),
+                values: &self.values,
+                perm: an.symbolic.perm().map(|p| p.arrays().0),
+            }),
+            SymbolicCholeskyRaw::Supernodal(_) => None,
+        }
+    }
+
     /// Forces faer's simplicial or supernodal variant, to test both.
     #[cfg(test)]
     fn with_variant(variant: SupernodalThreshold) -> Self {
@@ -150,6 +165,99 @@ impl SparseCholesky {
                     (0..block.ncols()).find_map(|c| check(node.start() + c, block[(c, c)]))
                 })
             }
+        }
+    }
+}
+
+/// The arrays of a simplicial factor `P A P^T = L L^T` of a [`SparseCholesky`], for a solve
+/// whose sweeps do other work on the way ([`SimplicialFactor::solve_fused`]).
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct SimplicialFactor<'a> {
+    /// Start of each column of `L` in `row_idx` and `values` (`n + 1` entries); each column
+    /// starts with its diagonal entry.
+    col_ptr: &'a [usize],
+    /// Row of each stored entry of `L`.
+    row_idx: &'a [usize],
+    /// Value of each stored entry of `L`.
+    values: &'a [f64],
+    /// `perm[j]` is the row of `A` eliminated at step `j`; `None` for the identity.
+    pub(crate) perm: Option<&'a [usize]>,
+}
+
+impl SimplicialFactor<'_> {
+    /// Number of unknowns.
+    pub(crate) fn n(&self) -> usize {
+        self.col_ptr.len() - 1
+    }
+
+    /// Number of stored entries of `L`.
+    pub(crate) fn len(&self) -> usize {
+        self.col_ptr[self.n()]
+    }
+
+    /// True when the elimination order is the identity.
+    #[cfg(test)]
+    pub(crate) fn is_identity(&self) -> bool {
+        self.perm
+            .is_none_or(|p| p.iter().enumerate().all(|(j, &r)| r == j))
+    }
+
+    /// Solves `A x = b` with faer's arithmetic for one right-hand side (the same operations in
+    /// the same order: `x_j = y_j * (1 / l_jj)`, `y_i -= l_ij x_j` forward; `acc += l_ij x_i` over
+    /// a column's entries from its last, `x_j = (z_j - acc) * (1 / l_jj)` backward, so the
+    /// solution is bit for bit that of [`LinearSolver::solve_in_place`]), without its two
+    /// permutation copies and with the right-hand side and the use of the solution inside the
+    /// sweeps:
+    ///
+    /// - `rhs(i)` gives `b_i` (row `i` of `A`); it is asked once per row, in elimination order,
+    ///   before the first update of that row by the forward sweep;
+    /// - `out(i, x_i)` receives the solution of row `i`, once per row, in reverse elimination
+    ///   order, as soon as the backward sweep has it.
+    ///
+    /// `work` (`n` entries) holds the permuted intermediate vectors; on return it holds the
+    /// solution in elimination order.
+    ///
+    /// # Panics
+    /// If `work` does not have `n` entries.
+    #[inline(always)]
+    pub(crate) fn solve_fused(
+        &self,
+        work: &mut [f64],
+        mut rhs: impl FnMut(usize) -> f64,
+        mut out: impl FnMut(usize, f64),
+    ) {
+        let n = self.n();
+        assert_eq!(work.len(), n);
+        let (col_ptr, row_idx, values) = (self.col_ptr, self.row_idx, self.values);
+        let row_of = |j: usize| self.perm.map_or(j, |p| p[j]);
+        // Forward: L y = P b, with P b formed just ahead of its first use.
+        let mut filled = 0;
+        for j in 0..n {
+            let (s, e) = (col_ptr[j], col_ptr[j + 1]);
+            while filled <= j {
+                work[filled] = rhs(row_of(filled));
+                filled += 1;
+            }
+            let xj = work[j] * values[s].recip();
+            work[j] = xj;
+            for (&i, &l) in row_idx[s + 1..e].iter().zip(&values[s + 1..e]) {
+                while filled <= i {
+                    work[filled] = rhs(row_of(filled));
+                    filled += 1;
+                }
+                work[i] -= l * xj;
+            }
+        }
+        // Backward: L^T z = y, and x = P^T z.
+        for j in (0..n).rev() {
+            let (s, e) = (col_ptr[j], col_ptr[j + 1]);
+            let mut acc = 0.0;
+            for (&i, &l) in row_idx[s + 1..e].iter().zip(&values[s + 1..e]).rev() {
+                acc += l * work[i];
+            }
+            let xj = (work[j] - acc) * values[s].recip();
+            work[j] = xj;
+            out(row_of(j), xj);
         }
     }
 }
@@ -274,6 +382,10 @@ impl LinearSolver for SparseCholesky {
     fn name(&self) -> &'static str {
         NAME
     }
+
+    fn as_sparse_cholesky(&self) -> Option<&SparseCholesky> {
+        Some(self)
+    }
 }
 
 #[cfg(test)]
@@ -343,6 +455,110 @@ mod tests {
             }
         }
         CsrMatrix::from_sprs("A", &t.to_csr()).unwrap()
+    }
+
+    /// Deterministic pseudo-random numbers in `[0, 1)` (splitmix64).
+    fn uniform(state: &mut u64) -> f64 {
+        *state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
+        let mut z = *state;
+        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+        (z ^ (z >> 31)) as f64 / 2f64.powi(64)
+    }
+
+    /// A random symmetric matrix, strictly diagonally dominant with a positive diagonal (so
+    /// SPD): entries `(i, j)` with `|i - j| <= band` kept with probability `fill`.
+    fn random_spd(n: usize, band: usize, fill: f64, seed: u64) -> CsrMatrix {
+        let mut st = seed;
+        let mut t = TriMat::new((n, n));
+        let mut row_sum = vec![0.0; n];
+        for i in 0..n {
+            for j in i + 1..(i + band + 1).min(n) {
+                if uniform(&mut st) < fill {
+                    let v = uniform(&mut st) - 0.5;
+                    t.add_triplet(i, j, v);
+                    t.add_triplet(j, i, v);
+                    row_sum[i] += v.abs();
+                    row_sum[j] += v.abs();
+                }
+            }
+        }
+        for (i, r) in row_sum.iter().enumerate() {
+            t.add_triplet(i, i, r + 0.1 + uniform(&mut st));
+        }
+        CsrMatrix::from_sprs("A", &t.to_csr()).unwrap()
+    }
+
+    /// The fused sweeps of a simplicial factor give faer's solution bit for bit (same
+    /// arithmetic), ask for each row of the right-hand side once, before it is used, and hand
+    /// each row of the solution once: a chain (reversal ordering), random banded and general
+    /// sparse SPD matrices, and a 2D Laplacian, whose AMD orderings are not trivial.
+    #[test]
+    fn fused_sweeps_equal_faers_solve() {
+        let mut chain = TriMat::new((500, 500));
+        for i in 0..500 {
+            chain.add_triplet(i, i, 2.5);
+            if i + 1 < 500 {
+                chain.add_triplet(i, i + 1, -1.0);
+                chain.add_triplet(i + 1, i, -1.0);
+            }
+        }
+        let cases = [
+            CsrMatrix::from_sprs("A", &chain.to_csr()).unwrap(),
+            random_spd(300, 3, 1.0, 1),
+            random_spd(300, 6, 0.5, 2),
+            random_spd(400, 400, 0.01, 3),
+            laplace(15, false, 1.0),
+        ];
+        let mut some_perm = false;
+        for (c, a) in cases.iter().enumerate() {
+            let n = a.nrows();
+            let mut s = SparseCholesky::with_variant(SupernodalThreshold::FORCE_SIMPLICIAL);
+            assert!(s.simplicial_factor().is_none());
+            s.analyze(a).unwrap();
+            assert!(s.simplicial_factor().is_none(), "not factored yet");
+            s.factor(a).unwrap();
+            let f = s.simplicial_factor().unwrap();
+            assert_eq!(f.n(), n);
+            some_perm |= f
+                .perm
+                .is_some_and(|p| p.iter().enumerate().any(|(j, &r)| r != j));
+            let mut st = 7 + c as u64;
+            let b: Vec<f64> = (0..n).map(|_| uniform(&mut st) - 0.5).collect();
+            let mut work = vec![0.0; n];
+            let mut x = vec![f64::NAN; n];
+            let mut asked = vec![0u32; n];
+            let mut handed = vec![0u32; n];
+            f.solve_fused(
+                &mut work,
+                |i| {
+                    asked[i] += 1;
+                    b[i]
+                },
+                |i, v| {
+                    handed[i] += 1;
+                    x[i] = v;
+                },
+            );
+            assert!(asked.iter().chain(&handed).all(|&k| k == 1), "case {c}");
+            let mut y = b.clone();
+            s.solve_in_place(&mut y).unwrap();
+            for (i, (u, v)) in x.iter().zip(&y).enumerate() {
+                assert_eq!(u.to_bits(), v.to_bits(), "case {c}, row {i}: {u} vs {v}");
+            }
+            // And it solves: A x = b to rounding (diagonally dominant, well conditioned).
+            let mut ax = vec![0.0; n];
+            a.mul_vec(&x, &mut ax, Parallelism::serial());
+            for (p, q) in ax.iter().zip(&b) {
+                assert!((p - q).abs() < 1e-12, "case {c}: {p} vs {q}");
+            }
+        }
+        assert!(some_perm);
+        // A supernodal factor is not offered.
+        let mut s = SparseCholesky::with_variant(SupernodalThreshold::FORCE_SUPERNODAL);
+        s.analyze(&laplace(12, false, 1.0)).unwrap();
+        s.factor(&laplace(12, false, 1.0)).unwrap();
+        assert!(s.simplicial_factor().is_none());
     }
 
     #[test]

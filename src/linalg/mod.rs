@@ -15,6 +15,7 @@ mod reduce;
 mod solver;
 
 pub use cg::{CgOptions, ConjugateGradient};
+pub(crate) use cholesky::SimplicialFactor;
 pub use cholesky::{PIVOT_LOSS_FACTOR, SparseCholesky};
 pub use csr::{CsrMatrix, spmv};
 pub use lu::{LU_RESIDUAL_LIMIT, SparseLu};

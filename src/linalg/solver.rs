@@ -28,6 +28,12 @@ pub trait LinearSolver: Send {
     fn solve_in_place(&mut self, rhs: &mut [f64]) -> Result<SolveInfo>;
     /// A short name for reports ("sparse Cholesky", ...).
     fn name(&self) -> &'static str;
+    /// This solver as a [`SparseCholesky`](super::SparseCholesky), if it is one (the implicit
+    /// integrator then runs the sweeps of a simplicial factor itself, with its own work inside
+    /// them); `None` by default.
+    fn as_sparse_cholesky(&self) -> Option<&super::SparseCholesky> {
+        None
+    }
 }
 
 /// What a solve did.
