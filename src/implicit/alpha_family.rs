@@ -1585,8 +1585,8 @@ impl AlphaIntegrator {
 /// Fewest unknowns for which [`AlphaIntegrator::linear_substep_fused`] runs inside the sweeps of
 /// a simplicial factor ([`fused_sweeps`]): chain of unit masses, average acceleration, medians
 /// of alternated runs on a loaded 2-core machine, step / (solve + `M x` + `K x`): n = 1e4 1.43
-/// in the sweeps against 1.23 in chunked passes, n = 1e5 0.73 against 1.23, n = 1e6 0.99
-/// against 1.21 (noisy figures; the crossing is somewhere between).
+/// in the sweeps against 1.23 in chunked passes (3 runs), n = 1e5 0.94 against 1.23, n = 1e6
+/// 0.95 against 1.21 (5 runs; noisy figures; the crossing is somewhere between).
 const FUSED_SWEEP_MIN_N: usize = 32_768;
 
 /// The inputs of the right-hand side's pass of [`AlphaIntegrator::linear_substep_fused`].
