@@ -1,6 +1,8 @@
 //! Helpers shared by the integration tests: small models built from sprs triplets.
 #![allow(dead_code)]
 
+pub mod roots;
+
 use sprs::{CsMat, TriMat};
 use tempora::model::LinearModel;
 

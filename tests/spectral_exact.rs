@@ -1,0 +1,216 @@
+//! The eigenvalues of the amplification matrix against exact ones: `tests/data/exact_roots.csv`,
+//! the roots of the characteristic polynomial formed from the step equations and solved with
+//! mpmath at 50 digits (`tests/data/exact_roots.py`; nothing of tempora used), correctly rounded.
+//! 3000 random points over every family, `Omega` in [1e-4, 1e6], `xi` in [0, 1]; about 3500
+//! points next to where two roots meet (relative offsets 1e-2 .. 1e-12 of `Omega` from a sign
+//! change of the discriminant, roots from about 1e-1 to 1e-6 apart); and the points that a
+//! search or CI found hard.
+//!
+//! Each computed root must lie within the error bound of the path that computed it
+//! (`common::roots`): the closed-form cubic (`spectral::eigenvalues` where it does not fall
+//! back) by a root's condition as a polynomial root, the balanced Schur form (`eigenvalues3`) by
+//! its condition as an eigenvalue, each times a few roundings, capped where roots meet.
+
+use nalgebra::Complex;
+use tempora::explicit::ForceVelocity;
+use tempora::params::AlphaParams;
+use tempora::spectral::{CONDITION_LIMIT, Scheme, eigenvalues, eigenvalues3, spectral_radius};
+
+mod common;
+
+use common::roots::{bounds, errors};
+
+const DATA: &str = include_str!("data/exact_roots.csv");
+
+struct Row {
+    line: usize,
+    kind: String,
+    scheme: Scheme,
+    omega: f64,
+    xi: f64,
+    exact: [Complex<f64>; 3],
+}
+
+fn rows() -> Vec<Row> {
+    let mut out = Vec::new();
+    let mut header = true;
+    for (i, line) in DATA.lines().enumerate() {
+        if line.starts_with('#') {
+            continue;
+        }
+        if header {
+            assert!(line.starts_with("kind,scheme,alpha_m"), "columns: {line}");
+            header = false;
+            continue;
+        }
+        let f: Vec<&str> = line.split(',').collect();
+        assert_eq!(f.len(), 14, "line {}", i + 1);
+        let x = |k: usize| -> f64 {
+            f[k].parse()
+                .unwrap_or_else(|e| panic!("line {}: {e}", i + 1))
+        };
+        let scheme = match f[1] {
+            "alpha" => Scheme::Alpha(AlphaParams::raw(x(2), x(3), x(4), x(5)).unwrap()),
+            "cd_lagged" => Scheme::CentralDifference(ForceVelocity::Lagged),
+            "cd_predicted" => Scheme::CentralDifference(ForceVelocity::Predicted),
+            s => panic!("line {}: scheme {s}", i + 1),
+        };
+        let z = |k: usize| Complex::new(x(8 + 2 * k), x(9 + 2 * k));
+        out.push(Row {
+            line: i + 1,
+            kind: f[0].to_string(),
+            scheme,
+            omega: x(6),
+            xi: x(7),
+            exact: [z(0), z(1), z(2)],
+        });
+    }
+    out
+}
+
+/// The table covers what it claims: every kind of point, clusters down to roots 1e-5 apart, and
+/// the three schemes' kinds.
+#[test]
+fn the_table_covers_clusters_and_every_family() {
+    let rows = rows();
+    assert!(rows.len() > 6000, "{}", rows.len());
+    let count = |k: &str| rows.iter().filter(|r| r.kind == k).count();
+    assert_eq!(count("random"), 3000);
+    assert!(count("cluster") > 3000, "{}", count("cluster"));
+    assert_eq!(count("found"), 3);
+    let tight = rows
+        .iter()
+        .filter(|r| {
+            let z = &r.exact;
+            let sep = [(0, 1), (0, 2), (1, 2)]
+                .iter()
+                .map(|&(i, j)| (z[i] - z[j]).norm())
+                .fold(f64::INFINITY, f64::min);
+            let scale = z.iter().map(|r| r.norm()).fold(1.0, f64::max);
+            sep > 0.0 && sep < 1e-5 * scale
+        })
+        .count();
+    assert!(tight > 300, "{tight} points with roots under 1e-5 apart");
+    for kind in ["alpha", "cd_lagged", "cd_predicted"] {
+        let n = rows
+            .iter()
+            .filter(|r| {
+                matches!(
+                    (&r.scheme, kind),
+                    (Scheme::Alpha(_), "alpha")
+                        | (
+                            Scheme::CentralDifference(ForceVelocity::Lagged),
+                            "cd_lagged"
+                        )
+                        | (
+                            Scheme::CentralDifference(ForceVelocity::Predicted),
+                            "cd_predicted"
+                        )
+                )
+            })
+            .count();
+        assert!(n > 300, "{kind}: {n}");
+    }
+}
+
+/// `spectral::eigenvalues` (closed-form cubic, balanced Schur form where the roots are
+/// clustered) within the error bound of the path it takes at every point; where every root's
+/// condition is below a third of `CONDITION_LIMIT` the closed form is taken (its own estimate of
+/// the condition, from computed roots, cannot exceed the limit there), and its own bound holds.
+/// The spectral radius within the largest root's bound.
+#[test]
+fn eigenvalues_are_within_their_error_bounds_of_the_exact_roots() {
+    let mut worst_closed = (0.0f64, 0);
+    let mut worst_any = (0.0f64, 0);
+    let mut closed_checked = 0;
+    for r in rows() {
+        let a = r.scheme.amplification(r.omega, r.xi);
+        let b = bounds(&r.exact, &a);
+        let got = eigenvalues(&r.scheme, r.omega, r.xi);
+        let e = errors(&got, &r.exact);
+        let sure_closed_form = b.cond <= CONDITION_LIMIT / 3.0;
+        closed_checked += usize::from(sure_closed_form);
+        for (i, &ei) in e.iter().enumerate() {
+            let bound = if sure_closed_form {
+                let ratio = ei / b.closed_form[i];
+                if ratio > worst_closed.0 {
+                    worst_closed = (ratio, r.line);
+                }
+                b.closed_form[i]
+            } else {
+                b.closed_form[i].max(b.schur[i])
+            };
+            let ratio = ei / bound;
+            if ratio > worst_any.0 {
+                worst_any = (ratio, r.line);
+            }
+            assert!(
+                ei <= bound,
+                "line {} ({} {} Omega {:e} xi {}): root {i} off by {:e} (bound {bound:e}, scale {})\n\
+                 computed {got:?}\nexact {:?}",
+                r.line,
+                r.kind,
+                r.scheme.name(),
+                r.omega,
+                r.xi,
+                ei,
+                b.scale,
+                r.exact
+            );
+        }
+        let rho = spectral_radius(&r.scheme, r.omega, r.xi);
+        let rho_exact = r.exact.iter().map(|z| z.norm()).fold(0.0, f64::max);
+        let bound = (0..3)
+            .map(|i| b.closed_form[i].max(b.schur[i]))
+            .fold(0.0, f64::max);
+        assert!(
+            (rho - rho_exact).abs() <= bound,
+            "line {}: spectral radius {rho} vs {rho_exact}",
+            r.line
+        );
+    }
+    assert!(
+        closed_checked > 1500,
+        "{closed_checked} points on the closed form"
+    );
+    println!(
+        "worst error / closed-form bound where the closed form is certain: {:.3} (line {}); \
+         worst error / bound anywhere: {:.3} (line {})",
+        worst_closed.0, worst_closed.1, worst_any.0, worst_any.1
+    );
+}
+
+/// The balanced Schur form (`eigenvalues3`, the fallback) within its own bound at every point.
+#[test]
+fn schur_form_is_within_its_error_bound_of_the_exact_roots() {
+    let mut worst = (0.0f64, 0);
+    for r in rows() {
+        let a = r.scheme.amplification(r.omega, r.xi);
+        let b = bounds(&r.exact, &a);
+        let got = eigenvalues3(&a);
+        let e = errors(&got, &r.exact);
+        for (i, &ei) in e.iter().enumerate() {
+            let ratio = ei / b.schur[i];
+            if ratio > worst.0 {
+                worst = (ratio, r.line);
+            }
+            assert!(
+                ei <= b.schur[i],
+                "line {} ({} {} Omega {:e} xi {}): root {i} off by {:e} (bound {:e})\n\
+                 computed {got:?}\nexact {:?}",
+                r.line,
+                r.kind,
+                r.scheme.name(),
+                r.omega,
+                r.xi,
+                ei,
+                b.schur[i],
+                r.exact
+            );
+        }
+    }
+    println!(
+        "worst error / Schur bound: {:.3} (line {})",
+        worst.0, worst.1
+    );
+}
