@@ -103,8 +103,9 @@ pub fn eigenvalues3(a: &[[f64; 3]; 3]) -> [Complex<f64>; 3] {
 /// negated discriminant: a block whose recomputed discriminant is positive by a rounding (a nearly
 /// double real root, such as the trapezoidal rule's at critical damping, `xi = 1`) gave NaN
 /// imaginary parts. A 2x2 block `[[a, b], [c, d]]` has the roots `(a + d)/2 +/- sqrt(disc)` with
-/// `disc = ((a - d)/2)^2 + b c` (the form that cannot go negative for a symmetric block): real
-/// when `disc >= 0`, the complex pair otherwise.
+/// `disc = ((a - d)/2)^2 + b c` (the form that cannot go negative for a symmetric block): the
+/// complex pair when `disc < 0`; otherwise two real roots, the larger in modulus by the formula
+/// with the sign that does not cancel and the other as the determinant over it.
 fn quasi_triangular_eigenvalues(t: &Matrix3<f64>) -> [Complex<f64>; 3] {
     let block = |m: usize| -> [Complex<f64>; 2] {
         let (a, b, c, d) = (t[(m, m)], t[(m, m + 1)], t[(m + 1, m)], t[(m + 1, m + 1)]);
@@ -112,11 +113,14 @@ fn quasi_triangular_eigenvalues(t: &Matrix3<f64>) -> [Complex<f64>; 3] {
         let half_diff = 0.5 * (a - d);
         let disc = half_diff * half_diff + b * c;
         if disc >= 0.0 {
-            let s = disc.sqrt();
-            [
-                Complex::new(half_trace + s, 0.0),
-                Complex::new(half_trace - s, 0.0),
-            ]
+            // The root of larger modulus without cancellation, the other from the determinant.
+            let big = half_trace + disc.sqrt().copysign(half_trace);
+            let small = if big == 0.0 {
+                0.0
+            } else {
+                (a * d - b * c) / big
+            };
+            [Complex::new(big, 0.0), Complex::new(small, 0.0)]
         } else {
             let s = (-disc).sqrt();
             [Complex::new(half_trace, s), Complex::new(half_trace, -s)]

@@ -311,8 +311,8 @@ mod tests {
 
     /// The closed form agrees with the balanced Schur form wherever it is used, to `3e-12` of
     /// `max(1, largest modulus)` (the gaps it demands bound the roots' condition; each path's
-    /// own error against exact roots is checked in `tests/spectral_exact.rs`), on a grid of `Omega` from 1e-4 to 1e6 and damping ratios from 0 to 1, for
-    /// the central difference and members of every named family (incl. `rho_inf` 0 and 1); and
+    /// own error against exact roots is checked in `tests/spectral_exact.rs`), on a grid of
+    /// `Omega` from 1e-4 to 1e6 and damping ratios from 0 to 1, for the central difference and members of every named family (incl. `rho_inf` 0 and 1); and
     /// it is used for nearly every point of the usual plotting range, `Omega` 1e-2 to 1e2 with
     /// `xi <= 0.3`.
     #[test]
