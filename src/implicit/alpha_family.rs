@@ -1620,14 +1620,36 @@ impl FusedRhs<'_> {
         };
         let g1 = unsafe { self.k.row_dot_by(i, predict) };
         let ma = self.m[i] * a0[i];
+        // Only what the variant reads is loaded (`BF0`, `LOADED` are constants).
+        let fi0 = if BF0 { 0.0 } else { self.fi0[i] };
+        let (fe0, fe1) = match (BF0, LOADED) {
+            (_, false) => (0.0, 0.0),
+            (true, true) => (0.0, self.fe1[i]),
+            (false, true) => (self.fe0[i], self.fe1[i]),
+        };
+        self.value::<BF0, LOADED>(ma, g1, fi0, fe0, fe1)
+    }
+
+    /// Row value of `-R_p` from `M a_n` (`ma`), the row of `K u_p` (`g1`), the balance force
+    /// `g_n` (`fi0`) and the external forces: the one expression of [`FusedRhs::row`] and
+    /// [`FusedRhs::chunk`]. `BF0` does not use `fi0` or `fe0`, `LOADED = false` neither force.
+    #[inline(always)]
+    fn value<const BF0: bool, const LOADED: bool>(
+        &self,
+        ma: f64,
+        g1: f64,
+        fi0: f64,
+        fe0: f64,
+        fe1: f64,
+    ) -> f64 {
         let (af, bf) = (self.af, self.bf);
         match (BF0, LOADED) {
             (true, false) => -(ma + g1),
-            (true, true) => -(ma + g1 - self.fe1[i]),
-            (false, false) => -(ma + (af * g1 + bf * self.fi0[i])),
+            (true, true) => -(ma + g1 - fe1),
+            (false, false) => -(ma + (af * g1 + bf * fi0)),
             (false, true) => {
-                let fe = af * self.fe1[i] + bf * self.fe0[i];
-                -(ma + (af * g1 + bf * self.fi0[i]) - fe)
+                let fe = af * fe1 + bf * fe0;
+                -(ma + (af * g1 + bf * fi0) - fe)
             }
         }
     }
@@ -1653,20 +1675,17 @@ impl FusedRhs<'_> {
         } else {
             (&[][..], &[][..])
         };
-        let (af, bf) = (self.af, self.bf);
         for (kk, out) in du.iter_mut().enumerate() {
             // SAFETY: `start + kk < n == nrows`.
             let g1 = unsafe { self.k.row_dot_by(start + kk, predict) };
             let ma = m[kk] * a0c[kk];
-            *out = match (BF0, LOADED) {
-                (true, false) => -(ma + g1),
-                (true, true) => -(ma + g1 - fe1[kk]),
-                (false, false) => -(ma + (af * g1 + bf * fi0[kk])),
-                (false, true) => {
-                    let fe = af * fe1[kk] + bf * fe0[kk];
-                    -(ma + (af * g1 + bf * fi0[kk]) - fe)
-                }
+            let fi = if BF0 { 0.0 } else { fi0[kk] };
+            let (e0, e1) = match (BF0, LOADED) {
+                (_, false) => (0.0, 0.0),
+                (true, true) => (0.0, fe1[kk]),
+                (false, true) => (fe0[kk], fe1[kk]),
             };
+            *out = self.value::<BF0, LOADED>(ma, g1, fi, e0, e1);
         }
     }
 }
@@ -1697,7 +1716,6 @@ impl FusedUpdate<'_> {
     /// check]` of the chunk. `LOADED = false` treats the external forces as `+0` without reading
     /// them. The same expressions, and the sums in the same order, as the lumped, undamped
     /// branch of [`AlphaIntegrator::linear_substep`].
-    #[allow(clippy::eq_op)]
     #[inline(always)]
     fn chunk<const LOADED: bool>(
         &self,
@@ -1719,40 +1737,76 @@ impl FusedUpdate<'_> {
             (&[][..], &[][..])
         };
         let (v1, a1, f1) = (&mut v1[..len], &mut a1[..len], &mut f1[..len]);
-        let (h, bh, bh2, g) = (self.h, self.bh, self.bh2, self.g);
-        let (af, bf, am, bm) = (self.af, self.bf, self.am, self.bm);
+        let fe = |k: usize| if LOADED { (fe0[k], fe1[k]) } else { (0.0, 0.0) };
         // Element-wise, no sums: vectorised.
         for k in 0..len {
-            let d = du[k];
-            let un = u0[k] + h * v0[k] + 0.5 * h * h * a0[k] + d;
-            let an = a0[k] + d / bh2;
-            let vn = v0[k] + h * a0[k] + (g * d) / bh;
+            let [un, vn, an, g1] =
+                self.values::<LOADED>(du[k], u0[k], v0[k], a0[k], fi0[k], m[k], fe(k));
             u1[k] = un;
             a1[k] = an;
             v1[k] = vn;
-            // (1 - alpha_f) g1 = f_alpha - alpha_f g0 - M w.
-            let w = am * an + bm * a0[k];
-            let fe = if LOADED {
-                af * fe1[k] + bf * fe0[k]
-            } else {
-                0.0
-            };
-            f1[k] = (fe - bf * fi0[k] - m[k] * w) / af;
+            f1[k] = g1;
         }
         // The sums, from the chunk just written (in cache), in order.
         let mut s = [0.0; 4];
         for k in 0..len {
-            let (un, an, vn, g1) = (u1[k], a1[k], v1[k], f1[k]);
-            let step_u = un - u0[k];
-            s[0] += step_u * (fi0[k] + g1);
-            if LOADED {
-                s[1] += step_u * (fe0[k] + fe1[k]);
-            }
-            s[2] += m[k] * vn * vn;
-            s[3] +=
-                zero_if_finite(un) + zero_if_finite(an) + zero_if_finite(vn) + zero_if_finite(g1);
+            Self::add_sums::<LOADED>(
+                &mut s,
+                [u1[k], v1[k], a1[k], f1[k]],
+                u0[k],
+                fi0[k],
+                m[k],
+                fe(k),
+            );
         }
         s
+    }
+
+    /// `[u, v, a, g]` of one row from its correction `d` and the row's values at `t_n`: the
+    /// one expression of [`FusedUpdate::chunk`] and [`FusedUpdate::row`]. `fe = (f_ext,n,
+    /// f_ext,n+1)`, not used when `LOADED = false`.
+    #[allow(clippy::too_many_arguments)]
+    #[inline(always)]
+    fn values<const LOADED: bool>(
+        &self,
+        d: f64,
+        u0: f64,
+        v0: f64,
+        a0: f64,
+        fi0: f64,
+        m: f64,
+        (fe0, fe1): (f64, f64),
+    ) -> [f64; 4] {
+        let (h, bh, bh2, g) = (self.h, self.bh, self.bh2, self.g);
+        let (af, bf, am, bm) = (self.af, self.bf, self.am, self.bm);
+        let un = u0 + h * v0 + 0.5 * h * h * a0 + d;
+        let an = a0 + d / bh2;
+        let vn = v0 + h * a0 + (g * d) / bh;
+        // (1 - alpha_f) g1 = f_alpha - alpha_f g0 - M w.
+        let w = am * an + bm * a0;
+        let fe = if LOADED { af * fe1 + bf * fe0 } else { 0.0 };
+        let g1 = (fe - bf * fi0 - m * w) / af;
+        [un, vn, an, g1]
+    }
+
+    /// Adds one row's terms to the sums `[u_step . (g_n + g), u_step . (f_ext,n + f_ext),
+    /// v . M v, NaN check]`, from its new `[u, v, a, g]`: the one expression of both passes.
+    #[inline(always)]
+    fn add_sums<const LOADED: bool>(
+        s: &mut [f64; 4],
+        [un, vn, an, g1]: [f64; 4],
+        u0: f64,
+        fi0: f64,
+        m: f64,
+        (fe0, fe1): (f64, f64),
+    ) {
+        let step_u = un - u0;
+        s[0] += step_u * (fi0 + g1);
+        if LOADED {
+            s[1] += step_u * (fe0 + fe1);
+        }
+        s[2] += m * vn * vn;
+        s[3] += zero_if_finite(un) + zero_if_finite(an) + zero_if_finite(vn) + zero_if_finite(g1);
     }
 }
 
@@ -1760,7 +1814,6 @@ impl FusedUpdate<'_> {
     /// Row `i` of the update from its correction `d`: the expressions of
     /// [`FusedUpdate::chunk`], the outputs written and the row's terms added to the sums `s`
     /// in the same order.
-    #[allow(clippy::eq_op)]
     #[inline(always)]
     fn row<const LOADED: bool>(
         &self,
@@ -1769,31 +1822,15 @@ impl FusedUpdate<'_> {
         [u1, v1, a1, f1]: &mut Chunks4Mut<'_>,
         s: &mut [f64; 4],
     ) {
-        let (u0, v0, a0) = (self.u0[i], self.v0[i], self.a0[i]);
-        let (fi0, m) = (self.fi0[i], self.m[i]);
-        let (h, bh, bh2, g) = (self.h, self.bh, self.bh2, self.g);
-        let (af, bf, am, bm) = (self.af, self.bf, self.am, self.bm);
-        let un = u0 + h * v0 + 0.5 * h * h * a0 + d;
-        let an = a0 + d / bh2;
-        let vn = v0 + h * a0 + (g * d) / bh;
-        u1[i] = un;
-        a1[i] = an;
-        v1[i] = vn;
-        let w = am * an + bm * a0;
+        let (u0, fi0, m) = (self.u0[i], self.fi0[i], self.m[i]);
         let fe = if LOADED {
-            af * self.fe1[i] + bf * self.fe0[i]
+            (self.fe0[i], self.fe1[i])
         } else {
-            0.0
+            (0.0, 0.0)
         };
-        let g1 = (fe - bf * fi0 - m * w) / af;
-        f1[i] = g1;
-        let step_u = un - u0;
-        s[0] += step_u * (fi0 + g1);
-        if LOADED {
-            s[1] += step_u * (self.fe0[i] + self.fe1[i]);
-        }
-        s[2] += m * vn * vn;
-        s[3] += zero_if_finite(un) + zero_if_finite(an) + zero_if_finite(vn) + zero_if_finite(g1);
+        let x = self.values::<LOADED>(d, u0, self.v0[i], self.a0[i], fi0, m, fe);
+        [u1[i], v1[i], a1[i], f1[i]] = x;
+        Self::add_sums::<LOADED>(s, x, u0, fi0, m, fe);
     }
 }
 
