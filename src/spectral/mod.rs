@@ -24,6 +24,7 @@ pub use metrics::{
     spectral_radius,
 };
 pub use prepared::Prepared;
+pub(crate) use roots::pairing_distance;
 pub use roots::{CONDITION_LIMIT, eigenvalues_fast};
 pub use scheme::{Parameters, Scheme, cd_amplification};
 pub use sweep::{log_space, newmark_stability_map, sweep};

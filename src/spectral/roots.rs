@@ -248,6 +248,33 @@ pub(crate) fn deflated_roots(c2: f64, c1: f64, c0: f64, r: f64) -> Option<[Compl
     ok.then_some([z1, z2, z3])
 }
 
+/// The largest distance between paired roots of `a` and `b`, minimised over the six pairings
+/// (NaN when a root is NaN): sorting alone pairs wrongly where roots are near ties (a real root
+/// and a complex pair sharing a real part to round-off, such as generalised-alpha's with
+/// `rho_inf = 0` at `Omega = 1`, `xi = 1`: `1/2` and `1/2 +/- i/(2 sqrt 3)`), and the result does
+/// not depend on how the ties were broken. Used to compare two sets of eigenvalues.
+pub(crate) fn pairing_distance(a: &[Complex<f64>; 3], b: &[Complex<f64>; 3]) -> f64 {
+    const PERMUTATIONS: [[usize; 3]; 6] = [
+        [0, 1, 2],
+        [0, 2, 1],
+        [1, 0, 2],
+        [1, 2, 0],
+        [2, 0, 1],
+        [2, 1, 0],
+    ];
+    let nan_max = |m: f64, d: f64| {
+        if m.is_nan() || d.is_nan() {
+            f64::NAN
+        } else {
+            m.max(d)
+        }
+    };
+    PERMUTATIONS
+        .iter()
+        .map(|p| (0..3).map(|i| (a[p[i]] - b[i]).norm()).fold(0.0, nan_max))
+        .fold(f64::INFINITY, |m, d| if d.is_nan() { d } else { m.min(d) })
+}
+
 /// The three eigenvalues of a 3x3 real matrix: the closed form of the characteristic cubic
 /// where it is trustworthy, [`eigenvalues3`] elsewhere (see the module documentation). Three
 /// NaN for a matrix with a non-finite entry.
@@ -290,25 +317,6 @@ mod tests {
         z
     }
 
-    /// The largest distance between paired roots, minimised over the six pairings: sorting
-    /// alone pairs wrongly where a real root and a complex pair share a real part to round-off
-    /// (generalised-alpha with `rho_inf = 0` at `Omega = 1`, `xi = 1`: roots `1/2` and
-    /// `1/2 +/- i/(2 sqrt 3)`).
-    fn best_pairing(a: &[Complex<f64>; 3], b: &[Complex<f64>; 3]) -> f64 {
-        const PERMUTATIONS: [[usize; 3]; 6] = [
-            [0, 1, 2],
-            [0, 2, 1],
-            [1, 0, 2],
-            [1, 2, 0],
-            [2, 0, 1],
-            [2, 1, 0],
-        ];
-        PERMUTATIONS
-            .iter()
-            .map(|q| (0..3).map(|i| (a[i] - b[q[i]]).norm()).fold(0.0, f64::max))
-            .fold(f64::INFINITY, f64::min)
-    }
-
     /// The closed form agrees with the balanced Schur form wherever it is used, to `3e-12` of
     /// `max(1, largest modulus)` (the gaps it demands bound the roots' condition; each path's
     /// own error against exact roots is checked in `tests/spectral_exact.rs`), on a grid of
@@ -330,7 +338,7 @@ mod tests {
                         used_usual += usize::from(usual);
                         let (f, r) = (sorted(z), sorted(eigenvalues3(&a)));
                         let scale = r.iter().map(|z| z.norm()).fold(1.0f64, f64::max);
-                        let e = best_pairing(&f, &r) / scale;
+                        let e = pairing_distance(&f, &r) / scale;
                         assert!(
                             e <= 3e-12,
                             "{} xi {xi} Omega {o:e}: {e:e}\n{f:?}\n{r:?}",

@@ -636,7 +636,7 @@ fn compare_set(scheme: &Scheme, rows: &[AmpRow]) -> SetComparison {
             c.cluster_rho = nan_max(c.cluster_rho, (rho - r.rho).abs() / r.rho.max(1.0));
         } else {
             c.separated_points += 1;
-            let d = best_pairing(&ours, &r.eig).max((rho - r.rho).abs()) / scale;
+            let d = spectral::pairing_distance(&ours, &r.eig).max((rho - r.rho).abs()) / scale;
             if d.is_nan() || d > c.separated {
                 c.worst = Some((r.line, r.omega, r.xi));
             }
@@ -663,24 +663,6 @@ fn clustered(e: &[Complex<f64>; 3]) -> bool {
         .min((e[0] - e[2]).norm())
         .min((e[1] - e[2]).norm());
     sep < CLUSTER * scale
-}
-
-/// The smallest, over the six pairings, of the largest distance between paired roots. Equals the
-/// comparison in the file's canonical order whenever that order is unambiguous, and does not
-/// depend on how near-ties in modulus were broken.
-fn best_pairing(a: &[Complex<f64>; 3], b: &[Complex<f64>; 3]) -> f64 {
-    const PERMUTATIONS: [[usize; 3]; 6] = [
-        [0, 1, 2],
-        [0, 2, 1],
-        [1, 0, 2],
-        [1, 2, 0],
-        [2, 0, 1],
-        [2, 1, 0],
-    ];
-    PERMUTATIONS
-        .iter()
-        .map(|p| (0..3).map(|i| (a[p[i]] - b[i]).norm()).fold(0.0, nan_max))
-        .fold(f64::INFINITY, |m, d| if d.is_nan() { d } else { m.min(d) })
 }
 
 /// `[c2, c1, c0]` of `(z - l1)(z - l2)(z - l3) = z^3 + c2 z^2 + c1 z + c0` (real parts).
