@@ -108,6 +108,25 @@ FOUND = [
 ]
 
 
+def mul(u, v):
+    """Product of two polynomials given as coefficient lists, highest degree first."""
+    out = [mp.mpf(0)] * (len(u) + len(v) - 1)
+    for i, ui in enumerate(u):
+        for j, vj in enumerate(v):
+            out[i + j] += ui * vj
+    return out
+
+
+def add(*ps):
+    """Sum of polynomials given as coefficient lists, highest degree first."""
+    width = max(len(q) for q in ps)
+    out = [mp.mpf(0)] * width
+    for q in ps:
+        for i, qi in enumerate(q):
+            out[width - len(q) + i] += qi
+    return out
+
+
 def coefficients(scheme, omega, xi):
     """Monic coefficients [c2, c1, c0] of det(z I - A) in mpmath."""
     kind, am, af, b, g = scheme
@@ -119,27 +138,11 @@ def coefficients(scheme, omega, xi):
         return [o**2 + mp.mpf(3) / 2 * z - 2, 1 - 2 * z, z / 2]
     am, af, b, g = (mp.mpf(v) for v in (am, af, b, g))
     half = mp.mpf(1) / 2
-    # P(z) = M (z - 1)^2 + Z E G (z - 1) + Omega^2 E N as coefficient lists, highest first.
+    # P(z) = M (z - 1)^2 + Z E G (z - 1) + Omega^2 E N.
     m = [1 - am, am]
     e = [1 - af, af]
     gg = [g, 1 - g]
     n = [b, g + half - 2 * b, half - g + b]
-
-    def mul(u, v):
-        out = [mp.mpf(0)] * (len(u) + len(v) - 1)
-        for i, ui in enumerate(u):
-            for j, vj in enumerate(v):
-                out[i + j] += ui * vj
-        return out
-
-    def add(*ps):
-        width = max(len(q) for q in ps)
-        out = [mp.mpf(0)] * width
-        for q in ps:
-            for i, qi in enumerate(q):
-                out[width - len(q) + i] += qi
-        return out
-
     zm1 = [mp.mpf(1), mp.mpf(-1)]
     poly = add(mul(m, mul(zm1, zm1)), [z * c for c in mul(e, mul(gg, zm1))],
                [o**2 * c for c in mul(e, n)])
@@ -168,10 +171,9 @@ def roots(scheme, omega, xi):
 def cluster_omegas(scheme, xi):
     """The Omega in [1e-4, 1e6] where the discriminant changes sign (to 40 digits)."""
     grid = [10.0 ** (-4.0 + 10.0 * i / 400) for i in range(401)]
+    disc = [discriminant(coefficients(scheme, o, xi)) for o in grid]
     out = []
-    for lo, hi in zip(grid, grid[1:]):
-        dlo = discriminant(coefficients(scheme, lo, xi))
-        dhi = discriminant(coefficients(scheme, hi, xi))
+    for lo, hi, dlo, dhi in zip(grid, grid[1:], disc, disc[1:]):
         if dlo == 0 or dhi == 0 or (dlo > 0) == (dhi > 0):
             continue
         a, b = mp.mpf(lo), mp.mpf(hi)
