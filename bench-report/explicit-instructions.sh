@@ -11,7 +11,7 @@
 set -eu
 cd "$(dirname "$0")"
 cargo build --release --quiet
-bin=target/release/tempora-bench-report
+bin=target/release/stepgauge-bench-report
 s1=${S1:-20}
 s2=${S2:-120}
 sizes=${*:-1000 100000}

@@ -20,11 +20,11 @@ mod common;
 
 use common::{chain, cube};
 use criterion::{BenchmarkId, Criterion, Throughput, criterion_group, criterion_main};
-use tempora::State;
-use tempora::explicit::{
+use stepgauge::State;
+use stepgauge::explicit::{
     CentralDifference, CentralDifferenceOptions, StableLimit, omega_max_gershgorin,
 };
-use tempora::model::{LinearModel, Model};
+use stepgauge::model::{LinearModel, Model};
 
 fn bench_model(c: &mut Criterion, name: &str, sizes: &[usize], build: fn(usize) -> LinearModel) {
     let mut group = c.benchmark_group(format!("explicit_step/{name}"));

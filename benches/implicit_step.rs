@@ -4,11 +4,11 @@
 
 use criterion::{BenchmarkId, Criterion, Throughput, criterion_group, criterion_main};
 use sprs::{CsMat, TriMat};
-use tempora::State;
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::SparseCholesky;
-use tempora::model::LinearModel;
-use tempora::params::AlphaParams;
+use stepgauge::State;
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::SparseCholesky;
+use stepgauge::model::LinearModel;
+use stepgauge::params::AlphaParams;
 
 fn unit_mass(n: usize) -> CsMat<f64> {
     let mut m = TriMat::new((n, n));
@@ -55,7 +55,7 @@ fn bench(c: &mut Criterion, group: &str, models: Vec<LinearModel>) {
     let mut g = c.benchmark_group(group);
     g.sample_size(10);
     for mut model in models {
-        let n = tempora::model::Model::dofs(&model);
+        let n = stepgauge::model::Model::dofs(&model);
         let u0: Vec<f64> = (0..n).map(|i| (i as f64 * 1e-3).sin()).collect();
         let mut state = State::new(0.0, u0, vec![0.0; n]).unwrap();
         let mut it = AlphaIntegrator::new(

@@ -6,11 +6,11 @@
 use std::time::{Duration, Instant};
 
 use criterion::{BenchmarkId, Criterion, criterion_group, criterion_main};
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::{CsrMatrix, SparseCholesky};
-use tempora::model::Model;
-use tempora::params::AlphaParams;
-use tempora::{ModelError, State};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::{CsrMatrix, SparseCholesky};
+use stepgauge::model::Model;
+use stepgauge::params::AlphaParams;
+use stepgauge::{ModelError, State};
 
 /// The cubic-spring chain, with its tangent.
 struct CubicChain {

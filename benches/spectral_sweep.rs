@@ -4,9 +4,9 @@
 //! with `cargo bench --bench spectral_sweep`.
 
 use criterion::{BenchmarkId, Criterion, Throughput, criterion_group, criterion_main};
-use tempora::explicit::ForceVelocity;
-use tempora::params::AlphaParams;
-use tempora::spectral::{Scheme, eigenvalues3, log_space, spectral_radius, sweep};
+use stepgauge::explicit::ForceVelocity;
+use stepgauge::params::AlphaParams;
+use stepgauge::spectral::{Scheme, eigenvalues3, log_space, spectral_radius, sweep};
 
 fn spectral_sweep(c: &mut Criterion) {
     let omegas = log_space(1e-2, 1e2, 10_000);

@@ -19,12 +19,12 @@ use std::time::Duration;
 
 use common::{chain, cube};
 use criterion::{BenchmarkId, Criterion, Throughput, criterion_group, criterion_main};
-use tempora::State;
-use tempora::explicit::{
+use stepgauge::State;
+use stepgauge::explicit::{
     EigenOptions, StableStepOptions, omega_max_gershgorin, omega_max_lanczos, stable_step,
 };
-use tempora::linalg::Parallelism;
-use tempora::model::{LinearModel, Model};
+use stepgauge::linalg::Parallelism;
+use stepgauge::model::{LinearModel, Model};
 
 fn gershgorin(c: &mut Criterion) {
     let mut group = c.benchmark_group("stable_step/gershgorin");

@@ -9,10 +9,10 @@
 //!
 //! Run with `cargo run --release --example bar_wave`.
 
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, element_stable_step};
-use tempora::model::{Constraints, Model, TimeFunction};
-use tempora::run::{Flow, RecordOptions, RunOptions, StepControl, StopReason, run};
-use tempora::{ModelError, State};
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, element_stable_step};
+use stepgauge::model::{Constraints, Model, TimeFunction};
+use stepgauge::run::{Flow, RecordOptions, RunOptions, StepControl, StopReason, run};
+use stepgauge::{ModelError, State};
 
 /// A straight bar of two-node elements along x, one DOF (axial displacement) per node.
 struct Rod {
@@ -89,7 +89,7 @@ impl Model for Rod {
     }
 }
 
-fn main() -> Result<(), tempora::Error> {
+fn main() -> Result<(), stepgauge::Error> {
     let (length, elements, modulus, density) = (1.5, 300, 210e9, 7850.0);
     let area = std::f64::consts::PI * 0.01f64.powi(2);
     let v0 = 4.0;

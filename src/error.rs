@@ -8,7 +8,7 @@ use std::path::PathBuf;
 
 use crate::state::State;
 
-/// Convenient alias: `Result<T, tempora::Error>`.
+/// Convenient alias: `Result<T, stepgauge::Error>`.
 pub type Result<T> = std::result::Result<T, Error>;
 
 /// An error raised by a user's [`Model`](crate::model::Model) implementation.
@@ -43,7 +43,7 @@ impl ModelError {
     }
 }
 
-/// Everything that can go wrong in tempora.
+/// Everything that can go wrong in stepgauge.
 #[derive(Debug, thiserror::Error)]
 #[non_exhaustive]
 pub enum Error {
@@ -346,7 +346,7 @@ pub enum Error {
         path.display()
     )]
     Io {
-        /// What was being done ("read", "create a temporary file beside", ...).
+        /// What was being done ("read", "create a scratch file beside", ...).
         action: &'static str,
         /// The file concerned.
         path: PathBuf,
@@ -369,10 +369,10 @@ pub enum Error {
         /// What is wrong and what was expected.
         problem: String,
     },
-    /// A Matrix Market file of a kind tempora does not read: `array` format, `complex`, `pattern`,
+    /// A Matrix Market file of a kind stepgauge does not read: `array` format, `complex`, `pattern`,
     /// `hermitian` or `skew-symmetric` matrices, or an object other than `matrix`.
     #[error(
-        "{file}:1: Matrix Market `{qualifier}` files are not supported; tempora reads `matrix \
+        "{file}:1: Matrix Market `{qualifier}` files are not supported; stepgauge reads `matrix \
          coordinate` files with `real` or `integer` values and `general` or `symmetric` \
          symmetry: convert the matrix to one of those (for example expand it to a general real \
          coordinate matrix)"
@@ -395,7 +395,7 @@ pub enum Error {
         /// What is wrong and what was expected.
         problem: String,
     },
-    /// A checkpoint file that is damaged, truncated or not a tempora checkpoint at all; nothing
+    /// A checkpoint file that is damaged, truncated or not a stepgauge checkpoint at all; nothing
     /// of it was used.
     #[error(
         "checkpoint `{}` is corrupt or incomplete: {reason}; nothing was read from it. Resume \
@@ -410,8 +410,8 @@ pub enum Error {
     },
     /// An intact checkpoint written in a format version this build does not read.
     #[error(
-        "checkpoint `{}` has format version {found}, but this build of tempora reads version \
-         {supported}; resume it with the tempora version that wrote it",
+        "checkpoint `{}` has format version {found}, but this build of stepgauge reads version \
+         {supported}; resume it with the stepgauge version that wrote it",
         path.display()
     )]
     CheckpointVersion {

@@ -1,6 +1,6 @@
-//! # tempora
+//! # stepgauge
 //!
-//! Time integration for structural dynamics. tempora advances
+//! Time integration for structural dynamics. stepgauge advances
 //!
 //! ```text
 //! M a + C v + f_int(t, u, v) = f_ext(t),      u(t0) = u0,  v(t0) = v0
@@ -25,12 +25,12 @@
 //! A unit oscillator released from `u = 1`, stepped at 0.9 times its estimated stable step:
 //!
 //! ```
-//! use tempora::explicit::{CentralDifference, CentralDifferenceOptions};
-//! use tempora::model::LinearModel;
-//! use tempora::run::{Flow, RunOptions, StepControl, run};
-//! use tempora::State;
+//! use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
+//! use stepgauge::model::LinearModel;
+//! use stepgauge::run::{Flow, RunOptions, StepControl, run};
+//! use stepgauge::State;
 //!
-//! # fn main() -> tempora::Result<()> {
+//! # fn main() -> stepgauge::Result<()> {
 //! let eye = sprs::CsMat::<f64>::eye(1);
 //! let mut model = LinearModel::new(&eye, &eye)?; // m = 1, k = 1
 //! let mut state = State::new(0.0, vec![1.0], vec![0.0])?;

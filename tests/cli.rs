@@ -1,12 +1,12 @@
-//! The `tempora` binary's `check` and `spectrum` subcommands and the demonstration, run as a user
+//! The `stepgauge` binary's `check` and `spectrum` subcommands and the demonstration, run as a user
 //! runs them: arguments in, standard output, standard error and exit status out.
 
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use serde_json::Value;
-use tempora::params::AlphaParams;
-use tempora::spectral::{Scheme, metrics};
+use stepgauge::params::AlphaParams;
+use stepgauge::spectral::{Scheme, metrics};
 
 struct Run {
     code: i32,
@@ -14,11 +14,11 @@ struct Run {
     stderr: String,
 }
 
-fn tempora(args: &[&str]) -> Run {
-    let out = Command::new(env!("CARGO_BIN_EXE_tempora"))
+fn stepgauge(args: &[&str]) -> Run {
+    let out = Command::new(env!("CARGO_BIN_EXE_stepgauge"))
         .args(args)
         .output()
-        .expect("the tempora binary runs");
+        .expect("the stepgauge binary runs");
     Run {
         code: out
             .status
@@ -30,7 +30,7 @@ fn tempora(args: &[&str]) -> Run {
 }
 
 fn json(args: &[&str]) -> (Value, i32) {
-    let r = tempora(args);
+    let r = stepgauge(args);
     assert!(
         r.stderr.is_empty(),
         "{args:?}: unexpected standard error: {}",
@@ -170,7 +170,7 @@ fn check_exit_3_when_the_step_exceeds_the_limit() {
         "--max-frequency",
         "1000",
     ];
-    let r = tempora(&[&base[..], &["--dt", "0.01"]].concat());
+    let r = stepgauge(&[&base[..], &["--dt", "0.01"]].concat());
     assert_eq!(r.code, 3, "{}{}", r.stdout, r.stderr);
     assert!(
         r.stdout.contains("EXCEEDS the stable limit"),
@@ -186,13 +186,13 @@ fn check_exit_3_when_the_step_exceeds_the_limit() {
     assert_eq!(code, 0);
     assert_eq!(v["step_stable"], true);
     // Conditionally stable without a step: 0.
-    assert_eq!(tempora(&base).code, 0);
+    assert_eq!(stepgauge(&base).code, 0);
 }
 
 /// gamma < 1/2 is unstable for every step: exit 4.
 #[test]
 fn check_exit_4_when_unstable() {
-    let r = tempora(&["check", "--gamma", "0.4"]);
+    let r = stepgauge(&["check", "--gamma", "0.4"]);
     assert_eq!(r.code, 4, "{}{}", r.stdout, r.stderr);
     assert!(r.stdout.contains("UNSTABLE"));
     let (v, code) = json(&["check", "--gamma", "0.4", "--json"]);
@@ -272,12 +272,16 @@ fn bad_arguments_exit_2_with_one_line() {
         (&["frobnicate"], &["unrecognized subcommand 'frobnicate'"]),
     ];
     for (args, needles) in cases {
-        let r = tempora(args);
+        let r = stepgauge(args);
         assert_eq!(r.code, 2, "{args:?}: {}{}", r.stdout, r.stderr);
         assert!(!r.stderr.contains("panicked"), "{args:?}: {}", r.stderr);
         assert!(!r.stderr.contains("backtrace"), "{args:?}: {}", r.stderr);
         assert_eq!(r.stderr.lines().count(), 1, "{args:?}: {}", r.stderr);
-        assert!(r.stderr.starts_with("tempora: "), "{args:?}: {}", r.stderr);
+        assert!(
+            r.stderr.starts_with("stepgauge: "),
+            "{args:?}: {}",
+            r.stderr
+        );
         for n in *needles {
             assert!(r.stderr.contains(n), "{args:?}: `{n}` not in {}", r.stderr);
         }
@@ -404,7 +408,7 @@ fn spectrum_omega_list_and_real_roots() {
     assert!(real["period_error"].is_null());
     assert!(real["damping_ratio"].is_null());
     // The text table shows '-' there.
-    let r = tempora(&[
+    let r = stepgauge(&[
         "spectrum",
         "--scheme",
         "central-difference",
@@ -429,11 +433,11 @@ fn spectrum_csv_round_trips() {
         ),
         (
             vec!["--scheme", "central-difference", "--xi", "0.05"],
-            Scheme::CentralDifference(tempora::explicit::ForceVelocity::Lagged),
+            Scheme::CentralDifference(stepgauge::explicit::ForceVelocity::Lagged),
         ),
     ] {
         let xi = if args.contains(&"--xi") { 0.05 } else { 0.0 };
-        let r = tempora(&[&["spectrum"][..], &args, &["--omega", &list, "--csv"]].concat());
+        let r = stepgauge(&[&["spectrum"][..], &args, &["--omega", &list, "--csv"]].concat());
         assert_eq!(r.code, 0, "{}", r.stderr);
         let mut lines = r.stdout.lines();
         assert_eq!(
@@ -497,7 +501,7 @@ fn spectrum_standard_sets() {
     let list = v.as_array().unwrap();
     assert_eq!(list.len(), 7);
     assert_eq!(list[0]["label"], "wbz alpha_m = -0.2");
-    let r = tempora(&["spectrum", "--standard-sets", "--points", "3", "--csv"]);
+    let r = stepgauge(&["spectrum", "--standard-sets", "--points", "3", "--csv"]);
     assert_eq!(r.code, 0);
     let lines: Vec<&str> = r.stdout.lines().collect();
     assert_eq!(
@@ -511,7 +515,7 @@ fn spectrum_standard_sets() {
 /// `check --csv`: one header row and one data row with as many fields.
 #[test]
 fn check_csv_one_row() {
-    let r = tempora(&[
+    let r = stepgauge(&[
         "check",
         "--scheme",
         "central-difference",
@@ -553,7 +557,7 @@ fn check_csv_one_row() {
 /// The text verdict has every section, reasons as a list.
 #[test]
 fn check_text_output() {
-    let r = tempora(&[
+    let r = stepgauge(&[
         "check",
         "--scheme",
         "generalized-alpha",
@@ -605,12 +609,12 @@ fn assert_svg(path: &Path) {
 }
 
 /// `--plot` writes an SVG with the axis labels and no web address other than the SVG
-/// namespace, and leaves no temporary file behind.
+/// namespace, and leaves no scratch file behind.
 #[test]
 fn plots_are_svg() {
     let dir = scratch("plots");
     let one = dir.join("hht.svg");
-    let r = tempora(&[
+    let r = stepgauge(&[
         "spectrum",
         "--scheme",
         "hht",
@@ -622,7 +626,7 @@ fn plots_are_svg() {
     assert_eq!(r.code, 0, "{}", r.stderr);
     assert_svg(&one);
     let all = dir.join("all.svg");
-    let r = tempora(&[
+    let r = stepgauge(&[
         "spectrum",
         "--standard-sets",
         "--omega-max",
@@ -639,7 +643,7 @@ fn plots_are_svg() {
     // Standard output is unaffected by --plot.
     assert!(serde_json::from_str::<Value>(&r.stdout).is_ok());
     let checked = dir.join("check.svg");
-    let r = tempora(&[
+    let r = stepgauge(&[
         "check",
         "--scheme",
         "central-difference",
@@ -648,8 +652,8 @@ fn plots_are_svg() {
     ]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     assert_svg(&checked);
-    // Overwriting keeps a complete file; no temporary files remain.
-    let r = tempora(&[
+    // Overwriting keeps a complete file; no scratch files remain.
+    let r = stepgauge(&[
         "spectrum",
         "--scheme",
         "wbz",
@@ -677,7 +681,7 @@ fn plots_are_svg() {
 fn unwritable_plot_exits_1() {
     let dir = scratch("unwritable");
     let path = dir.join("no-such-dir").join("x.svg");
-    let r = tempora(&["spectrum", "--plot", path.to_str().unwrap()]);
+    let r = stepgauge(&["spectrum", "--plot", path.to_str().unwrap()]);
     assert_eq!(r.code, 1);
     assert_eq!(r.stderr.lines().count(), 1);
     assert!(r.stderr.contains("cannot write the plot"), "{}", r.stderr);
@@ -687,7 +691,7 @@ fn unwritable_plot_exits_1() {
 /// The help reads like a manual: exit statuses at the top, examples in each subcommand.
 #[test]
 fn help_documents_exit_statuses_and_examples() {
-    let r = tempora(&["--help"]);
+    let r = stepgauge(&["--help"]);
     assert_eq!(r.code, 0);
     for k in [
         "Exit status",
@@ -702,11 +706,11 @@ fn help_documents_exit_statuses_and_examples() {
         );
     }
     for sub in ["check", "spectrum"] {
-        let r = tempora(&[sub, "--help"]);
+        let r = stepgauge(&[sub, "--help"]);
         assert_eq!(r.code, 0);
         assert!(r.stdout.contains("Examples:"), "{sub}");
         assert!(
-            r.stdout.contains(&format!("tempora {sub} --scheme")),
+            r.stdout.contains(&format!("stepgauge {sub} --scheme")),
             "{sub}"
         );
         assert!(r.stdout.contains("--standard-sets") || sub == "check");
@@ -714,12 +718,12 @@ fn help_documents_exit_statuses_and_examples() {
     }
 }
 
-/// `tempora demo` runs the demonstration, and it passes (no arguments now writes the report:
+/// `stepgauge demo` runs the demonstration, and it passes (no arguments now writes the report:
 /// tests/cli_report.rs).
 #[test]
 fn demo_runs_the_demonstration() {
-    let r = tempora(&["demo"]);
+    let r = stepgauge(&["demo"]);
     assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
-    assert!(r.stdout.starts_with("tempora demonstration"));
+    assert!(r.stdout.starts_with("stepgauge demonstration"));
     assert!(r.stdout.contains("all demonstration checks passed"));
 }

@@ -1,4 +1,4 @@
-//! `tempora report` (also `tempora` with no arguments) and `tempora compare`, run as a user runs
+//! `stepgauge report` (also `stepgauge` with no arguments) and `stepgauge compare`, run as a user runs
 //! them: arguments in, files, standard output, standard error and exit status out.
 
 use std::path::{Path, PathBuf};
@@ -12,13 +12,13 @@ struct Run {
     stderr: String,
 }
 
-fn tempora_in(dir: Option<&Path>, args: &[&str]) -> Run {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_tempora"));
+fn stepgauge_in(dir: Option<&Path>, args: &[&str]) -> Run {
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_stepgauge"));
     cmd.args(args);
     if let Some(d) = dir {
         cmd.current_dir(d);
     }
-    let out = cmd.output().expect("the tempora binary runs");
+    let out = cmd.output().expect("the stepgauge binary runs");
     Run {
         code: out
             .status
@@ -29,8 +29,8 @@ fn tempora_in(dir: Option<&Path>, args: &[&str]) -> Run {
     }
 }
 
-fn tempora(args: &[&str]) -> Run {
-    tempora_in(None, args)
+fn stepgauge(args: &[&str]) -> Run {
+    stepgauge_in(None, args)
 }
 
 /// A fresh, empty scratch folder under the target directory.
@@ -44,7 +44,7 @@ fn scratch(name: &str) -> PathBuf {
 /// The report is self-contained: every section, inline SVG figures, no external resources.
 fn assert_report(html: &str) {
     for heading in [
-        "<h1>tempora report</h1>",
+        "<h1>stepgauge report</h1>",
         "id=\"checks\"",
         "Stability and accuracy of the standard parameter sets",
         "Spectra of the standard parameter sets",
@@ -72,12 +72,12 @@ fn assert_report(html: &str) {
     assert!(!html.contains("FAILED"), "a failed check in the report");
 }
 
-/// `tempora report --output DIR` writes DIR/report.html, prints its path, exits 0.
+/// `stepgauge report --output DIR` writes DIR/report.html, prints its path, exits 0.
 #[test]
 fn report_writes_a_self_contained_page() {
     let dir = scratch("report");
     let out = dir.join("out");
-    let r = tempora(&["report", "--output", out.to_str().unwrap()]);
+    let r = stepgauge(&["report", "--output", out.to_str().unwrap()]);
     assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
     let path = out.join("report.html");
     assert!(r.stdout.contains(path.to_str().unwrap()), "{}", r.stdout);
@@ -85,26 +85,26 @@ fn report_writes_a_self_contained_page() {
     assert_report(&std::fs::read_to_string(&path).unwrap());
 }
 
-/// `tempora` with no arguments writes tempora-report/report.html in the current folder.
+/// `stepgauge` with no arguments writes stepgauge-report/report.html in the current folder.
 #[test]
 fn no_arguments_writes_the_report_in_the_current_folder() {
     let dir = scratch("default");
-    let r = tempora_in(Some(&dir), &[]);
+    let r = stepgauge_in(Some(&dir), &[]);
     assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
     assert!(r.stderr.is_empty(), "{}", r.stderr);
     assert!(
-        r.stdout.contains("tempora-report/report.html"),
+        r.stdout.contains("stepgauge-report/report.html"),
         "{}",
         r.stdout
     );
-    let html = std::fs::read_to_string(dir.join("tempora-report").join("report.html")).unwrap();
+    let html = std::fs::read_to_string(dir.join("stepgauge-report").join("report.html")).unwrap();
     assert_report(&html);
 }
 
 fn compare_json(args: &[&str]) -> Value {
     let mut all = vec!["compare", "--json"];
     all.extend_from_slice(args);
-    let r = tempora(&all);
+    let r = stepgauge(&all);
     assert_eq!(r.code, 0, "{all:?}: {}", r.stderr);
     assert!(r.stderr.is_empty(), "{all:?}: {}", r.stderr);
     serde_json::from_str(&r.stdout).unwrap_or_else(|e| panic!("not JSON ({e}): {}", r.stdout))
@@ -174,11 +174,11 @@ fn compare_central_difference_on_the_free_undamped_oscillator() {
 /// Text and CSV: one line per run, with a header.
 #[test]
 fn compare_text_and_csv() {
-    let r = tempora(&["compare", "--problem", "two-dof-step"]);
+    let r = stepgauge(&["compare", "--problem", "two-dof-step"]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     assert!(r.stdout.starts_with("problem"));
     assert_eq!(r.stdout.lines().count(), 6);
-    let r = tempora(&[
+    let r = stepgauge(&[
         "compare",
         "--csv",
         "--standard-sets",
@@ -196,7 +196,7 @@ fn compare_text_and_csv() {
 fn compare_plot_writes_svg_files() {
     let dir = scratch("plot");
     let figs = dir.join("figs");
-    let r = tempora(&[
+    let r = stepgauge(&[
         "compare",
         "--standard-sets",
         "--problem",
@@ -208,7 +208,7 @@ fn compare_plot_writes_svg_files() {
     ]);
     // sdof-free-damped is not a name: the damped free problem is underdamped.
     assert_eq!(r.code, 2);
-    let r = tempora(&[
+    let r = stepgauge(&[
         "compare",
         "--standard-sets",
         "--problem",
@@ -248,12 +248,16 @@ fn compare_bad_arguments_exit_2_with_one_line() {
         &["compare", "--scheme", "hht"],
         &["report", "--no-such-option"],
     ] {
-        let r = tempora(args);
+        let r = stepgauge(args);
         assert_eq!(r.code, 2, "{args:?}: {}{}", r.stdout, r.stderr);
         assert_eq!(r.stderr.lines().count(), 1, "{args:?}: {}", r.stderr);
-        assert!(r.stderr.starts_with("tempora: "), "{args:?}: {}", r.stderr);
+        assert!(
+            r.stderr.starts_with("stepgauge: "),
+            "{args:?}: {}",
+            r.stderr
+        );
         assert!(r.stdout.is_empty(), "{args:?}: {}", r.stdout);
     }
-    let r = tempora(&["compare", "--problem", "no-such-problem"]);
+    let r = stepgauge(&["compare", "--problem", "no-such-problem"]);
     assert!(r.stderr.contains("sdof-free-undamped"), "{}", r.stderr);
 }

@@ -11,7 +11,7 @@ struct Scratch(PathBuf);
 impl Scratch {
     fn new(name: &str) -> Self {
         let dir = std::env::temp_dir().join(format!(
-            "tempora-cli-run-{name}-{}-{:?}",
+            "stepgauge-cli-run-{name}-{}-{:?}",
             std::process::id(),
             std::time::SystemTime::now()
                 .duration_since(std::time::UNIX_EPOCH)
@@ -45,11 +45,11 @@ struct Out {
     stderr: String,
 }
 
-fn tempora(args: &[&str]) -> Out {
-    let out = Command::new(env!("CARGO_BIN_EXE_tempora"))
+fn stepgauge(args: &[&str]) -> Out {
+    let out = Command::new(env!("CARGO_BIN_EXE_stepgauge"))
         .args(args)
         .output()
-        .expect("run tempora");
+        .expect("run stepgauge");
     Out {
         code: out.status.code().expect("exit code"),
         stdout: String::from_utf8(out.stdout).expect("utf-8 stdout"),
@@ -59,7 +59,7 @@ fn tempora(args: &[&str]) -> Out {
 
 /// Asserts a usage failure: exit 2, one line on stderr containing every `needle`, no panic.
 fn assert_usage(args: &[&str], needles: &[&str]) {
-    let r = tempora(args);
+    let r = stepgauge(args);
     assert_eq!(r.code, 2, "{args:?}: stderr {}", r.stderr);
     assert!(!r.stderr.contains("panicked"), "{}", r.stderr);
     assert_eq!(r.stderr.trim_end().lines().count(), 1, "{}", r.stderr);
@@ -109,7 +109,7 @@ fn exact(t: f64) -> [f64; 2] {
 fn two_dof_error(s: &Scratch, dt: &str) -> (f64, f64) {
     let (m, k, load) = two_dof(s);
     let out = s.path(&format!("u-{dt}.csv"));
-    let r = tempora(&[
+    let r = stepgauge(&[
         "run",
         "--mass",
         &m,
@@ -180,7 +180,7 @@ fn timestep_json_matches_closed_form_chain_frequencies() {
     let s = Scratch::new("chain");
     let (n, k) = (50usize, 100.0f64);
     let (m, kk) = chain(&s, n, k);
-    let r = tempora(&[
+    let r = stepgauge(&[
         "timestep",
         "--mass",
         &m,
@@ -212,7 +212,7 @@ fn timestep_json_matches_closed_form_chain_frequencies() {
     );
     assert!(v["dt_accuracy"].as_f64().unwrap() > 0.0);
     // Without --frequency-of-interest the accuracy step is null.
-    let r = tempora(&["timestep", "--mass", &m, "--stiffness", &kk, "--json"]);
+    let r = stepgauge(&["timestep", "--mass", &m, "--stiffness", &kk, "--json"]);
     let v: Value = serde_json::from_str(&r.stdout).expect("JSON");
     assert!(v["dt_accuracy"].is_null());
 }
@@ -225,7 +225,7 @@ fn timestep_free_free_model_reports_zero_lowest_frequency_with_note() {
         "K.mtx",
         "%%MatrixMarket matrix coordinate real symmetric\n2 2 3\n1 1 1\n2 1 -1\n2 2 1\n",
     );
-    let r = tempora(&["timestep", "--mass", &m, "--stiffness", &k, "--json"]);
+    let r = stepgauge(&["timestep", "--mass", &m, "--stiffness", &k, "--json"]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     let v: Value = serde_json::from_str(&r.stdout).expect("JSON");
     assert_eq!(v["omega_min"].as_f64(), Some(0.0));
@@ -263,7 +263,7 @@ fn resume_is_bit_identical(scheme: &[&str], dt: &str, extra: &[&str]) {
     );
     let go = |more: &[&str]| {
         let args: Vec<&str> = base.iter().copied().chain(more.iter().copied()).collect();
-        let r = tempora(&args);
+        let r = stepgauge(&args);
         assert_eq!(r.code, 0, "{args:?}: {}", r.stderr);
     };
     go(&[
@@ -339,7 +339,7 @@ fn resume_with_another_step_or_a_truncated_checkpoint_is_refused() {
             .map(|x| x.to_string())
             .collect::<Vec<_>>()
     };
-    let r = tempora(
+    let r = stepgauge(
         &with(&["--dt", "0.02", "--t-end", "1", "--checkpoint", &ck])
             .iter()
             .map(String::as_str)
@@ -366,7 +366,7 @@ fn dt_auto_runs_central_difference_and_is_refused_for_implicit() {
     let (m, k, load) = two_dof(&s);
     let out = s.path("o.csv");
     let energy = s.path("e.csv");
-    let r = tempora(&[
+    let r = stepgauge(&[
         "run",
         "--mass",
         &m,
@@ -524,7 +524,7 @@ fn a_run_that_goes_unstable_writes_what_it_has_and_exits_1() {
         "%%MatrixMarket matrix coordinate real symmetric\n2 2 2\n1 1 20\n2 2 10\n",
     );
     let (out, ck) = (s.path("f.csv"), s.path("f.ckpt"));
-    let r = tempora(&[
+    let r = stepgauge(&[
         "run",
         "--mass",
         &m,
@@ -562,7 +562,7 @@ fn timestep_large_chain_uses_inverse_iteration_for_omega_min() {
     let s = Scratch::new("bigchain");
     let (n, k) = (400usize, 100.0f64);
     let (m, kk) = chain(&s, n, k);
-    let r = tempora(&["timestep", "--mass", &m, "--stiffness", &kk, "--json"]);
+    let r = stepgauge(&["timestep", "--mass", &m, "--stiffness", &kk, "--json"]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     let v: Value = serde_json::from_str(&r.stdout).expect("JSON");
     assert!(

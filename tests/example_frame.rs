@@ -8,9 +8,9 @@ mod model;
 use model::{
     FrameLayout, Section, assemble, base_excited, cantilever, mat_vec, modes, peak, simulate,
 };
-use tempora::linalg::{CsrMatrix, LinearSolver, SparseCholesky};
-use tempora::model::{Damping, Model, TimeFunction};
-use tempora::params::AlphaParams;
+use stepgauge::linalg::{CsrMatrix, LinearSolver, SparseCholesky};
+use stepgauge::model::{Damping, Model, TimeFunction};
+use stepgauge::params::AlphaParams;
 
 fn column() -> Section {
     FrameLayout::example(2).column
@@ -109,7 +109,7 @@ fn coarse_frame() -> (model::Assembled, usize, Damping) {
     (asm, roof_dof, damping)
 }
 
-/// `K u = f` by tempora's sparse Cholesky.
+/// `K u = f` by stepgauge's sparse Cholesky.
 fn static_solve(asm: &model::Assembled, f: &[f64]) -> Vec<f64> {
     let k = CsrMatrix::from_sprs("K", &asm.k).unwrap();
     let mut solver = SparseCholesky::new();
@@ -174,7 +174,7 @@ fn constant_base_acceleration_ends_at_the_static_solution() {
 
 /// (c) HHT-alpha (alpha = -0.1) and average acceleration agree on the coarse frame's response to
 /// the example's record: at Omega = omega_1 dt = 0.13 HHT's algorithmic damping is small
-/// (Hilber, Hughes & Taylor 1977: it grows as Omega^3 at small Omega; `tempora spectrum --scheme
+/// (Hilber, Hughes & Taylor 1977: it grows as Omega^3 at small Omega; `stepgauge spectrum --scheme
 /// hht --alpha -0.1` gives 2.4e-5 at Omega = 0.134 and 3.0e-6 at 0.067), so the peak
 /// roof displacements agree within 1 % and the histories within 2 % of the peak. Both schemes are
 /// second order, so their difference must fall by about four when the step is halved (between

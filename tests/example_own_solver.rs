@@ -14,12 +14,12 @@ use std::alloc::{GlobalAlloc, Layout, System};
 use std::cell::Cell;
 
 use sprs::TriMat;
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::{CsrMatrix, LinearSolver, SparseCholesky};
-use tempora::model::LinearModel;
-use tempora::params::AlphaParams;
-use tempora::run::{Flow, RecordOptions, RunOptions, StepControl, run};
-use tempora::{Error, State};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::{CsrMatrix, LinearSolver, SparseCholesky};
+use stepgauge::model::LinearModel;
+use stepgauge::params::AlphaParams;
+use stepgauge::run::{Flow, RecordOptions, RunOptions, StepControl, run};
+use stepgauge::{Error, State};
 
 use model::Strip;
 use solver::{BandedCholesky, CG_NAME, JacobiCg, NAME};

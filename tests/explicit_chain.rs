@@ -3,10 +3,10 @@
 
 mod common;
 
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
-use tempora::model::{Constraints, LinearModel, Model, TimeFunction};
-use tempora::run::{Flow, RecordOptions, RunOptions, StepControl, StopReason, run};
-use tempora::{ModelError, State};
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
+use stepgauge::model::{Constraints, LinearModel, Model, TimeFunction};
+use stepgauge::run::{Flow, RecordOptions, RunOptions, StepControl, StopReason, run};
+use stepgauge::{ModelError, State};
 
 /// A uniform bar of `ne` two-node elements (length `len`, modulus `e`, density `rho`, unit area)
 /// with row-sum lumped mass and free ends.

@@ -3,9 +3,9 @@
 
 mod common;
 
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
-use tempora::model::{Constraints, LinearModel, Model};
-use tempora::{Error, ModelError, State};
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
+use stepgauge::model::{Constraints, LinearModel, Model};
+use stepgauge::{Error, ModelError, State};
 
 fn opts(limit: StableLimit) -> CentralDifferenceOptions {
     CentralDifferenceOptions {

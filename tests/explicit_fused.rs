@@ -5,9 +5,11 @@
 
 mod common;
 
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit};
-use tempora::model::{Constraints, Damping, LinearModel, Load, Model, TimeFunction};
-use tempora::{ModelError, State};
+use stepgauge::explicit::{
+    CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
+};
+use stepgauge::model::{Constraints, Damping, LinearModel, Load, Model, TimeFunction};
+use stepgauge::{ModelError, State};
 
 /// A [`LinearModel`] seen only through the general [`Model`] methods: no
 /// `linear_stiffness`, and `is_unloaded` left at `false`, so the integrator takes the general path.
@@ -166,7 +168,7 @@ fn a_stiffness_of_the_wrong_size_is_not_used() {
         ) -> Result<(), ModelError> {
             self.inner.internal_force(t, u, v, out)
         }
-        fn linear_stiffness(&self) -> Option<&tempora::linalg::CsrMatrix> {
+        fn linear_stiffness(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
             self.other.linear_stiffness()
         }
         fn is_unloaded(&self) -> bool {

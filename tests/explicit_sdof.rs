@@ -2,9 +2,11 @@
 
 mod common;
 
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit};
-use tempora::run::{Flow, RunOptions, StepControl, StopReason, run};
-use tempora::{Error, State};
+use stepgauge::explicit::{
+    CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
+};
+use stepgauge::run::{Flow, RunOptions, StepControl, StopReason, run};
+use stepgauge::{Error, State};
 
 fn unchecked() -> CentralDifferenceOptions {
     CentralDifferenceOptions {
@@ -159,7 +161,7 @@ fn damped_sdof_converges_at_the_order_of_its_damping_treatment() {
 /// (the stepped map is the matrix, so c_n = c_0 z^n).
 #[test]
 fn stepped_decay_equals_the_spectral_radius() {
-    use tempora::spectral::{Scheme, cd_amplification, eigenvalues3, spectral_radius};
+    use stepgauge::spectral::{Scheme, cd_amplification, eigenvalues3, spectral_radius};
     for fv in [ForceVelocity::Lagged, ForceVelocity::Predicted] {
         for (omega_dt, xi) in [(0.3f64, 0.05f64), (1.2, 0.1), (1.7, 0.02)] {
             let a = cd_amplification(fv, omega_dt, xi);

@@ -1,4 +1,4 @@
-//! Faults: a `tempora run` killed (SIGKILL) at a pseudo-random moment and resumed from the
+//! Faults: a `stepgauge run` killed (SIGKILL) at a pseudo-random moment and resumed from the
 //! checkpoint it left gives a bit-identical history and final state; a kill during a checkpoint
 //! write never leaves a checkpoint that loads half-written; a checkpoint truncated at any length
 //! or with any single bit flipped is refused whole.
@@ -12,8 +12,8 @@ use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
-use tempora::Error;
-use tempora::io::{Checkpoint, read_checkpoint};
+use stepgauge::Error;
+use stepgauge::io::{Checkpoint, read_checkpoint};
 
 /// A unique scratch directory, removed when dropped.
 struct Scratch(PathBuf);
@@ -21,7 +21,7 @@ struct Scratch(PathBuf);
 impl Scratch {
     fn new(name: &str) -> Self {
         let dir = std::env::temp_dir().join(format!(
-            "tempora-faults-{name}-{}-{:?}",
+            "stepgauge-faults-{name}-{}-{:?}",
             std::process::id(),
             std::time::SystemTime::now()
                 .duration_since(std::time::UNIX_EPOCH)
@@ -74,9 +74,9 @@ fn chain_files(s: &Scratch, n: usize) -> (PathBuf, PathBuf, PathBuf) {
     (pm, pk, pl)
 }
 
-/// `tempora run` on the chain to `t_end` with `dt = 0.05`, recording three DOFs every 10 steps.
+/// `stepgauge run` on the chain to `t_end` with `dt = 0.05`, recording three DOFs every 10 steps.
 fn run_command(files: &(PathBuf, PathBuf, PathBuf), t_end: &str, more: &[&str]) -> Command {
-    let mut c = Command::new(env!("CARGO_BIN_EXE_tempora"));
+    let mut c = Command::new(env!("CARGO_BIN_EXE_stepgauge"));
     c.arg("run")
         .arg("--mass")
         .arg(&files.0)
@@ -105,10 +105,10 @@ fn run_command(files: &(PathBuf, PathBuf, PathBuf), t_end: &str, more: &[&str]) 
 }
 
 fn run_to_end(mut c: Command) {
-    let out = c.output().expect("run tempora");
+    let out = c.output().expect("run stepgauge");
     assert!(
         out.status.success(),
-        "tempora run failed: {}",
+        "stepgauge run failed: {}",
         String::from_utf8_lossy(&out.stderr)
     );
 }
@@ -142,7 +142,7 @@ fn fractions(seed: u64, count: usize, lo: f64, hi: f64) -> Vec<f64> {
 
 /// Kills `c` (SIGKILL) `delay` after its start; returns whether it was still running then.
 fn kill_after(mut c: Command, delay: Duration) -> bool {
-    let mut child = c.spawn().expect("start tempora");
+    let mut child = c.spawn().expect("start stepgauge");
     std::thread::sleep(delay);
     let running = child.try_wait().expect("poll").is_none();
     if running {
@@ -291,8 +291,8 @@ fn a_run_killed_at_a_random_step_resumes_bit_identically() {
 
 /// With a checkpoint after every step (most of the wall time is then spent writing and syncing
 /// checkpoints), runs killed at pseudo-random moments leave a checkpoint that loads, or none at
-/// all; never a half-written one (writes go to a temporary file renamed over the checkpoint:
-/// `tempora::io::write_atomically`). A temporary file left by a kill is never the checkpoint.
+/// all; never a half-written one (writes go to a scratch file renamed over the checkpoint:
+/// `stepgauge::io::write_atomically`). A scratch file left by a kill is never the checkpoint.
 #[test]
 fn a_kill_during_a_checkpoint_write_never_leaves_a_half_written_checkpoint() {
     let s = Scratch::new("kill-write");
@@ -324,17 +324,17 @@ fn a_kill_during_a_checkpoint_write_never_leaves_a_half_written_checkpoint() {
                 .unwrap_or_else(|e| panic!("kill {i} after {ms:.0} ms: checkpoint refused: {e}"));
             assert!(c.state.step > 0);
         }
-        let temporaries = s.files_starting(&format!(".w{i}.ckpt.tmp-"));
-        left_behind += temporaries.len();
-        for t in temporaries {
-            // A temporary file is not read as a checkpoint unless it is complete.
+        let scratch_files = s.files_starting(&format!(".w{i}.ckpt.tmp-"));
+        left_behind += scratch_files.len();
+        for t in scratch_files {
+            // A scratch file is not read as a checkpoint unless it is complete.
             if let Ok(c) = read_checkpoint(&s.path(&t)) {
                 assert!(c.state.step > 0);
             }
         }
     }
     // How many kills landed inside a write (informative: it depends on the machine's speed).
-    eprintln!("{left_behind} of 8 kills left a temporary checkpoint file behind");
+    eprintln!("{left_behind} of 8 kills left a scratch checkpoint file behind");
 }
 
 /// Writes a small checkpoint (a 2-DOF run to t = 1) and returns its bytes.
@@ -352,7 +352,7 @@ fn small_checkpoint(s: &Scratch) -> Vec<u8> {
     .unwrap();
     std::fs::write(&files.2, "time,1\n0,10\n100,10\n").unwrap();
     let ck = s.path("small.ckpt");
-    let mut c = Command::new(env!("CARGO_BIN_EXE_tempora"));
+    let mut c = Command::new(env!("CARGO_BIN_EXE_stepgauge"));
     c.arg("run")
         .arg("--mass")
         .arg(&files.0)

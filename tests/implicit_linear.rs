@@ -6,14 +6,14 @@
 
 mod common;
 
-use tempora::State;
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::model::LinearModel;
-use tempora::params::AlphaParams;
-use tempora::spectral::{Scheme, alpha_amplification};
+use stepgauge::State;
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::model::LinearModel;
+use stepgauge::params::AlphaParams;
+use stepgauge::spectral::{Scheme, alpha_amplification};
 
 fn spectral_radius(p: &AlphaParams, omega_dt: f64, xi: f64) -> f64 {
-    tempora::spectral::spectral_radius(&Scheme::Alpha(*p), omega_dt, xi)
+    stepgauge::spectral::spectral_radius(&Scheme::Alpha(*p), omega_dt, xi)
 }
 
 fn integrator(model: &mut LinearModel, state: &mut State, p: AlphaParams) -> AlphaIntegrator {
@@ -34,7 +34,7 @@ fn integrator(model: &mut LinearModel, state: &mut State, p: AlphaParams) -> Alp
 /// about one ulp per step: docs/implicit.md).
 #[test]
 fn average_acceleration_conserves_energy_and_has_the_trapezoidal_period() {
-    use tempora::linalg::{LinearSolver, SparseCholesky};
+    use stepgauge::linalg::{LinearSolver, SparseCholesky};
     let (m, k) = (3.0f64, 27.0f64);
     let w = (k / m).sqrt();
     type MakeSolver = fn() -> Box<dyn LinearSolver>;
@@ -93,7 +93,7 @@ fn average_acceleration_conserves_energy_and_has_the_trapezoidal_period() {
 /// M = diag(2, 1), K = [[6, -2], [-2, 4]], R = [0, 10], from rest, dt = 0.28.
 /// Exact modal solution: omega^2 = 2 and 5, modes phi_1 = [1, 1]/sqrt(3), phi_2 = [1/2, -1]
 /// /sqrt(3/2) (M-orthonormal), each modal coordinate q_i = (f_i / omega_i^2)(1 - cos omega_i t).
-/// tempora's history must equal the modal superposition of the amplification-matrix powers (to
+/// stepgauge's history must equal the modal superposition of the amplification-matrix powers (to
 /// round-off), and its error against the exact solution must stay within what the spectral
 /// radius and period error of each mode predict.
 #[test]
@@ -128,14 +128,14 @@ fn bathe_two_dof_example_for_every_scheme() {
         AlphaParams::newmark(0.3025, 0.6).unwrap(),
     ];
     for p in schemes {
-        let mut model = tempora::model::LinearModel::new(
+        let mut model = stepgauge::model::LinearModel::new(
             &common::diag(&m),
             &common::dense(&[&[6.0, -2.0], &[-2.0, 4.0]]),
         )
         .unwrap()
-        .with_load(tempora::model::Load::Pattern {
+        .with_load(stepgauge::model::Load::Pattern {
             pattern: f.to_vec(),
-            factor: tempora::model::TimeFunction::Constant(1.0),
+            factor: stepgauge::model::TimeFunction::Constant(1.0),
         })
         .unwrap();
         let mut state = State::at_rest(2, 0.0);
@@ -182,7 +182,7 @@ fn bathe_two_dof_example_for_every_scheme() {
         let mut bound = 0.0;
         for i in 0..2 {
             let o = w2[i].sqrt() * dt;
-            let ev = tempora::spectral::eigenvalues3(&alpha_amplification(&p, o, 0.0));
+            let ev = stepgauge::spectral::eigenvalues3(&alpha_amplification(&p, o, 0.0));
             let principal = ev
                 .iter()
                 .filter(|z| z.im > 0.0)
@@ -274,7 +274,7 @@ fn spurious_stiff_mode_is_filtered_at_the_predicted_rate() {
         (AlphaParams::generalized_alpha(0.0).unwrap(), 0.0),
         (AlphaParams::generalized_alpha(0.6).unwrap(), 0.6),
     ] {
-        let mut model = tempora::model::LinearModel::new(
+        let mut model = stepgauge::model::LinearModel::new(
             &common::diag(&[1.0, 1.0]),
             &common::dense(&[&[p11, p12], &[p12, p22]]),
         )
@@ -344,7 +344,7 @@ fn stepped_decay_equals_the_spectral_radius() {
     ] {
         for omega_dt in [0.5, 2.0, 8.0] {
             let a = alpha_amplification(&p, omega_dt, 0.0);
-            let ev = tempora::spectral::eigenvalues3(&a);
+            let ev = stepgauge::spectral::eigenvalues3(&a);
             let z = *ev
                 .iter()
                 .max_by(|x, y| x.norm().total_cmp(&y.norm()))
@@ -386,8 +386,8 @@ fn stepped_decay_equals_the_spectral_radius() {
 /// and without Rayleigh damping) and on the general one (a constraint).
 #[test]
 fn implicit_results_do_not_depend_on_the_thread_count() {
-    use tempora::linalg::SparseCholesky;
-    use tempora::model::{Constraints, Load, TimeFunction};
+    use stepgauge::linalg::SparseCholesky;
+    use stepgauge::model::{Constraints, Load, TimeFunction};
     let n = 40_000; // above the default parallel threshold of 32,768
     let make = |case: usize| {
         let mass = if case == 1 {

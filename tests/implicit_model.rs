@@ -3,11 +3,11 @@
 
 mod common;
 
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::model::{Constraints, Damping, LinearModel, Load, TimeFunction};
-use tempora::params::AlphaParams;
-use tempora::run::{Flow, RunOptions, StepControl, StopReason, run};
-use tempora::{Error, State};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::model::{Constraints, Damping, LinearModel, Load, TimeFunction};
+use stepgauge::params::AlphaParams;
+use stepgauge::run::{Flow, RunOptions, StepControl, StopReason, run};
+use stepgauge::{Error, State};
 
 fn new(model: &mut LinearModel, state: &mut State, p: AlphaParams) -> AlphaIntegrator {
     AlphaIntegrator::new(
@@ -207,7 +207,7 @@ fn bad_parameters_and_steps_are_typed_errors() {
 /// refused at the start.
 #[test]
 fn indefinite_or_singular_matrices_are_typed_errors() {
-    use tempora::linalg::{SparseCholesky, SparseLu};
+    use stepgauge::linalg::{SparseCholesky, SparseLu};
     let make = || LinearModel::new(&common::diag(&[1.0]), &common::diag(&[-100.0])).unwrap();
     let mut model = make();
     let mut state = State::new(0.0, vec![0.01], vec![0.0]).unwrap();
@@ -269,7 +269,7 @@ fn indefinite_or_singular_matrices_are_typed_errors() {
 /// of Bathe, *Finite Element Procedures*, 1996, with HHT).
 #[test]
 fn sparse_solvers_give_the_dense_history() {
-    use tempora::linalg::{CgOptions, ConjugateGradient, LinearSolver, SparseCholesky, SparseLu};
+    use stepgauge::linalg::{CgOptions, ConjugateGradient, LinearSolver, SparseCholesky, SparseLu};
     let history = |solver: Box<dyn LinearSolver>| {
         let mut model = LinearModel::new(
             &common::diag(&[2.0, 1.0]),
@@ -320,7 +320,7 @@ fn sparse_solvers_give_the_dense_history() {
 /// done once): a history with varying steps on the sparse Cholesky path equals the dense solve.
 #[test]
 fn changing_the_step_refactors_correctly() {
-    use tempora::linalg::{LinearSolver, SparseCholesky};
+    use stepgauge::linalg::{LinearSolver, SparseCholesky};
     let steps = [0.1, 0.2, 0.2, 0.05, 0.1, 0.3, 0.3, 0.1];
     let history = |solver: Box<dyn LinearSolver>| {
         let mut model = LinearModel::new(

@@ -5,10 +5,10 @@
 mod common;
 
 use common::Duffing;
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions, NewtonVariant};
-use tempora::model::Model;
-use tempora::params::AlphaParams;
-use tempora::{Error, ModelError, State};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions, NewtonVariant};
+use stepgauge::model::Model;
+use stepgauge::params::AlphaParams;
+use stepgauge::{Error, ModelError, State};
 
 fn start(p: AlphaParams, newton: NewtonOptions) -> (Duffing, State, AlphaIntegrator) {
     let mut model = Duffing::reference();
@@ -178,7 +178,7 @@ impl Model for Breaks {
         }
         self.0.internal_force(t, u, v, out)
     }
-    fn tangent_pattern(&self) -> Option<&tempora::linalg::CsrMatrix> {
+    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
         self.0.tangent_pattern()
     }
     fn tangent_stiffness(
@@ -186,7 +186,7 @@ impl Model for Breaks {
         t: f64,
         u: &[f64],
         v: &[f64],
-        out: &mut tempora::linalg::CsrMatrix,
+        out: &mut stepgauge::linalg::CsrMatrix,
     ) -> Result<(), ModelError> {
         self.0.tangent_stiffness(t, u, v, out)
     }
@@ -235,7 +235,7 @@ impl Model for GoesNan {
         }
         Ok(())
     }
-    fn tangent_pattern(&self) -> Option<&tempora::linalg::CsrMatrix> {
+    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
         self.0.tangent_pattern()
     }
     fn tangent_stiffness(
@@ -243,7 +243,7 @@ impl Model for GoesNan {
         t: f64,
         u: &[f64],
         v: &[f64],
-        out: &mut tempora::linalg::CsrMatrix,
+        out: &mut stepgauge::linalg::CsrMatrix,
     ) -> Result<(), ModelError> {
         self.0.tangent_stiffness(t, u, v, out)
     }

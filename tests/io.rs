@@ -1,5 +1,5 @@
 //! File input and output: Matrix Market matrices, CSV load tables, initial conditions and
-//! histories, checkpoints. Files go into a fresh directory under the system's temporary
+//! histories, checkpoints. Files go into a fresh directory under the system's temp
 //! directory, removed at the end of each test.
 
 mod common;
@@ -10,21 +10,21 @@ use std::sync::atomic::{AtomicU64, Ordering};
 
 use proptest::prelude::*;
 use sprs::{CsMat, TriMat};
-use tempora::State;
-use tempora::energy::EnergyLedger;
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions};
-use tempora::io::checkpoint::CHECKPOINT_FORMAT_VERSION;
-use tempora::io::csv::{ENERGY_HEADER, validate_dofs};
-use tempora::io::{
+use stepgauge::State;
+use stepgauge::energy::EnergyLedger;
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
+use stepgauge::io::checkpoint::CHECKPOINT_FORMAT_VERSION;
+use stepgauge::io::csv::{ENERGY_HEADER, validate_dofs};
+use stepgauge::io::{
     Checkpoint, parse_initial, parse_load_table, parse_matrix_market, read_checkpoint,
     read_initial, read_load_table, read_matrix_market, write_checkpoint, write_energy_csv,
     write_matrix_market, write_record_csv,
 };
-use tempora::model::{LinearModel, Load, Model, TimeFunction};
-use tempora::run::{Flow, RecordOptions, RunOptions, StepControl, run};
-use tempora::{Error, Result};
+use stepgauge::model::{LinearModel, Load, Model, TimeFunction};
+use stepgauge::run::{Flow, RecordOptions, RunOptions, StepControl, run};
+use stepgauge::{Error, Result};
 
-/// A directory of its own under the system's temporary directory, removed on drop.
+/// A directory of its own under the system's temp directory, removed on drop.
 struct Scratch(PathBuf);
 
 impl Scratch {
@@ -35,7 +35,7 @@ impl Scratch {
             .map(|d| d.subsec_nanos())
             .unwrap_or(0);
         let dir = std::env::temp_dir().join(format!(
-            "tempora-io-{tag}-{}-{}-{nanos}",
+            "stepgauge-io-{tag}-{}-{}-{nanos}",
             std::process::id(),
             N.fetch_add(1, Ordering::Relaxed)
         ));
@@ -206,7 +206,7 @@ fn matrix_market_write_then_read_is_bit_exact() {
         write_matrix_market(&path, &m.to_csc(), false).unwrap();
         assert_eq!(entries(&read_matrix_market(&path).unwrap()), entries(&m));
     }
-    // Only the matrix files remain: no temporary files.
+    // Only the matrix files remain: no scratch files.
     assert_eq!(dir.entries().len(), 6);
 }
 
@@ -651,7 +651,7 @@ fn damaged_checkpoints_are_refused_whole() {
 }
 
 #[test]
-fn a_failed_checkpoint_write_leaves_the_old_file_and_no_temporary_file() {
+fn a_failed_checkpoint_write_leaves_the_old_file_and_no_scratch_file() {
     let dir = Scratch::new("ckpt-fail");
     let p = dir.path("run.ckpt");
     let c = checkpoint();

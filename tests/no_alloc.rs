@@ -6,9 +6,11 @@ mod common;
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::sync::atomic::{AtomicUsize, Ordering};
 
-use tempora::State;
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit};
-use tempora::model::{Constraints, LinearModel, Load, TimeFunction};
+use stepgauge::State;
+use stepgauge::explicit::{
+    CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
+};
+use stepgauge::model::{Constraints, LinearModel, Load, TimeFunction};
 
 struct Counting;
 
@@ -128,7 +130,7 @@ fn explicit_plain_linear_steps_allocate_nothing() {
 /// model with the stable step given: six vectors (lumped mass, its inverse, and the next
 /// displacement, half-step velocity, velocity and acceleration; the force vectors are left out)
 /// plus the constraint mask of creation (a byte per DOF) and per-chunk partial sums. Creation
-/// makes no copy of the state and no temporary vector.
+/// makes no copy of the state and no scratch vector.
 fn explicit_memory_is_six_vectors() {
     let n = 300_000;
     let mut m = plain_model(n);
@@ -204,9 +206,9 @@ fn check(n: usize, treatment: ForceVelocity) {
 /// factors the matrix: faer sets up its matrix-product kernels on first use). Called from the one
 /// test function, so that no other test thread allocates while counting.
 fn implicit_linear_steps_allocate_nothing() {
-    use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-    use tempora::linalg::SparseCholesky;
-    use tempora::params::AlphaParams;
+    use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+    use stepgauge::linalg::SparseCholesky;
+    use stepgauge::params::AlphaParams;
     let n = 2000;
     let mut m = LinearModel::new(
         &common::dense_band_mass(n),
@@ -243,9 +245,9 @@ fn implicit_linear_steps_allocate_nothing() {
 /// and damped), serial and, above the parallel threshold, from inside rayon's pool, allocates
 /// nothing per step after the first.
 fn implicit_streamlined_steps_allocate_nothing() {
-    use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-    use tempora::linalg::SparseCholesky;
-    use tempora::params::AlphaParams;
+    use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+    use stepgauge::linalg::SparseCholesky;
+    use stepgauge::params::AlphaParams;
     let run = |n: usize, consistent: bool, damped: bool| {
         let mass = if consistent {
             common::dense_band_mass(n)

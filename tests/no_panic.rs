@@ -19,31 +19,31 @@ use std::path::PathBuf;
 
 use proptest::prelude::*;
 use sprs::{CsMat, TriMat};
-use tempora::energy::EnergyLedger;
-use tempora::explicit::stable_step::{EigenOptions, StableStepOptions, estimate};
-use tempora::explicit::{
+use stepgauge::energy::EnergyLedger;
+use stepgauge::explicit::stable_step::{EigenOptions, StableStepOptions, estimate};
+use stepgauge::explicit::{
     CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit, critical_step,
     element_stable_step, omega_max_gershgorin, omega_max_lanczos,
 };
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions, NewtonVariant};
-use tempora::linalg::{
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions, NewtonVariant};
+use stepgauge::linalg::{
     CgOptions, ConjugateGradient, CsrMatrix, LinearSolver, Parallelism, SparseCholesky, SparseLu,
     dot, norm2, spmv,
 };
-use tempora::model::{Constraints, Damping, LinearModel, Load, LoadTable, Model, TimeFunction};
-use tempora::params::{AlphaParams, Family};
-use tempora::reference::{
+use stepgauge::model::{Constraints, Damping, LinearModel, Load, LoadTable, Model, TimeFunction};
+use stepgauge::params::{AlphaParams, Family};
+use stepgauge::reference::{
     BarImpact, Duffing, Hardening, ReferenceProblem, SdofFree, SdofHalfSine, SdofHarmonic,
     StiffSoft, TwoDofStep,
 };
-use tempora::run::{Flow, Record, RecordOptions, RunOptions, StepControl, run};
-use tempora::spectral::{
+use stepgauge::run::{Flow, Record, RecordOptions, RunOptions, StepControl, run};
+use stepgauge::spectral::{
     self, CheckContext, Scheme, alpha_amplification, bracket_check, cd_amplification,
     characteristic_polynomial, eigenvalues, eigenvalues3, largest_step_for_damping,
     largest_step_for_period_error, log_space, metrics, newmark_stability_map,
     omega_crit_closed_form, omega_crit_numeric, order_of_accuracy, rho_inf, spectral_radius, sweep,
 };
-use tempora::{Error, State};
+use stepgauge::{Error, State};
 
 const CASES: u32 = 64;
 
@@ -99,7 +99,7 @@ fn guard<T>(what: &str, input: &dyn std::fmt::Debug, f: impl FnOnce() -> T) -> T
 }
 
 /// Asserts `Err` for invalid input (and nothing for valid input).
-fn refused<T: std::fmt::Debug>(what: &str, input: &dyn std::fmt::Debug, r: &tempora::Result<T>) {
+fn refused<T: std::fmt::Debug>(what: &str, input: &dyn std::fmt::Debug, r: &stepgauge::Result<T>) {
     assert!(r.is_err(), "{what} accepted invalid input {input:?}: {r:?}");
 }
 
@@ -162,7 +162,7 @@ struct Scratch(PathBuf);
 impl Scratch {
     fn new(tag: &str) -> Self {
         let dir = std::env::temp_dir().join(format!(
-            "tempora-no-panic-{tag}-{}-{:?}",
+            "stepgauge-no-panic-{tag}-{}-{:?}",
             std::process::id(),
             std::thread::current().id()
         ));
@@ -250,7 +250,7 @@ proptest! {
                 refused("with_load(Table)", &input, &r);
             }
             let r = guard("io::csv::validate_dofs", &input,
-                || tempora::io::csv::validate_dofs(&table, n));
+                || stepgauge::io::csv::validate_dofs(&table, n));
             if dof >= n {
                 refused("validate_dofs", &input, &r);
             }
@@ -372,7 +372,7 @@ proptest! {
     #[test]
     fn alpha_params_constructors(a in num(), b in num(), c in num(), d in num()) {
         let unit = |x: f64| (0.0..=1.0).contains(&x);
-        let checks: Vec<(&str, tempora::Result<AlphaParams>, bool)> = vec![
+        let checks: Vec<(&str, stepgauge::Result<AlphaParams>, bool)> = vec![
             ("newmark", guard("AlphaParams::newmark", &(a, b), || AlphaParams::newmark(a, b)),
              finite(a) && finite(b) && a >= 0.0 && b >= 0.0),
             ("hht", guard("AlphaParams::hht", &a, || AlphaParams::hht(a)),
@@ -836,7 +836,7 @@ proptest! {
         if !all_finite(&used(ncols.max(1), &data)) {
             refused("from_sprs", &input, &r);
         }
-        guard("Parallelism", &i, || (Parallelism { threshold: i }.parallel_for(j), tempora::linalg::chunk_count(i)));
+        guard("Parallelism", &i, || (Parallelism { threshold: i }.parallel_for(j), stepgauge::linalg::chunk_count(i)));
     }
 
     /// Every solver through the `LinearSolver` seam: out of order, with patterns that change,
@@ -908,7 +908,7 @@ proptest! {
         w in 0..3usize, ulen in 0..5usize, velocity in any::<bool>(), bytes in prop::collection::vec(any::<u8>(), 0..64),
         symmetric in any::<bool>(),
     ) {
-        use tempora::io::*;
+        use stepgauge::io::*;
         let dir = Scratch::new("io");
         let file = dir.0.join("f");
         let missing = dir.0.join("none/such");
@@ -943,7 +943,7 @@ proptest! {
         let mut ledger_model = chain(1, 1.0);
         let mut s = State::at_rest(1, 0.0);
         let cd = CentralDifference::new(&mut ledger_model, &mut s, explicit_opts(StableLimit::Unchecked)).unwrap();
-        let sample = tempora::run::EnergySample::of(x, cd.energy());
+        let sample = stepgauge::run::EnergySample::of(x, cd.energy());
         let _ = guard("write_energy_csv", &x, || write_energy_csv(&dir.0.join("e.csv"), &[sample, sample]));
         for target in [&missing, &dir.0, &PathBuf::from("")] {
             let r = guard("write_energy_csv (bad path)", target, || write_energy_csv(target, &[sample]));
@@ -985,7 +985,7 @@ proptest! {
 
     #[test]
     fn verification_helpers(x in num(), y in num(), z in num()) {
-        use tempora::verification::{Check, Kind, fixed, sci};
+        use stepgauge::verification::{Check, Kind, fixed, sci};
         guard("sci/fixed", &x, || (sci(x), fixed(x)));
         let c = guard("Check::at_most", &(x, y), || Check::at_most("a.b", Kind::ClosedForm, "w", "s", "m", x, y, "s"));
         prop_assert!(!c.passed || (x.is_finite() && x <= y));
@@ -1178,7 +1178,7 @@ fn regression_steps_that_cannot_advance_the_time_are_refused() {
     assert!(
         matches!(
             out.stop,
-            tempora::run::StopReason::Failed(Error::InvalidParameter { name: "dt", .. })
+            stepgauge::run::StopReason::Failed(Error::InvalidParameter { name: "dt", .. })
         ),
         "{:?}",
         out.stop

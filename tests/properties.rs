@@ -13,12 +13,14 @@ mod common;
 use nalgebra::{DMatrix, DVector};
 use proptest::prelude::*;
 use sprs::{CsMat, TriMat};
-use tempora::State;
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit};
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::model::LinearModel;
-use tempora::params::AlphaParams;
-use tempora::spectral::{Scheme, eigenvalues3, spectral_radius};
+use stepgauge::State;
+use stepgauge::explicit::{
+    CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
+};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::model::LinearModel;
+use stepgauge::params::AlphaParams;
+use stepgauge::spectral::{Scheme, eigenvalues3, spectral_radius};
 
 fn sparse(a: &DMatrix<f64>) -> CsMat<f64> {
     let mut t = TriMat::new((a.nrows(), a.ncols()));

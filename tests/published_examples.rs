@@ -1,5 +1,5 @@
 //! The published worked examples of the verification suite (`src/verification/published.rs`),
-//! driven here the way a user drives tempora: through the public API, the `run` loop with a
+//! driven here the way a user drives stepgauge: through the public API, the `run` loop with a
 //! fixed step and recording, and (for Chopra's pulse) the load as a piecewise-linear load table
 //! instead of a load function. The suite steps the integrators directly with a load function;
 //! these tests check that the run loop (its landing on the end time, its record) and the
@@ -9,18 +9,18 @@ mod common;
 
 use std::f64::consts::PI;
 
-use tempora::State;
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions};
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::SparseCholesky;
-use tempora::model::{Load, LoadTable};
-use tempora::params::AlphaParams;
-use tempora::reference::{ReferenceProblem, TwoDofStep};
-use tempora::run::{Flow, RunOptions, StepControl, StopReason, run};
+use stepgauge::State;
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::SparseCholesky;
+use stepgauge::model::{Load, LoadTable};
+use stepgauge::params::AlphaParams;
+use stepgauge::reference::{ReferenceProblem, TwoDofStep};
+use stepgauge::run::{Flow, RunOptions, StepControl, StopReason, run};
 
 /// Chopra (2012), *Dynamics of Structures*, 4th ed., Examples 5.3 (average acceleration) and
 /// 5.4 (linear acceleration), `u` (in) at `t = 0.1 .. 1.0 s` (example numbers and values from
-/// memory; an independent recurrence agrees with tempora, see the suite's notes).
+/// memory; an independent recurrence agrees with stepgauge, see the suite's notes).
 const CHOPRA_AVERAGE: [f64; 10] = [
     0.0437, 0.2326, 0.6121, 1.0825, 1.4309, 1.4231, 0.9622, 0.1908, -0.6044, -1.1442,
 ];

@@ -1,17 +1,19 @@
-//! tempora's integrators against the library's reference problems (`tempora::reference`): second
+//! stepgauge's integrators against the library's reference problems (`stepgauge::reference`): second
 //! order on the half-sine pulses (not smooth) for the central-difference method and the
 //! average-acceleration (trapezoidal) rule, and the struck bar against one-dimensional wave
 //! theory. The orders of every scheme on every smooth problem are verification checks
-//! (`tempora::verification`, kind `Convergence`, in `src/verification/convergence.rs`).
+//! (`stepgauge::verification`, kind `Convergence`, in `src/verification/convergence.rs`).
 
-use tempora::State;
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit};
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::SparseCholesky;
-use tempora::model::Model;
-use tempora::params::AlphaParams;
-use tempora::reference::{self, BarImpact, ReferenceProblem};
-use tempora::run::Integrator;
+use stepgauge::State;
+use stepgauge::explicit::{
+    CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
+};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::SparseCholesky;
+use stepgauge::model::Model;
+use stepgauge::params::AlphaParams;
+use stepgauge::reference::{self, BarImpact, ReferenceProblem};
+use stepgauge::run::Integrator;
 
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Scheme {

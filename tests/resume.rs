@@ -3,12 +3,12 @@
 
 mod common;
 
-use tempora::State;
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions};
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions};
-use tempora::linalg::SparseCholesky;
-use tempora::model::{Constraints, LinearModel, Load, Model, TimeFunction};
-use tempora::params::AlphaParams;
+use stepgauge::State;
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions};
+use stepgauge::linalg::SparseCholesky;
+use stepgauge::model::{Constraints, LinearModel, Load, Model, TimeFunction};
+use stepgauge::params::AlphaParams;
 
 fn model() -> LinearModel {
     let n = 30;

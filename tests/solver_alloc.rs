@@ -6,7 +6,7 @@ use std::alloc::{GlobalAlloc, Layout, System};
 use std::sync::atomic::{AtomicUsize, Ordering};
 
 use sprs::TriMat;
-use tempora::linalg::{
+use stepgauge::linalg::{
     CgOptions, ConjugateGradient, CsrMatrix, LinearSolver, Parallelism, SparseCholesky, SparseLu,
 };
 

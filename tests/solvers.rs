@@ -4,9 +4,9 @@
 
 use proptest::prelude::*;
 use sprs::TriMat;
-use tempora::Error;
-use tempora::error::Singularity;
-use tempora::linalg::{
+use stepgauge::Error;
+use stepgauge::error::Singularity;
+use stepgauge::linalg::{
     CgOptions, ConjugateGradient, CsrMatrix, LinearSolver, Parallelism, SparseCholesky, SparseLu,
 };
 

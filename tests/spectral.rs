@@ -1,9 +1,9 @@
 //! Spectral analysis against the published closed forms.
 
 use proptest::prelude::*;
-use tempora::explicit::ForceVelocity;
-use tempora::params::AlphaParams;
-use tempora::spectral::{
+use stepgauge::explicit::ForceVelocity;
+use stepgauge::params::AlphaParams;
+use stepgauge::spectral::{
     CheckContext, Prepared, Scheme, Stability, check, eigenvalues, eigenvalues3, metrics,
     omega_crit_closed_form, omega_crit_numeric, order_of_accuracy, rho_inf, spectral_radius, sweep,
 };
@@ -231,7 +231,7 @@ proptest! {
 /// (beta, gamma) plane shows the three Newmark regions (Newmark 1959; Hughes 1987, sec. 9.1).
 #[test]
 fn sweeps_and_stability_map() {
-    use tempora::spectral::{log_space, newmark_stability_map, sweep};
+    use stepgauge::spectral::{log_space, newmark_stability_map, sweep};
     let schemes = [
         alpha(AlphaParams::average_acceleration()),
         alpha(AlphaParams::hht(-0.2).unwrap()),
@@ -267,7 +267,7 @@ fn sweeps_and_stability_map() {
 /// at the frequency of interest (bisection on the computed metric).
 #[test]
 fn largest_step_for_a_damping_target() {
-    use tempora::spectral::largest_step_for_damping;
+    use stepgauge::spectral::largest_step_for_damping;
     let s = alpha(AlphaParams::hht(-0.3).unwrap());
     let w = 20.0;
     let dt = largest_step_for_damping(&s, w, 0.0, 0.01).unwrap();

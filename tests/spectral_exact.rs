@@ -1,6 +1,6 @@
 //! The eigenvalues of the amplification matrix against exact ones: `tests/data/exact_roots.csv`,
 //! the roots of the characteristic polynomial formed from the step equations and solved with
-//! mpmath at 50 digits (`tests/data/exact_roots.py`; nothing of tempora used), correctly rounded.
+//! mpmath at 50 digits (`tests/data/exact_roots.py`; nothing of stepgauge used), correctly rounded.
 //! 3000 random points over every family, `Omega` in [1e-4, 1e6], `xi` in [0, 1]; about 3500
 //! points next to where two roots meet (relative offsets 1e-2 .. 1e-12 of `Omega` from a sign
 //! change of the discriminant, roots from about 1e-1 to 1e-6 apart); and the points that a
@@ -12,9 +12,9 @@
 //! its condition as an eigenvalue, each times a few roundings, capped where roots meet.
 
 use nalgebra::Complex;
-use tempora::explicit::ForceVelocity;
-use tempora::params::AlphaParams;
-use tempora::spectral::{CONDITION_LIMIT, Scheme, eigenvalues, eigenvalues3, spectral_radius};
+use stepgauge::explicit::ForceVelocity;
+use stepgauge::params::AlphaParams;
+use stepgauge::spectral::{CONDITION_LIMIT, Scheme, eigenvalues, eigenvalues3, spectral_radius};
 
 mod common;
 

@@ -1,4 +1,4 @@
-//! The verification suite (`tempora::verification`): every check passes, and
+//! The verification suite (`stepgauge::verification`): every check passes, and
 //! `docs/validation.md` lists exactly the checks the suite makes (regenerate it with
 //! `cargo run --release -- verify --markdown docs/validation.md`).
 
@@ -6,7 +6,7 @@ use std::collections::HashSet;
 use std::path::Path;
 use std::process::Command;
 
-use tempora::verification::{self, Check, Kind};
+use stepgauge::verification::{self, Check, Kind};
 
 /// The same cell text as the page writes.
 fn cell(text: &str) -> String {
@@ -86,11 +86,11 @@ fn every_check_passes_and_the_validation_page_is_current() {
     assert!(page.contains(&passed), "{stale}");
 }
 
-fn tempora(args: &[&str]) -> (i32, String, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_tempora"))
+fn stepgauge(args: &[&str]) -> (i32, String, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_stepgauge"))
         .args(args)
         .output()
-        .expect("the tempora binary runs");
+        .expect("the stepgauge binary runs");
     (
         out.status.code().expect("exit status"),
         String::from_utf8(out.stdout).expect("UTF-8"),
@@ -100,10 +100,10 @@ fn tempora(args: &[&str]) -> (i32, String, String) {
 
 #[test]
 fn verify_command_prints_json_and_writes_markdown() {
-    let dir = std::env::temp_dir().join(format!("tempora-verify-{}", std::process::id()));
+    let dir = std::env::temp_dir().join(format!("stepgauge-verify-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
     let md = dir.join("validation.md");
-    let (code, out, err) = tempora(&[
+    let (code, out, err) = stepgauge(&[
         "verify",
         "--kind",
         "closed-form",
@@ -126,15 +126,15 @@ fn verify_command_prints_json_and_writes_markdown() {
     assert!(!page.contains("## Convergence orders"));
     let _ = std::fs::remove_dir_all(&dir);
 
-    let (code, out, _) = tempora(&["verify", "--kind", "published", "--csv"]);
+    let (code, out, _) = stepgauge(&["verify", "--kind", "published", "--csv"]);
     assert_eq!(code, 0);
     assert!(out.starts_with("id,kind,what,source,tolerance,result,passed,note\n"));
     assert!(out.lines().skip(1).all(|l| l.contains(",published,")));
 
-    let (code, _, err) = tempora(&["verify", "--kind", "everything"]);
+    let (code, _, err) = stepgauge(&["verify", "--kind", "everything"]);
     assert_eq!(code, 2);
     assert_eq!(err.lines().count(), 1, "{err}");
-    let (code, _, err) = tempora(&["verify", "--markdown", "/nonexistent-dir/x.md"]);
+    let (code, _, err) = stepgauge(&["verify", "--markdown", "/nonexistent-dir/x.md"]);
     assert_eq!(code, 1);
     assert!(err.contains("/nonexistent-dir/x.md"), "{err}");
 }

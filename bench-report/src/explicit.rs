@@ -37,12 +37,12 @@ use std::time::Instant;
 
 use rayon::prelude::*;
 use sprs::CsMat;
-use tempora::State;
-use tempora::explicit::{
+use stepgauge::State;
+use stepgauge::explicit::{
     CentralDifference, CentralDifferenceOptions, StableLimit, omega_max_gershgorin,
 };
-use tempora::linalg::{CHUNK, CsrMatrix, Parallelism};
-use tempora::model::{LinearModel, Model};
+use stepgauge::linalg::{CHUNK, CsrMatrix, Parallelism};
+use stepgauge::model::{LinearModel, Model};
 
 use crate::{Section, Settings, Target, alloc};
 
@@ -207,7 +207,7 @@ fn parse_size(s: &str) -> Option<usize> {
 ///   `m v'^2`;
 /// * then the vectors are swapped into place, as the integrator commits a step.
 ///
-/// Both passes run over the fixed chunks of `tempora::linalg::CHUNK` entries, on rayon's pool
+/// Both passes run over the fixed chunks of `stepgauge::linalg::CHUNK` entries, on rayon's pool
 /// when the integrator's default [`Parallelism`] goes parallel, serially otherwise, with one
 /// partial-sum slot per chunk (no allocation per step).
 pub struct Hand {
@@ -703,8 +703,8 @@ pub fn section(settings: Settings) -> Section {
          **hand** is a hand-written loop doing the same arithmetic on the same CSR arrays and \
          vectors of the same size, in two passes (`v_half, u_new` and the finiteness sum; then \
          per row `f = K u_new` fused with `a, v` and the energy sums `v_half f, v f, a f, m v^2`), \
-         serial below tempora's parallel threshold ({} entries) and over rayon's pool above it, \
-         in the same chunks as the integrator, as tempora's step does. **control** times a \
+         serial below stepgauge's parallel threshold ({} entries) and over rayon's pool above it, \
+         in the same chunks as the integrator, as stepgauge's step does. **control** times a \
          second, identical copy of the hand loop: one copy is allocated before the integrator \
          and one after it, each round of samples starts with another of the four loops, and \
          **hand** is the median over both copies' samples, so that buffer placement and running \
@@ -779,7 +779,7 @@ pub fn section(settings: Settings) -> Section {
         let _ = writeln!(
             body,
             "Two threads against one (`rayon::ThreadPool`s of 1 and 2 threads, the step and the \
-             triad run inside `install`; tempora goes parallel from {} entries, so both sizes \
+             triad run inside `install`; stepgauge goes parallel from {} entries, so both sizes \
              run their loops on both threads):\n",
             Parallelism::default().threshold
         );

@@ -5,18 +5,18 @@
 //! The unavoidable work of a linear step is one forward-backward solve with the factor of the
 //! iteration matrix and the matrix products that form the right-hand side and the new internal
 //! force: `M x` once and `K x` once (the models here are undamped; a damped model adds `C x`).
-//! Both are timed here by hand, with tempora's own [`SparseCholesky::solve_in_place`] on a factor
+//! Both are timed here by hand, with stepgauge's own [`SparseCholesky::solve_in_place`] on a factor
 //! of the same matrix and [`CsrMatrix::mul_vec`] with the integrator's parallelism.
 
 use std::fmt::Write as _;
 
 use sprs::CsMat;
-use tempora::ModelError;
-use tempora::State;
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::{CsrMatrix, LinearSolver, Parallelism, SparseCholesky};
-use tempora::model::{LinearModel, Model};
-use tempora::params::AlphaParams;
+use stepgauge::ModelError;
+use stepgauge::State;
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::{CsrMatrix, LinearSolver, Parallelism, SparseCholesky};
+use stepgauge::model::{LinearModel, Model};
+use stepgauge::params::AlphaParams;
 
 use std::time::Instant;
 

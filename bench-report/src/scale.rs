@@ -1,17 +1,17 @@
 //! Section "Scale": large runs complete on the machine, with their time and memory.
 //!
 //! * [`explicit_scale`]: an explicit central-difference run of a 1e7-DOF spring chain (quick
-//!   mode: 1e5) through `tempora::run::run`, 200 steps at 0.9 of the stable step;
+//!   mode: 1e5) through `stepgauge::run::run`, 200 steps at 0.9 of the stable step;
 //! * [`implicit_scale`](crate::scale_implicit::implicit_scale): the implicit linear run of a
 //!   1e6-DOF 2D stencil model.
 
 use std::fmt::Write as _;
 use std::time::Instant;
 
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
-use tempora::run::{RecordOptions, RunOptions, StepControl, StopReason, run};
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
+use stepgauge::run::{RecordOptions, RunOptions, StepControl, StopReason, run};
 
-use tempora::State;
+use stepgauge::State;
 
 use crate::explicit::{chain_model, csr_bytes, safe_step};
 use crate::{Section, Settings, Target, alloc};
@@ -113,7 +113,7 @@ pub fn explicit_scale(settings: Settings) -> (String, Vec<Target>) {
     };
     let t_run = Instant::now();
     let outcome = run(&mut cd, &mut model, &mut state, &options, |_| {
-        tempora::run::Flow::Continue
+        stepgauge::run::Flow::Continue
     });
     let run_secs = t_run.elapsed().as_secs_f64();
     let peak_heap = alloc::peak();
@@ -142,9 +142,9 @@ pub fn explicit_scale(settings: Settings) -> (String, Vec<Target>) {
     let _ = writeln!(
         body,
         "An explicit run of a spring chain of n = {n} DOFs (`K = tridiag(-1, 2, -1)`, unit \
-         lumped masses, held at both ends; two smooth modes of initial displacement, at rest) through `tempora::run::run`: \
+         lumped masses, held at both ends; two smooth modes of initial displacement, at rest) through `stepgauge::run::run`: \
          {STEPS} fixed steps at 0.9 of the Gershgorin stable step, recording three DOFs and the \
-         energy every 10 steps, default options (tempora's parallel loops over rayon's pool). \
+         energy every 10 steps, default options (stepgauge's parallel loops over rayon's pool). \
          The run's heap is the counting allocator's peak from the creation of the state on, \
          beyond the model; the peak RSS (`VmHWM`) is the whole process's{}.\n",
         if rss_reset {

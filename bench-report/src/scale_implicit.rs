@@ -6,11 +6,11 @@
 use std::fmt::Write as _;
 use std::time::Instant;
 
-use tempora::State;
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::{LinearSolver, SparseCholesky};
-use tempora::model::LinearModel;
-use tempora::params::AlphaParams;
+use stepgauge::State;
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::{LinearSolver, SparseCholesky};
+use stepgauge::model::LinearModel;
+use stepgauge::params::AlphaParams;
 
 use crate::alloc;
 use crate::implicit::{DT, initial_u, stencil_2d, sum_matrix, unit_mass};

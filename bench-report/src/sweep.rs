@@ -7,9 +7,9 @@
 use std::fmt::Write as _;
 use std::time::Instant;
 
-use tempora::explicit::ForceVelocity;
-use tempora::params::AlphaParams;
-use tempora::spectral::{Prepared, Scheme, eigenvalues3, log_space, spectral_radius, sweep};
+use stepgauge::explicit::ForceVelocity;
+use stepgauge::params::AlphaParams;
+use stepgauge::spectral::{Prepared, Scheme, eigenvalues3, log_space, spectral_radius, sweep};
 
 use crate::{Section, Settings, Target};
 

@@ -1,4 +1,4 @@
-//! Section `work-precision`: wall time to reach a relative error, tempora against diffsol.
+//! Section `work-precision`: wall time to reach a relative error, stepgauge against diffsol.
 //!
 //! **Problem** ([`chain`]): a uniform fixed-free chain of `N = 200` unit masses and unit springs
 //! (invented values), undamped, with its exact solution by modal superposition. `N = 200` makes
@@ -15,13 +15,13 @@
 //! **Error**: the free end's displacement at `S = 400` equally spaced sample times
 //! `t_k = k T_1 / S`, `k = 1..S`: `max_k |u_k - u(t_k)| / max_k |u(t_k)|` (relative to the peak;
 //! a pointwise relative error is undefined at the zero crossings). Both codes are sampled at
-//! the same times: tempora by cubic Hermite interpolation from `(u, v)` at the ends of the step
+//! the same times: stepgauge by cubic Hermite interpolation from `(u, v)` at the ends of the step
 //! that contains `t_k` (fourth order, so it adds nothing to a second-order scheme's error;
 //! exact when a sample falls on a step); diffsol by its own dense output
 //! (`interpolate_inplace`, which is what its `solve_dense` does), with the stop time set to
 //! `T_1`.
 //!
-//! **tempora**: a uniform step `dt = T_1 / n`; for each target the smallest `n` found by
+//! **stepgauge**: a uniform step `dt = T_1 / n`; for each target the smallest `n` found by
 //! doubling from a small count and then bisection to 1 % (the error is not strictly monotone in
 //! `dt` when unresolved modes are present). Average acceleration and generalised-alpha
 //! (`rho_inf = 0.8`) on a `LinearModel` with the sparse Cholesky (the linear path factors once);
@@ -36,8 +36,8 @@
 //! and the faster is reported (BDF's cost is not monotone in `rtol` on the oscillatory
 //! problem, so the loosest passing setting is not always the cheapest).
 //!
-//! **Timing**: from building the model (tempora's `LinearModel`, diffsol's equation struct and
-//! problem) and the integrator to the last sample, the median of repeats, single thread (tempora
+//! **Timing**: from building the model (stepgauge's `LinearModel`, diffsol's equation struct and
+//! problem) and the integrator to the last sample, the median of repeats, single thread (stepgauge
 //! with `Parallelism::serial()`, faer's default sequential context in diffsol).
 
 // Numerical kernels index several vectors with one loop variable (as in the crate itself).
@@ -50,12 +50,12 @@ use std::fmt::Write as _;
 use std::time::Instant;
 
 use sprs::CsMat;
-use tempora::State;
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions};
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::{Parallelism, SparseCholesky};
-use tempora::model::{LinearModel, Load, TimeFunction};
-use tempora::params::AlphaParams;
+use stepgauge::State;
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::{Parallelism, SparseCholesky};
+use stepgauge::model::{LinearModel, Load, TimeFunction};
+use stepgauge::params::AlphaParams;
 
 use crate::timing::median_secs;
 use crate::{Section, Settings, Target};
@@ -67,7 +67,7 @@ struct Config {
     n: usize,
     samples: usize,
     targets: Vec<f64>,
-    /// Wall-time budget of one tempora or diffsol run during a search (seconds); longer runs
+    /// Wall-time budget of one stepgauge or diffsol run during a search (seconds); longer runs
     /// end the search for that method (the cell is then reported as not reached).
     run_cap: f64,
 }
@@ -92,7 +92,7 @@ impl Config {
     }
 }
 
-/// tempora's schemes compared.
+/// stepgauge's schemes compared.
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Scheme {
     AverageAcceleration,
@@ -111,7 +111,7 @@ impl Scheme {
 }
 
 /// The model of `problem`: serial, with its constant load.
-fn model(problem: &Problem, k: &CsMat<f64>, mass: &CsMat<f64>) -> tempora::Result<LinearModel> {
+fn model(problem: &Problem, k: &CsMat<f64>, mass: &CsMat<f64>) -> stepgauge::Result<LinearModel> {
     let mut model = LinearModel::new(mass, k)?.with_parallelism(Parallelism::serial());
     if problem.load.iter().any(|&f| f != 0.0) {
         model = model.with_load(Load::Pattern {
@@ -135,14 +135,14 @@ fn hermite(t0: f64, t1: f64, u0: f64, v0: f64, u1: f64, v1: f64, t: f64) -> f64 
 
 /// Runs `scheme` with `nsteps` uniform steps over the horizon and writes the free end's
 /// displacement at the sample times into `out`.
-fn run_tempora(
+fn run_stepgauge(
     scheme: Scheme,
     problem: &Problem,
     k: &CsMat<f64>,
     mass: &CsMat<f64>,
     nsteps: usize,
     out: &mut [f64],
-) -> tempora::Result<()> {
+) -> stepgauge::Result<()> {
     let mut model = model(problem, k, mass)?;
     let mut state = State::new(0.0, problem.u0.clone(), problem.v0.clone())?;
     let dt = problem.horizon / nsteps as f64;
@@ -181,8 +181,8 @@ fn sample_loop(
     nsteps: usize,
     state: &mut State,
     out: &mut [f64],
-    mut step: impl FnMut(&mut State) -> tempora::Result<()>,
-) -> tempora::Result<()> {
+    mut step: impl FnMut(&mut State) -> stepgauge::Result<()>,
+) -> stepgauge::Result<()> {
     let end = problem.chain.n - 1;
     let samples = &problem.samples;
     let (mut t0, mut u0, mut v0) = (0.0, state.u[end], state.v[end]);
@@ -253,7 +253,7 @@ fn time_median(budget: f64, mut f: impl FnMut()) -> f64 {
     median_secs(repeats, f)
 }
 
-/// Per problem: the errors of tempora's runs by step count (shared by the targets).
+/// Per problem: the errors of stepgauge's runs by step count (shared by the targets).
 struct StepSearch<'a> {
     scheme: Scheme,
     problem: &'a Problem,
@@ -272,7 +272,7 @@ impl StepSearch<'_> {
             return e;
         }
         let t = Instant::now();
-        let e = match run_tempora(
+        let e = match run_stepgauge(
             self.scheme,
             self.problem,
             self.k,
@@ -319,8 +319,8 @@ impl StepSearch<'_> {
     }
 }
 
-/// tempora's cells for every target.
-fn tempora_cells(
+/// stepgauge's cells for every target.
+fn stepgauge_cells(
     scheme: Scheme,
     problem: &Problem,
     k: &CsMat<f64>,
@@ -356,7 +356,7 @@ fn tempora_cells(
         let error = search.error(n);
         let mut out = vec![0.0; problem.samples.len()];
         let secs = time_median(0.5, || {
-            run_tempora(scheme, problem, k, mass, n, &mut out).expect("run that passed before");
+            run_stepgauge(scheme, problem, k, mass, n, &mut out).expect("run that passed before");
         });
         cells.push(Some(Cell {
             setting: format!("dt {:.3}", problem.horizon / n as f64),
@@ -460,11 +460,11 @@ fn diffsol_cells(
 /// A named best time among some cells at one target: (name, seconds, steps).
 type Best = Option<(String, f64, usize)>;
 
-/// The measured cells of one case: per target, tempora's three schemes and diffsol's three
-/// methods, and tempora's fixed costs.
+/// The measured cells of one case: per target, stepgauge's three schemes and diffsol's three
+/// methods, and stepgauge's fixed costs.
 struct CaseResult {
     case: Case,
-    tempora: Vec<(Scheme, Vec<Option<Cell>>)>,
+    stepgauge: Vec<(Scheme, Vec<Option<Cell>>)>,
     diffsol: Vec<(Method, Vec<Option<Cell>>)>,
     /// Median time to build the model and the integrator (no step): average acceleration,
     /// central difference (with its stable-step estimate).
@@ -472,9 +472,9 @@ struct CaseResult {
 }
 
 impl CaseResult {
-    /// The fastest tempora cell at target `i` (implicit schemes only when `implicit_only`).
-    fn best_tempora(&self, i: usize, implicit_only: bool) -> Best {
-        self.tempora
+    /// The fastest stepgauge cell at target `i` (implicit schemes only when `implicit_only`).
+    fn best_stepgauge(&self, i: usize, implicit_only: bool) -> Best {
+        self.stepgauge
             .iter()
             .filter(|(s, _)| !implicit_only || *s != Scheme::CentralDifference)
             .filter_map(|(s, cells)| cells[i].as_ref().map(|c| (s.name(), c.secs, c.steps)))
@@ -494,7 +494,7 @@ impl CaseResult {
     }
 }
 
-/// `best diffsol time / tempora time`, formatted, and the ratio.
+/// `best diffsol time / stepgauge time`, formatted, and the ratio.
 fn speedup(t: &Best, d: &Best) -> (String, Option<f64>) {
     match (t, d) {
         (Some((tn, ts, _)), Some((dn, ds, _))) => {
@@ -502,7 +502,7 @@ fn speedup(t: &Best, d: &Best) -> (String, Option<f64>) {
             (format!("**{x:.1}x** ({dn} / {tn})"), Some(x))
         }
         (Some(_), None) => ("diffsol did not reach it".to_string(), None),
-        (None, Some(_)) => ("tempora did not reach it".to_string(), None),
+        (None, Some(_)) => ("stepgauge did not reach it".to_string(), None),
         (None, None) => ("-".to_string(), None),
     }
 }
@@ -521,11 +521,11 @@ fn measure_case(case: Case, cfg: &Config) -> CaseResult {
         Scheme::GeneralizedAlpha(0.8),
         Scheme::CentralDifference,
     ];
-    let tempora = schemes
+    let stepgauge = schemes
         .iter()
         .map(|&s| {
             let t = Instant::now();
-            let cells = tempora_cells(s, &problem, &k, &mass, cfg);
+            let cells = stepgauge_cells(s, &problem, &k, &mass, cfg);
             eprintln!(
                 "   {} {}: {:.1} s",
                 case.label(),
@@ -554,7 +554,7 @@ fn measure_case(case: Case, cfg: &Config) -> CaseResult {
     let mut out = vec![0.0; problem.samples.len()];
     let mut construct = |s: Scheme| {
         time_median(0.2, || {
-            run_tempora(s, &problem, &k, &mass, 0, &mut out).expect("construction");
+            run_stepgauge(s, &problem, &k, &mass, 0, &mut out).expect("construction");
         })
     };
     let construct = (
@@ -563,7 +563,7 @@ fn measure_case(case: Case, cfg: &Config) -> CaseResult {
     );
     CaseResult {
         case,
-        tempora,
+        stepgauge,
         diffsol,
         construct,
     }
@@ -573,8 +573,8 @@ fn render_case(r: &CaseResult, cfg: &Config, body: &mut String) {
     let _ = writeln!(body, "### Case {}\n", r.case.label());
     let mut header = "| target |".to_string();
     let mut rule = "|---|".to_string();
-    for (s, _) in &r.tempora {
-        let _ = write!(header, " tempora {} |", s.name());
+    for (s, _) in &r.stepgauge {
+        let _ = write!(header, " stepgauge {} |", s.name());
         rule.push_str("---|");
     }
     for (m, _) in &r.diffsol {
@@ -582,28 +582,28 @@ fn render_case(r: &CaseResult, cfg: &Config, body: &mut String) {
         rule.push_str("---|");
     }
     header.push_str(
-        " speed-up: best diffsol / best tempora | speed-up: best diffsol / best tempora implicit |",
+        " speed-up: best diffsol / best stepgauge | speed-up: best diffsol / best stepgauge implicit |",
     );
     rule.push_str("---|---|");
     let _ = writeln!(body, "{header}\n{rule}");
     for (i, target) in cfg.targets.iter().enumerate() {
         let mut row = format!("| {target:.0e} |");
-        for (_, cells) in &r.tempora {
+        for (_, cells) in &r.stepgauge {
             let _ = write!(row, " {} |", Cell::render(&cells[i]));
         }
         for (_, cells) in &r.diffsol {
             let _ = write!(row, " {} |", Cell::render(&cells[i]));
         }
         let d = r.best_diffsol(i);
-        let (all, _) = speedup(&r.best_tempora(i, false), &d);
-        let (implicit, _) = speedup(&r.best_tempora(i, true), &d);
+        let (all, _) = speedup(&r.best_stepgauge(i, false), &d);
+        let (implicit, _) = speedup(&r.best_stepgauge(i, true), &d);
         let _ = writeln!(row, " {all} | {implicit} |");
         body.push_str(&row);
     }
     let _ = writeln!(
         body,
         "\nFixed costs inside these times (building the model and the integrator, no step): \
-         tempora average acceleration {}, central difference {} (with its stable-step \
+         stepgauge average acceleration {}, central difference {} (with its stable-step \
          estimate).\n",
         fmt_secs(r.construct.0),
         fmt_secs(r.construct.1)
@@ -628,7 +628,7 @@ pub fn section(settings: Settings) -> Section {
         "Wall time to reach a relative error on the free end's displacement, against the exact \
          modal solution, on a uniform fixed-free chain of N = {} unit masses and springs, \
          undamped (omega_1 = {:.5}, omega_max = {:.4}), over one lowest period T_1 = {:.1}, \
-         sampled at {} equal intervals; both codes are sampled at the same times (tempora: \
+         sampled at {} equal intervals; both codes are sampled at the same times (stepgauge: \
          cubic Hermite between its steps; diffsol: its own interpolation, `interpolate_inplace`). \
          N = 200 (full run) makes the chain stiff in the sense that matters (omega_max / \
          omega_1 = 256: an explicit step is about T_1 / 800) with 200 modes excited by the step \
@@ -636,7 +636,7 @@ pub fn section(settings: Settings) -> Section {
          Case (a): released from the lowest mode shape, no load; case (b): at rest, a unit \
          load suddenly applied at the free end (every mode excited). Error = max |u - u_exact| \
          / max |u_exact| over the samples. Time = median wall time from building the model and \
-         the integrator to the end, one thread. tempora: the largest uniform step meeting the \
+         the integrator to the end, one thread. stepgauge: the largest uniform step meeting the \
          target (doubling, then bisection to 1 %), on a `LinearModel` with the sparse \
          Cholesky; central difference starts at its stable step. diffsol {} (features: faer; \
          `FaerSparseMat` and `FaerSparseLU`; first-order system y = (u, v) with its own \
@@ -659,7 +659,7 @@ pub fn section(settings: Settings) -> Section {
     let _ = writeln!(body, "{}", commentary(&results, &cfg));
     let _ = writeln!(
         body,
-        "Reading the tables. tempora's implicit schemes take a uniform step set by the error of \
+        "Reading the tables. stepgauge's implicit schemes take a uniform step set by the error of \
          the modes that carry the response (phase 2 atan(omega dt / 2) per step, a frequency \
          error of about (omega dt)^2 / 12), \
          and leave the unresolved high modes at full amplitude with a wrong phase. \
@@ -679,11 +679,11 @@ pub fn section(settings: Settings) -> Section {
             if target < 0.999e-3 {
                 continue;
             }
-            let (measured, x) = speedup(&b.best_tempora(i, false), &b.best_diffsol(i));
+            let (measured, x) = speedup(&b.best_stepgauge(i, false), &b.best_diffsol(i));
             targets.push(Target {
                 threads: "1".to_string(),
                 what: format!(
-                    "case (b) step load, error {target:.0e}: best diffsol time / best tempora time"
+                    "case (b) step load, error {target:.0e}: best diffsol time / best stepgauge time"
                 ),
                 measured: measured.replace("**", ""),
                 target: ">= 5x".to_string(),
@@ -709,7 +709,7 @@ fn commentary(results: &[CaseResult], cfg: &Config) -> String {
     for r in results {
         for (i, target) in cfg.targets.iter().enumerate() {
             let (Some((tn, ts, tsteps)), Some((dn, ds, dsteps))) =
-                (r.best_tempora(i, false), r.best_diffsol(i))
+                (r.best_stepgauge(i, false), r.best_diffsol(i))
             else {
                 continue;
             };
@@ -733,7 +733,7 @@ fn commentary(results: &[CaseResult], cfg: &Config) -> String {
             };
             let _ = writeln!(
                 s,
-                "- Case {} at {target:.0e}: diffsol {dn} is faster than tempora {tn} ({:.1}x): \
+                "- Case {} at {target:.0e}: diffsol {dn} is faster than stepgauge {tn} ({:.1}x): \
                  {why}.",
                 r.case.label(),
                 ts / ds,
@@ -741,7 +741,7 @@ fn commentary(results: &[CaseResult], cfg: &Config) -> String {
         }
     }
     if s.is_empty() {
-        s.push_str("- tempora is faster in every cell where both reached the target.\n");
+        s.push_str("- stepgauge is faster in every cell where both reached the target.\n");
     }
     s
 }
@@ -784,7 +784,7 @@ mod tests {
         let w = p.chain.omega(1);
         let mut last = f64::INFINITY;
         for n in [100usize, 200, 400] {
-            run_tempora(Scheme::AverageAcceleration, &p, &k, &m, n, &mut out).unwrap();
+            run_stepgauge(Scheme::AverageAcceleration, &p, &k, &m, n, &mut out).unwrap();
             let e = p.error(&out);
             let dt = p.horizon / n as f64;
             let phase = 2.0 * (0.5 * w * dt).atan() / dt;
@@ -799,11 +799,11 @@ mod tests {
         }
     }
 
-    /// Each tempora scheme converges to the modal solution on the step-load case, and the
+    /// Each stepgauge scheme converges to the modal solution on the step-load case, and the
     /// step search finds a count whose error meets the target while 1 % fewer steps (the
     /// bisection's resolution) would not have been tried as passing.
     #[test]
-    fn tempora_schemes_converge_and_the_search_meets_the_target() {
+    fn stepgauge_schemes_converge_and_the_search_meets_the_target() {
         let (p, k, m) = small(Case::StepLoad);
         let mut out = vec![0.0; p.samples.len()];
         for scheme in [
@@ -811,7 +811,7 @@ mod tests {
             Scheme::GeneralizedAlpha(0.8),
             Scheme::CentralDifference,
         ] {
-            run_tempora(scheme, &p, &k, &m, 20_000, &mut out).unwrap();
+            run_stepgauge(scheme, &p, &k, &m, 20_000, &mut out).unwrap();
             let e = p.error(&out);
             assert!(e < 1e-4, "{}: {e}", scheme.name());
         }

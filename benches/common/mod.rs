@@ -3,7 +3,7 @@
 #![allow(dead_code)]
 
 use sprs::CsMat;
-use tempora::model::LinearModel;
+use stepgauge::model::LinearModel;
 
 /// A linear model with unit lumped masses from the rows of `K` (column indices ascending).
 fn model_from_rows(n: usize, row: impl Fn(usize, &mut Vec<(usize, f64)>)) -> LinearModel {

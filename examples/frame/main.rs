@@ -5,7 +5,7 @@
 //! synthesised ground acceleration (a seeded sum of sines under a trapezoidal envelope, peak
 //! 0.3 g). The members are two-node Euler-Bernoulli frame elements with consistent mass
 //! (`model.rs`); the equations `M u'' + C u' + K u = -M r a_g(t)` in relative coordinates, with
-//! Rayleigh damping of 5 % at modes 1 and 3, are stepped by tempora's implicit integrator with
+//! Rayleigh damping of 5 % at modes 1 and 3, are stepped by stepgauge's implicit integrator with
 //! HHT-alpha (alpha = -0.1) and with average acceleration.
 //!
 //! Writes `ground.csv`, `roof.csv`, `roof.svg` and `base_shear.svg` to `--out` (default
@@ -25,8 +25,8 @@ use model::{
     FrameLayout, GroundMotion, Response, assemble, effective_masses, modes, peak, simulate,
 };
 use plotters::prelude::*;
-use tempora::model::{Damping, TimeFunction};
-use tempora::params::AlphaParams;
+use stepgauge::model::{Damping, TimeFunction};
+use stepgauge::params::AlphaParams;
 
 /// End of the run (s): the 12 s record and 3 s of free vibration.
 const T_END: f64 = 15.0;

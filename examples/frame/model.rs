@@ -14,12 +14,12 @@
 
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 use sprs::{CsMat, TriMat};
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::SparseCholesky;
-use tempora::model::{Damping, LinearModel, Load, TimeFunction};
-use tempora::params::AlphaParams;
-use tempora::run::{Flow, RecordOptions, RunOptions, StepControl, run};
-use tempora::{Error, Result, State};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::SparseCholesky;
+use stepgauge::model::{Damping, LinearModel, Load, TimeFunction};
+use stepgauge::params::AlphaParams;
+use stepgauge::run::{Flow, RecordOptions, RunOptions, StepControl, run};
+use stepgauge::{Error, Result, State};
 
 /// Standard gravity (m/s^2), to express accelerations in g (common practice: 9.80665).
 pub const G: f64 = 9.80665;
@@ -654,7 +654,7 @@ pub struct Response {
     /// Elastic base shear (N).
     pub base_shear: Vec<f64>,
     /// Every DOF's displacement (and velocity and acceleration), row-major.
-    pub record: tempora::run::Record,
+    pub record: stepgauge::run::Record,
     /// Largest relative energy-balance error of the run.
     pub max_balance_error: f64,
 }

@@ -263,7 +263,7 @@ fn plot_mesh(path: &std::path::Path, o: &Outcome) -> Result<(), Box<dyn Error>> 
         .draw()?;
     let m = {
         let mut m = vec![0.0; 2 * b.nodes.len()];
-        tempora::model::Model::lumped_mass(b, &mut m);
+        stepgauge::model::Model::lumped_mass(b, &mut m);
         m
     };
     let total: f64 = m.iter().step_by(2).sum();

@@ -12,9 +12,9 @@
 // Loops over the four nodes / four tensor components read like the formulas with an index.
 #![allow(clippy::needless_range_loop)]
 
-use tempora::ModelError;
-use tempora::explicit::element_stable_step;
-use tempora::model::Model;
+use stepgauge::ModelError;
+use stepgauge::explicit::element_stable_step;
+use stepgauge::model::Model;
 
 /// An isotropic elastic-plastic material (plane strain).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -815,19 +815,19 @@ mod tests {
     }
 
     /// The element stable step never exceeds the critical step `2 / omega_max` of the assembled
-    /// mesh, computed by tempora's Lanczos estimate on finite differences of the internal force
+    /// mesh, computed by stepgauge's Lanczos estimate on finite differences of the internal force
     /// (distorted patch, no hourglass or contact springs, which that estimate does not see), and
     /// is not far below it (above 70 %; measured 80 %: an element bound ignores that neighbours
     /// share the nodal masses).
     #[test]
     fn element_step_is_below_the_assembled_critical_step() {
-        use tempora::explicit::stable_step::{StableStepMethod, StableStepOptions, estimate};
+        use stepgauge::explicit::stable_step::{StableStepMethod, StableStepOptions, estimate};
         let mut b = patch();
         b.material.yield_stress = f64::INFINITY;
         b.hourglass_coefficient = 0.0;
         b.contact_stiffness = 0.0;
         let n = b.dofs();
-        let state = tempora::State::at_rest(n, 0.0);
+        let state = stepgauge::State::at_rest(n, 0.0);
         let elements = b.element_stable_step(0.0, &state.u).unwrap();
         let options = StableStepOptions {
             prefer_elements: false,
@@ -1011,9 +1011,9 @@ pub struct Outcome {
 /// Runs the scenario with the central-difference integrator: the stable step is re-estimated from
 /// the elements before every step (`StepControl::Auto` with `reestimate_every: 1` does the same
 /// inside `run`; the loop is written out here to sample the model's own energy split each step).
-pub fn simulate(s: &Scenario) -> Result<Outcome, tempora::Error> {
-    use tempora::State;
-    use tempora::explicit::{CentralDifference, CentralDifferenceOptions};
+pub fn simulate(s: &Scenario) -> Result<Outcome, stepgauge::Error> {
+    use stepgauge::State;
+    use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
     let mut billet = Billet::new(
         s.width,
         s.height,
@@ -1025,7 +1025,7 @@ pub fn simulate(s: &Scenario) -> Result<Outcome, tempora::Error> {
         s.hourglass,
         s.contact_factor,
     )
-    .map_err(|source| tempora::Error::Model {
+    .map_err(|source| stepgauge::Error::Model {
         step: 0,
         t: 0.0,
         source,

@@ -1,9 +1,9 @@
-//! A linear solver of your own, plugged into tempora's implicit integrator.
+//! A linear solver of your own, plugged into stepgauge's implicit integrator.
 //!
 //! `solver.rs` writes a banded Cholesky factorisation with a reverse Cuthill-McKee ordering
 //! against the `LinearSolver` seam (analyze / factor / solve_in_place / name). This program runs
 //! the same invented scenario (`model.rs`: a tensioned membrane strip, 6 m x 0.6 m, under a
-//! 20 ms pressure pulse) with HHT-alpha twice, once with tempora's built-in sparse Cholesky and
+//! 20 ms pressure pulse) with HHT-alpha twice, once with stepgauge's built-in sparse Cholesky and
 //! once with the banded solver, and prints the largest difference of the two displacement
 //! histories relative to the largest displacement, the run times and the solver's name. Both
 //! are direct solvers, backward stable, so the histories must agree to round-off.
@@ -21,11 +21,11 @@ use std::path::PathBuf;
 use std::sync::atomic::Ordering;
 use std::time::Instant;
 
-use tempora::State;
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::linalg::{LinearSolver, SparseCholesky};
-use tempora::params::AlphaParams;
-use tempora::run::{Flow, Record, RecordOptions, RunOptions, StepControl, run};
+use stepgauge::State;
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::{LinearSolver, SparseCholesky};
+use stepgauge::params::AlphaParams;
+use stepgauge::run::{Flow, Record, RecordOptions, RunOptions, StepControl, run};
 
 use model::Strip;
 use solver::{BandedCholesky, JacobiCg};
@@ -44,7 +44,7 @@ pub const CG_TOLERANCE: f64 = 1e-12;
 pub fn simulate(
     strip: &Strip,
     solver: Box<dyn LinearSolver>,
-) -> Result<(Record, f64), tempora::Error> {
+) -> Result<(Record, f64), stepgauge::Error> {
     let mut model = strip.model()?;
     let n = strip.dofs();
     let mut state = State::at_rest(n, 0.0);

@@ -1,5 +1,5 @@
 //! The scenario of the `own_solver` example: a tensioned membrane strip under a pressure
-//! pulse, as a tempora `LinearModel`. No I/O here, so that `tests/example_own_solver.rs` can
+//! pulse, as a stepgauge `LinearModel`. No I/O here, so that `tests/example_own_solver.rs` can
 //! include this file with `#[path]`.
 //!
 //! All dimensions, materials and the load are invented for this example: a strip 6 m long and
@@ -17,7 +17,7 @@
 //! them (reverse Cuthill-McKee) to a band of about the number across.
 
 use sprs::TriMat;
-use tempora::model::{LinearModel, Load, TimeFunction};
+use stepgauge::model::{LinearModel, Load, TimeFunction};
 
 /// The invented scenario.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -162,7 +162,7 @@ impl Strip {
     ///
     /// # Errors
     /// From [`LinearModel`]'s constructors (none for a valid strip).
-    pub fn model(&self) -> tempora::Result<LinearModel> {
+    pub fn model(&self) -> stepgauge::Result<LinearModel> {
         let n = self.dofs();
         let (hx, hy) = (self.length / self.nx as f64, self.width / self.ny as f64);
         let (ke, me) = self.element(hx, hy);

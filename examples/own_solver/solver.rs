@@ -1,4 +1,4 @@
-//! A user-written linear solver for tempora's `LinearSolver` seam: a banded Cholesky
+//! A user-written linear solver for stepgauge's `LinearSolver` seam: a banded Cholesky
 //! factorisation `P A P^T = L L^T` on the band left by a reverse Cuthill-McKee ordering `P`.
 //!
 //! No I/O here, so that `tests/example_own_solver.rs` can include this file with `#[path]`.
@@ -24,8 +24,8 @@
 //! pseudo-peripheral node as in George & Liu (1981), *Computer Solution of Large Sparse
 //! Positive Definite Systems*, ch. 4.
 
-use tempora::Error;
-use tempora::linalg::{
+use stepgauge::Error;
+use stepgauge::linalg::{
     CsrMatrix, LinearSolver, PIVOT_LOSS_FACTOR, SYMMETRY_TOLERANCE, SolveInfo, check_rhs,
 };
 
@@ -178,7 +178,7 @@ fn bandwidth(a: &CsrMatrix, iperm: impl Fn(usize) -> usize) -> usize {
 }
 
 impl LinearSolver for BandedCholesky {
-    fn analyze(&mut self, a: &CsrMatrix) -> tempora::Result<()> {
+    fn analyze(&mut self, a: &CsrMatrix) -> stepgauge::Result<()> {
         self.analysis = None;
         self.factored = false;
         let n = a.nrows();
@@ -260,7 +260,7 @@ impl LinearSolver for BandedCholesky {
         Ok(())
     }
 
-    fn factor(&mut self, a: &CsrMatrix) -> tempora::Result<()> {
+    fn factor(&mut self, a: &CsrMatrix) -> stepgauge::Result<()> {
         self.factored = false;
         let an = self.analysis.as_ref().ok_or(Error::SolverNotReady {
             solver: NAME,
@@ -350,7 +350,7 @@ impl LinearSolver for BandedCholesky {
         Ok(())
     }
 
-    fn solve_in_place(&mut self, rhs: &mut [f64]) -> tempora::Result<SolveInfo> {
+    fn solve_in_place(&mut self, rhs: &mut [f64]) -> stepgauge::Result<SolveInfo> {
         let an = self.analysis.as_ref().ok_or(Error::SolverNotReady {
             solver: NAME,
             missing: "analyze",
@@ -460,7 +460,7 @@ fn dot(a: &[f64], b: &[f64]) -> f64 {
 }
 
 impl LinearSolver for JacobiCg {
-    fn analyze(&mut self, a: &CsrMatrix) -> tempora::Result<()> {
+    fn analyze(&mut self, a: &CsrMatrix) -> stepgauge::Result<()> {
         self.factored = false;
         self.matrix = None;
         if a.ncols() != a.nrows() {
@@ -486,7 +486,7 @@ impl LinearSolver for JacobiCg {
         Ok(())
     }
 
-    fn factor(&mut self, a: &CsrMatrix) -> tempora::Result<()> {
+    fn factor(&mut self, a: &CsrMatrix) -> stepgauge::Result<()> {
         self.factored = false;
         let m = self.matrix.as_mut().ok_or(Error::SolverNotReady {
             solver: CG_NAME,
@@ -514,7 +514,7 @@ impl LinearSolver for JacobiCg {
         Ok(())
     }
 
-    fn solve_in_place(&mut self, rhs: &mut [f64]) -> tempora::Result<SolveInfo> {
+    fn solve_in_place(&mut self, rhs: &mut [f64]) -> stepgauge::Result<SolveInfo> {
         let a = match (&self.matrix, self.factored) {
             (Some(a), true) => a,
             (None, _) => {
@@ -532,7 +532,7 @@ impl LinearSolver for JacobiCg {
         };
         let n = a.nrows();
         check_rhs(rhs, n)?;
-        let par = tempora::linalg::Parallelism::serial();
+        let par = stepgauge::linalg::Parallelism::serial();
         let b_norm = dot(rhs, rhs).sqrt();
         self.x.fill(0.0);
         if b_norm == 0.0 {

@@ -1,10 +1,10 @@
-//! `tempora check`: the verdict on one parameter set, against an optional model and step.
+//! `stepgauge check`: the verdict on one parameter set, against an optional model and step.
 
 use std::path::PathBuf;
 
 use clap::Args;
 use serde::Serialize;
-use tempora::spectral::{CheckContext, Parameters, Stability, Verdict, check, sweep};
+use stepgauge::spectral::{CheckContext, Parameters, Stability, Verdict, check, sweep};
 
 use super::output::{FormatArgs, csv_field, csv_num, plain, print_stdout, write_plot};
 use super::plot::{Series, spectrum_svg};
@@ -48,16 +48,16 @@ Output: text by default; --json prints one object with at least {\"scheme\": str
 \"dt_accuracy\" and \"period_error_at_interest\" (null where not asked or none). --csv prints
 a header row and one data row with the same fields (reasons joined by \" | \"). --plot
 FILE.svg also writes the scheme's spectral radius, damping ratio and period error against
-Omega (range options as for `tempora spectrum`).";
+Omega (range options as for `stepgauge spectrum`).";
 
 pub(super) const AFTER_HELP: &str = "\
 Examples:
-  tempora check                                    average acceleration (the default)
-  tempora check --scheme hht --alpha -0.1 --json
-  tempora check --scheme central-difference --xi 0.05 --max-frequency 2000 --dt 0.001
-  tempora check --scheme newmark --beta 0 --xi 0.1
-  tempora check --scheme generalized-alpha --rho-inf 0.8 --frequency-of-interest 60 --dt 0.002
-  tempora check --scheme wbz --rho-inf 0.8 --plot wbz.svg
+  stepgauge check                                    average acceleration (the default)
+  stepgauge check --scheme hht --alpha -0.1 --json
+  stepgauge check --scheme central-difference --xi 0.05 --max-frequency 2000 --dt 0.001
+  stepgauge check --scheme newmark --beta 0 --xi 0.1
+  stepgauge check --scheme generalized-alpha --rho-inf 0.8 --frequency-of-interest 60 --dt 0.002
+  stepgauge check --scheme wbz --rho-inf 0.8 --plot wbz.svg
 
 Exit status:
   0  stable: unconditionally, or conditionally with no --dt/--max-frequency given, or with
@@ -67,7 +67,7 @@ Exit status:
   3  conditionally stable, and --dt exceeds the stable limit for --max-frequency
   4  unstable for every step";
 
-/// Options of `tempora check`.
+/// Options of `stepgauge check`.
 #[derive(Debug, Clone, Args)]
 pub struct CheckArgs {
     #[command(flatten, next_help_heading = "Scheme")]
@@ -155,7 +155,7 @@ fn omega_crit(s: Stability) -> Option<f64> {
     }
 }
 
-/// Runs `tempora check`; returns the exit status.
+/// Runs `stepgauge check`; returns the exit status.
 pub fn run(args: &CheckArgs) -> Result<u8, Failure> {
     let xi = args.scheme.xi()?;
     let chosen = args.scheme.resolve()?;

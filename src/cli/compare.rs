@@ -1,5 +1,5 @@
-//! `tempora compare`: schemes against the exact solutions of the built-in reference problems
-//! (`tempora::reference`), over a sequence of steps: the largest error of the observed DOF, the
+//! `stepgauge compare`: schemes against the exact solutions of the built-in reference problems
+//! (`stepgauge::reference`), over a sequence of steps: the largest error of the observed DOF, the
 //! measured order between successive steps and the cost.
 
 use std::path::{Path, PathBuf};
@@ -8,16 +8,16 @@ use std::time::Instant;
 use clap::Args;
 use plotters::prelude::*;
 use serde::Serialize;
-use tempora::implicit::NewtonOptions;
-use tempora::reference::{self, ReferenceProblem, study};
-use tempora::spectral::Scheme;
+use stepgauge::implicit::NewtonOptions;
+use stepgauge::reference::{self, ReferenceProblem, study};
+use stepgauge::spectral::Scheme;
 
 use super::Failure;
 use super::output::{FormatArgs, csv_field, csv_num, print_stdout, table_num, write_plot};
 use super::plot::COLOURS;
 use super::scheme_args::{Labelled, SchemeArgs, standard_sets};
 
-/// Long help of `tempora compare`.
+/// Long help of `stepgauge compare`.
 pub const LONG_ABOUT: &str = "\
 Runs one scheme (the scheme options) or the six standard sets (--standard-sets) on the built-in
 reference problems (all, or those named by --problem) for a sequence of steps, and prints for
@@ -31,14 +31,14 @@ bar) runs to t_end in at most 500 coarse steps, with a larger dt0 when needed. E
 times (for the hardening oscillator only at the rows of its table). Steps above an explicit
 scheme's stable limit are skipped and marked so.";
 
-/// Examples of `tempora compare`.
+/// Examples of `stepgauge compare`.
 pub const AFTER_HELP: &str = "\
 Examples:
-  tempora compare                                       average acceleration, every problem
-  tempora compare --standard-sets --problem two-dof-step
-  tempora compare --scheme central-difference --problem sdof-free-undamped --json
-  tempora compare --scheme hht --alpha -0.1 --dt 0.1,0.05,0.025 --csv
-  tempora compare --standard-sets --plot figures/";
+  stepgauge compare                                       average acceleration, every problem
+  stepgauge compare --standard-sets --problem two-dof-step
+  stepgauge compare --scheme central-difference --problem sdof-free-undamped --json
+  stepgauge compare --scheme hht --alpha -0.1 --dt 0.1,0.05,0.025 --csv
+  stepgauge compare --standard-sets --plot figures/";
 
 /// Coarse steps at most, per problem (keeps the default run fast).
 pub const MAX_COARSE_STEPS: usize = 400;
@@ -48,7 +48,7 @@ pub const MAX_COARSE_STEPS_NON_SMOOTH: usize = 500;
 /// Halvings of the default step sequence.
 pub const DEFAULT_HALVINGS: u32 = 4;
 
-/// The options of `tempora compare`.
+/// The options of `stepgauge compare`.
 #[derive(Debug, Clone, Args)]
 pub struct CompareArgs {
     #[command(flatten)]
@@ -115,7 +115,7 @@ pub struct Study {
     pub history: Vec<(f64, f64)>,
 }
 
-/// Runs `tempora compare`.
+/// Runs `stepgauge compare`.
 pub fn run(args: &CompareArgs) -> Result<(), Failure> {
     let schemes = chosen_schemes(args)?;
     let problems = chosen_problems(&args.problems)?;

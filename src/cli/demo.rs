@@ -1,13 +1,13 @@
-//! The built-in demonstration, run by `tempora` with no arguments (or `tempora demo`): the
+//! The built-in demonstration, run by `stepgauge` with no arguments (or `stepgauge demo`): the
 //! explicit engine on reference problems of our own with known answers, and the stable-step
 //! estimate of a demo model.
 
 use sprs::TriMat;
-use tempora::explicit::stable_step::{self, StableStepOptions};
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
-use tempora::model::{Constraints, LinearModel, TimeFunction};
-use tempora::run::{Flow, RunOptions, StepControl, StopReason, run};
-use tempora::{Error, State};
+use stepgauge::explicit::stable_step::{self, StableStepOptions};
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
+use stepgauge::model::{Constraints, LinearModel, TimeFunction};
+use stepgauge::run::{Flow, RunOptions, StepControl, StopReason, run};
+use stepgauge::{Error, State};
 
 /// Prints one check line and returns whether it passed.
 fn check(label: &str, got: f64, expected: f64, rel_tol: f64) -> bool {
@@ -46,7 +46,9 @@ fn chain(n: usize, mass: f64, k: f64, walls: bool) -> Result<LinearModel, Error>
 /// Runs the demonstration; `Ok(false)` when a check fails.
 pub fn demo() -> Result<bool, Error> {
     let mut ok = true;
-    println!("tempora demonstration: explicit central difference on problems with known answers\n");
+    println!(
+        "stepgauge demonstration: explicit central difference on problems with known answers\n"
+    );
 
     // 1. Dispersion of the undamped oscillator: omega_bar dt = 2 asin(omega dt / 2).
     println!("1. Single oscillator, omega dt = 1.5: discrete frequency (Hughes 1987, sec. 9.3)");
@@ -183,10 +185,10 @@ pub fn demo() -> Result<bool, Error> {
 /// R = [0, 10]; Bathe, *Finite Element Procedures*, 1996, example 9.1) against its exact modal
 /// solution, and the high-frequency filtering of a stiff spurious mode.
 fn implicit_demo() -> Result<bool, Error> {
-    use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-    use tempora::linalg::SparseCholesky;
-    use tempora::model::Load;
-    use tempora::params::AlphaParams;
+    use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+    use stepgauge::linalg::SparseCholesky;
+    use stepgauge::model::Load;
+    use stepgauge::params::AlphaParams;
     let mut ok = true;
     println!(
         "\n4. Implicit engine: two-DOF step load (Bathe 1996, example 9.1), 12 steps of 0.28 s"
@@ -256,9 +258,9 @@ fn implicit_demo() -> Result<bool, Error> {
 
 /// The pre-run check of the standard parameter sets.
 fn spectral_demo() -> Result<bool, Error> {
-    use tempora::explicit::ForceVelocity;
-    use tempora::params::AlphaParams;
-    use tempora::spectral::{CheckContext, Scheme, Stability, check};
+    use stepgauge::explicit::ForceVelocity;
+    use stepgauge::params::AlphaParams;
+    use stepgauge::spectral::{CheckContext, Scheme, Stability, check};
     println!("\n5. Stability and accuracy of the standard parameter sets (xi = 0)");
     println!(
         "  {:<34} {:>16} {:>10} {:>6} {:>12}",

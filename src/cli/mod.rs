@@ -1,7 +1,7 @@
 //! The command line: argument definitions (clap), dispatch, exit statuses and one-line errors.
 //!
 //! The library knows nothing of this module; everything here turns options into library calls
-//! ([`tempora::spectral`], [`tempora::params`]) and their results into text, JSON, CSV or SVG.
+//! ([`stepgauge::spectral`], [`stepgauge::params`]) and their results into text, JSON, CSV or SVG.
 
 mod check;
 mod compare;
@@ -33,13 +33,13 @@ pub const EXIT_STEP_TOO_LARGE: u8 = 3;
 pub const EXIT_UNSTABLE: u8 = 4;
 
 const LONG_ABOUT: &str = "\
-tempora: time integration for structural dynamics.
+stepgauge: time integration for structural dynamics.
 
-With no arguments, tempora writes its report (tempora report: tempora-report/report.html).
-`tempora demo` runs the demonstration; `tempora compare` runs schemes on the reference problems
-against their exact solutions; `tempora run` integrates a model given as Matrix Market matrices
-and CSV loads, and `tempora timestep` gives its frequency range, stable step and accuracy step.
-`tempora verify` runs the verification suite against outside references.
+With no arguments, stepgauge writes its report (stepgauge report: stepgauge-report/report.html).
+`stepgauge demo` runs the demonstration; `stepgauge compare` runs schemes on the reference problems
+against their exact solutions; `stepgauge run` integrates a model given as Matrix Market matrices
+and CSV loads, and `stepgauge timestep` gives its frequency range, stable step and accuracy step.
+`stepgauge verify` runs the verification suite against outside references.
 The subcommands check and spectrum judge a time-integration
 parameter set before a run, from the amplification matrix of one mode with circular frequency
 omega, step dt and physical damping ratio xi, as a function of Omega = omega dt:
@@ -54,15 +54,15 @@ Results feed decisions that can be safety-relevant: have them checked by a quali
 
 const AFTER_HELP: &str = "\
 Examples:
-  tempora                                       write tempora-report/report.html
-  tempora compare --standard-sets --problem two-dof-step
-  tempora timestep --mass M.mtx --stiffness K.mtx --frequency-of-interest 6.3
-  tempora verify --markdown docs/validation.md  the verification suite; the validation page
-  tempora run --mass M.mtx --stiffness K.mtx --load load.csv --dt 0.01 --t-end 5 --output u.csv
-  tempora check --scheme hht --alpha -0.1       verdict on HHT-alpha with alpha = -0.1
-  tempora check --scheme central-difference --max-frequency 2000 --dt 0.0012
-  tempora spectrum --scheme generalized-alpha --rho-inf 0.8 --points 5
-  tempora spectrum --standard-sets --plot sets.svg
+  stepgauge                                       write stepgauge-report/report.html
+  stepgauge compare --standard-sets --problem two-dof-step
+  stepgauge timestep --mass M.mtx --stiffness K.mtx --frequency-of-interest 6.3
+  stepgauge verify --markdown docs/validation.md  the verification suite; the validation page
+  stepgauge run --mass M.mtx --stiffness K.mtx --load load.csv --dt 0.01 --t-end 5 --output u.csv
+  stepgauge check --scheme hht --alpha -0.1       verdict on HHT-alpha with alpha = -0.1
+  stepgauge check --scheme central-difference --max-frequency 2000 --dt 0.0012
+  stepgauge spectrum --scheme generalized-alpha --rho-inf 0.8 --points 5
+  stepgauge spectrum --standard-sets --plot sets.svg
 
 Exit status:
   0  success; for check: stable (unconditionally, or conditionally with no step given or the
@@ -74,13 +74,13 @@ Exit status:
   3  check: conditionally stable, and --dt exceeds the stable limit for --max-frequency
   4  check: unstable for every step
 
-Run `tempora check --help` or `tempora spectrum --help` for the options; docs/cli.md has a
+Run `stepgauge check --help` or `stepgauge spectrum --help` for the options; docs/cli.md has a
 session with real output.";
 
-/// The `tempora` command line.
+/// The `stepgauge` command line.
 #[derive(Debug, Parser)]
 #[command(
-    name = "tempora",
+    name = "stepgauge",
     version,
     about = "Time integration for structural dynamics: demonstration, stability check and spectra",
     long_about = LONG_ABOUT,
@@ -106,7 +106,7 @@ pub enum Command {
     /// Schemes against the exact solutions of the reference problems over a sequence of steps.
     #[command(long_about = compare::LONG_ABOUT, after_help = compare::AFTER_HELP)]
     Compare(compare::CompareArgs),
-    /// Write the HTML report (the same as `tempora` with no arguments).
+    /// Write the HTML report (the same as `stepgauge` with no arguments).
     #[command(long_about = report::LONG_ABOUT)]
     Report(report::ReportArgs),
     /// Linear transient analysis of a model from Matrix Market and CSV files.
@@ -135,19 +135,19 @@ impl Failure {
             Failure::Usage(m) => (m, EXIT_USAGE),
             Failure::Runtime(m) => (m, EXIT_FAILURE),
         };
-        eprintln!("tempora: {}", one_line(msg));
+        eprintln!("stepgauge: {}", one_line(msg));
         ExitCode::from(code)
     }
 }
 
-impl From<tempora::Error> for Failure {
+impl From<stepgauge::Error> for Failure {
     /// Parameter errors of the library come from the user's options: bad arguments.
     ///
     /// A parameter the command line sets through an option is named by that option
     /// (`omega_max` is `--max-frequency`); other messages are the library's own.
-    fn from(e: tempora::Error) -> Self {
+    fn from(e: stepgauge::Error) -> Self {
         match e {
-            tempora::Error::InvalidParameter {
+            stepgauge::Error::InvalidParameter {
                 name,
                 value,
                 expected,
@@ -157,7 +157,7 @@ impl From<tempora::Error> for Failure {
                 }
                 None => Failure::Usage(e.to_string()),
             },
-            tempora::Error::InvalidStep { .. } => Failure::Usage(e.to_string()),
+            stepgauge::Error::InvalidStep { .. } => Failure::Usage(e.to_string()),
             other => Failure::Runtime(other.to_string()),
         }
     }
@@ -228,7 +228,7 @@ fn run_demo() -> ExitCode {
         Ok(true) => ExitCode::from(EXIT_OK),
         Ok(false) => ExitCode::from(EXIT_FAILURE),
         Err(e) => {
-            eprintln!("tempora: {e}");
+            eprintln!("stepgauge: {e}");
             ExitCode::from(EXIT_FAILURE)
         }
     }
@@ -264,7 +264,7 @@ fn clap_failure(e: &clap::Error) -> ExitCode {
                 msg.push_str(line);
             }
             eprintln!(
-                "tempora: {} (see --help)",
+                "stepgauge: {} (see --help)",
                 one_line(&msg).trim_end_matches('.')
             );
             ExitCode::from(EXIT_USAGE)

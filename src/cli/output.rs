@@ -82,8 +82,8 @@ pub fn print_stdout(text: &str) -> Result<(), Failure> {
     }
 }
 
-/// Writes `contents` to `path` atomically: into a new temporary file in the same directory,
-/// synced, then renamed over `path`. On failure the temporary file is removed and `path` is left
+/// Writes `contents` to `path` atomically: into a new scratch file in the same directory,
+/// synced, then renamed over `path`. On failure the scratch file is removed and `path` is left
 /// as it was.
 pub fn write_atomically(path: &Path, contents: &[u8]) -> io::Result<()> {
     let name = path.file_name().ok_or_else(|| {

@@ -6,7 +6,7 @@
 //! caps, so one explicit scheme's growing spectral radius does not flatten the others.
 
 use plotters::prelude::*;
-use tempora::spectral::Metrics;
+use stepgauge::spectral::Metrics;
 
 use super::Failure;
 

@@ -1,4 +1,4 @@
-//! `tempora report`, also what `tempora` with no arguments does: a self-contained HTML report
+//! `stepgauge report`, also what `stepgauge` with no arguments does: a self-contained HTML report
 //! (inline SVG figures, no external resources) on the standard parameter sets, the reference
 //! problems, the stable step of a demo structure and the demonstration's checks.
 
@@ -9,12 +9,12 @@ use std::time::Instant;
 
 use clap::Args;
 use sprs::TriMat;
-use tempora::State;
-use tempora::explicit::stable_step::{self, StableStepOptions};
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
-use tempora::model::LinearModel;
-use tempora::reference;
-use tempora::spectral::{CheckContext, Stability, check, log_space, metrics, sweep};
+use stepgauge::State;
+use stepgauge::explicit::stable_step::{self, StableStepOptions};
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
+use stepgauge::model::LinearModel;
+use stepgauge::reference;
+use stepgauge::spectral::{CheckContext, Stability, check, log_space, metrics, sweep};
 
 use super::compare;
 use super::output::{plain, table_num, write_atomically};
@@ -22,22 +22,22 @@ use super::plot::{Series, spectrum_svg};
 use super::scheme_args::{Labelled, standard_sets};
 use super::{EXIT_FAILURE, EXIT_OK, Failure};
 
-/// Long help of `tempora report`.
+/// Long help of `stepgauge report`.
 pub const LONG_ABOUT: &str = "\
-Writes report.html into a folder (--output, default tempora-report/): a self-contained page
+Writes report.html into a folder (--output, default stepgauge-report/): a self-contained page
 (figures inline as SVG, no external resources or scripts) with the stability and accuracy of the
 standard parameter sets, their spectra, the reference-problem comparison (errors and measured
 orders), the stable step of a demo steel column, and the output of the demonstration.
 Prints a short summary and the path of the report. Exit status 0 when every internal check
-passes, 1 otherwise. This is what `tempora` with no arguments runs.";
+passes, 1 otherwise. This is what `stepgauge` with no arguments runs.";
 
 /// The default output folder.
-pub const DEFAULT_OUTPUT: &str = "tempora-report";
+pub const DEFAULT_OUTPUT: &str = "stepgauge-report";
 
 /// Halvings in the report's comparison (three: four steps, three measured orders).
 const REPORT_HALVINGS: u32 = 3;
 
-/// The options of `tempora report`.
+/// The options of `stepgauge report`.
 #[derive(Debug, Clone, Args)]
 pub struct ReportArgs {
     /// The folder to write report.html into (created when missing).
@@ -45,7 +45,7 @@ pub struct ReportArgs {
     pub output: PathBuf,
 }
 
-/// `tempora` with no arguments.
+/// `stepgauge` with no arguments.
 pub fn run_default() -> ExitCode {
     let args = ReportArgs {
         output: PathBuf::from(DEFAULT_OUTPUT),
@@ -62,7 +62,7 @@ struct Check {
     ok: bool,
 }
 
-/// Runs `tempora report`; returns the exit status.
+/// Runs `stepgauge report`; returns the exit status.
 pub fn run(args: &ReportArgs) -> Result<u8, Failure> {
     let start = Instant::now();
     let mut checks: Vec<Check> = Vec::new();
@@ -105,7 +105,7 @@ pub fn run(args: &ReportArgs) -> Result<u8, Failure> {
         Failure::Runtime(format!("cannot write the report `{}`: {e}", path.display()))
     })?;
 
-    println!("tempora report");
+    println!("stepgauge report");
     for c in checks.iter().filter(|c| !c.ok) {
         println!("  FAILED: {}", c.what);
     }
@@ -145,7 +145,7 @@ fn inline_svg(svg: &str) -> String {
 fn page(summary: &str, body: &str, seconds: f64) -> String {
     format!(
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
-         <title>tempora report</title>\n<style>\n\
+         <title>stepgauge report</title>\n<style>\n\
          body {{ font-family: sans-serif; max-width: 1100px; margin: 2em auto; padding: 0 1em; }}\n\
          table {{ border-collapse: collapse; margin: 1em 0; font-size: 0.9em; }}\n\
          th, td {{ border: 1px solid #bbb; padding: 0.2em 0.5em; text-align: right; }}\n\
@@ -153,8 +153,8 @@ fn page(summary: &str, body: &str, seconds: f64) -> String {
          li.failed, td.failed {{ color: #b00; font-weight: bold; }}\n\
          pre {{ background: #f4f4f4; padding: 0.8em; overflow-x: auto; font-size: 0.85em; }}\n\
          figure {{ margin: 1em 0; }} svg {{ max-width: 100%; height: auto; }}\n\
-         </style>\n</head>\n<body>\n<h1>tempora report</h1>\n\
-         <p>tempora {}: time integration for structural dynamics. Written by <code>tempora \
+         </style>\n</head>\n<body>\n<h1>stepgauge report</h1>\n\
+         <p>stepgauge {}: time integration for structural dynamics. Written by <code>stepgauge \
          report</code> in {seconds:.1} s. Results feed decisions that can be safety-relevant: \
          have them checked by a qualified engineer.</p>\n\
          <nav><a href=\"#checks\">Checks</a> | <a href=\"#sets\">Standard sets</a> | \
@@ -182,7 +182,7 @@ fn section_sets(
     body.push_str(
         "<h2 id=\"sets\">Stability and accuracy of the standard parameter sets</h2>\n\
          <p>Undamped mode (xi = 0); Omega = omega dt. Period error is the relative error of the \
-         numerical period, damping the algorithmic damping ratio (tempora check).</p>\n<table>\n\
+         numerical period, damping the algorithmic damping ratio (stepgauge check).</p>\n<table>\n\
          <tr><th>parameter set</th><th>verdict</th><th>Omega_crit</th><th>rho_inf</th>\
          <th>order</th><th>dissipative</th><th>period error at 0.1</th><th>damping at 0.1</th>\
          <th>period error at 1</th><th>damping at 1</th></tr>\n",
@@ -241,7 +241,7 @@ fn section_spectra(body: &mut String, sets: &[Labelled]) -> Result<(), Failure> 
         body,
         "<h2 id=\"spectra\">Spectra of the standard parameter sets</h2>\n\
          <p>Spectral radius, algorithmic damping ratio and relative period error against Omega \
-         (200 points from 0.01 to 10, xi = 0; tempora spectrum --standard-sets).</p>\n\
+         (200 points from 0.01 to 10, xi = 0; stepgauge spectrum --standard-sets).</p>\n\
          <figure>{}</figure>",
         inline_svg(&svg)
     );
@@ -266,7 +266,7 @@ fn section_reference(body: &mut String, checks: &mut Vec<Check>) -> Result<(), F
         "<h2 id=\"reference\">Reference problems</h2>\n\
          <p>Largest error of the observed DOF against the exact solution over the run, for dt0 = \
          T_min / 20 (0.02 s for the hardening oscillator) and {REPORT_HALVINGS} halvings; \
-         measured order log2(e(dt) / e(dt/2)) between successive steps (tempora compare). \
+         measured order log2(e(dt) / e(dt/2)) between successive steps (stepgauge compare). \
          Smooth problems stop at t_end or {} coarse steps; non-smooth ones (pulse kink, impact \
          front) run to t_end in at most {} coarse steps and cannot show the full order.</p>\n<table>\n<tr><th>problem</th><th>scheme</th>\
          <th>smooth</th><th>dt0 (s)</th><th>error at dt0</th><th>error at finest</th>\
@@ -377,7 +377,7 @@ impl Column {
     }
 
     /// Lumped-mass linear model; DOF i is node i + 1 (node 0 is the fixed base).
-    fn model(&self) -> Result<LinearModel, tempora::Error> {
+    fn model(&self) -> Result<LinearModel, stepgauge::Error> {
         let n = self.lengths.len();
         let mut m = vec![0.0; n + 1];
         let mut k = TriMat::new((n, n));
@@ -488,10 +488,10 @@ fn est_products(est: &stable_step::StableStep) -> String {
     format!("{:?}", est.method)
 }
 
-/// The demonstration (`tempora demo`), run as a child process so that its output is captured.
+/// The demonstration (`stepgauge demo`), run as a child process so that its output is captured.
 fn section_demo(body: &mut String, checks: &mut Vec<Check>) -> Result<(), Failure> {
     let exe = std::env::current_exe()
-        .map_err(|e| Failure::Runtime(format!("cannot find the tempora executable: {e}")))?;
+        .map_err(|e| Failure::Runtime(format!("cannot find the stepgauge executable: {e}")))?;
     let out = std::process::Command::new(exe)
         .arg("demo")
         .output()
@@ -500,7 +500,7 @@ fn section_demo(body: &mut String, checks: &mut Vec<Check>) -> Result<(), Failur
     let err = String::from_utf8_lossy(&out.stderr);
     let _ = writeln!(
         body,
-        "<h2 id=\"demo\">Demonstration</h2>\n<p>The output of <code>tempora demo</code> (exit \
+        "<h2 id=\"demo\">Demonstration</h2>\n<p>The output of <code>stepgauge demo</code> (exit \
          status {}): the explicit and implicit engines on problems with known answers.</p>\n\
          <pre>{}{}</pre>",
         out.status

@@ -1,6 +1,6 @@
-//! `tempora run`: a linear transient analysis of a model read from Matrix Market and CSV files.
+//! `stepgauge run`: a linear transient analysis of a model read from Matrix Market and CSV files.
 //!
-//! The step loop is the command's own (not [`tempora::run::run`]) so that a run resumed from a
+//! The step loop is the command's own (not [`stepgauge::run::run`]) so that a run resumed from a
 //! checkpoint takes exactly the steps of the uninterrupted run: a fixed step `dt`, the time
 //! advanced by the integrator (`t += dt`), a step within a relative `1e-9` of the time left taken
 //! in full (so an end time on the step grid is reached without a shortened step), and only a
@@ -15,20 +15,20 @@ use std::time::{Duration, Instant};
 use clap::Args;
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use sprs::CsMat;
-use tempora::State;
-use tempora::energy::EnergyLedger;
-use tempora::explicit::{CentralDifference, CentralDifferenceOptions};
-use tempora::implicit::{AlphaIntegrator, ImplicitOptions};
-use tempora::io::{self, Checkpoint};
-use tempora::linalg::SparseCholesky;
-use tempora::model::{Constraints, Damping, LinearModel, Load};
-use tempora::run::{EnergySample, Integrator, Record};
-use tempora::spectral::Scheme;
+use stepgauge::State;
+use stepgauge::energy::EnergyLedger;
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::io::{self, Checkpoint};
+use stepgauge::linalg::SparseCholesky;
+use stepgauge::model::{Constraints, Damping, LinearModel, Load};
+use stepgauge::run::{EnergySample, Integrator, Record};
+use stepgauge::spectral::Scheme;
 
 use super::Failure;
 use super::scheme_args::{Labelled, SchemeArgs};
 
-/// Long help of `tempora run`.
+/// Long help of `stepgauge run`.
 pub const LONG_ABOUT: &str = "\
 Linear transient analysis: M a + C v + K u = f(t), from matrices in Matrix Market files and a
 load table in CSV, with the central difference (explicit, lumped mass) or a member of the
@@ -44,14 +44,14 @@ with another scheme or step is refused.
 The step is fixed and the times of the steps are n dt (to 15 significant digits); the last step
 is shortened to land on --t-end exactly when --t-end is not on the step grid. --t-end is an absolute time, also after --resume.";
 
-/// Examples and exit statuses of `tempora run`.
+/// Examples and exit statuses of `stepgauge run`.
 pub const AFTER_HELP: &str = "\
 Examples:
-  tempora run --mass M.mtx --stiffness K.mtx --load F.csv --dt 0.01 --t-end 2 --output u.csv
-  tempora run --mass M.mtx --stiffness K.mtx --scheme central-difference --dt auto --t-end 1 \\
+  stepgauge run --mass M.mtx --stiffness K.mtx --load F.csv --dt 0.01 --t-end 2 --output u.csv
+  stepgauge run --mass M.mtx --stiffness K.mtx --scheme central-difference --dt auto --t-end 1 \\
               --rayleigh-modes 1,0.02,10,0.02 --record 3,7 --output u.csv --energy e.csv
-  tempora run ... --t-end 1 --checkpoint run.ckpt --checkpoint-every 1000 --output a.csv
-  tempora run ... --t-end 2 --resume run.ckpt --output b.csv
+  stepgauge run ... --t-end 1 --checkpoint run.ckpt --checkpoint-every 1000 --output a.csv
+  stepgauge run ... --t-end 2 --resume run.ckpt --output b.csv
 
 Exit status:
   0  the run reached --t-end
@@ -60,7 +60,7 @@ Exit status:
      --checkpoint is given
   2  bad arguments or input files (one line on standard error)";
 
-/// The options of `tempora run`.
+/// The options of `stepgauge run`.
 #[derive(Debug, Clone, Args)]
 pub struct RunArgs {
     /// Mass matrix (Matrix Market coordinate file).
@@ -130,7 +130,7 @@ pub struct RunArgs {
     /// Steps between checkpoints [default: only at the end].
     #[arg(long, value_name = "N", requires = "checkpoint")]
     pub checkpoint_every: Option<u64>,
-    /// Continue from a checkpoint written by `tempora run --checkpoint` with the same model,
+    /// Continue from a checkpoint written by `stepgauge run --checkpoint` with the same model,
     /// scheme and step.
     #[arg(long, value_name = "FILE")]
     pub resume: Option<PathBuf>,
@@ -140,7 +140,7 @@ pub struct RunArgs {
 }
 
 /// A usage failure from a library error (input files, sizes, parameters).
-fn usage(e: tempora::Error) -> Failure {
+fn usage(e: stepgauge::Error) -> Failure {
     match Failure::from(e) {
         Failure::Runtime(m) | Failure::Usage(m) => Failure::Usage(m),
     }
@@ -229,7 +229,12 @@ enum Engine {
 }
 
 impl Engine {
-    fn step(&mut self, model: &mut LinearModel, state: &mut State, dt: f64) -> tempora::Result<()> {
+    fn step(
+        &mut self,
+        model: &mut LinearModel,
+        state: &mut State,
+        dt: f64,
+    ) -> stepgauge::Result<()> {
         match self {
             Engine::Explicit(cd) => Integrator::step(cd.as_mut(), model, state, dt).map(|_| ()),
             Engine::Implicit(it) => Integrator::step(it.as_mut(), model, state, dt).map(|_| ()),
@@ -374,7 +379,7 @@ fn build_engine(
                     return Err(Failure::Usage(format!(
                         "--dt auto is for --scheme central-difference only; {} is implicit \
                          (unconditionally stable or not, its step is an accuracy choice): give \
-                         --dt, e.g. from `tempora timestep --frequency-of-interest`",
+                         --dt, e.g. from `stepgauge timestep --frequency-of-interest`",
                         scheme.label
                     )));
                 }
@@ -436,7 +441,7 @@ impl Recorder {
     }
 }
 
-/// Runs `tempora run`; `Ok(true)` when the run reached the end time, `Ok(false)` when it failed
+/// Runs `stepgauge run`; `Ok(true)` when the run reached the end time, `Ok(false)` when it failed
 /// mid-way (history written, error printed).
 pub fn run(args: &RunArgs) -> Result<bool, Failure> {
     let wall = Instant::now();
@@ -475,7 +480,7 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
         ));
     }
     let mut model = build_model(args)?;
-    let n = tempora::model::Model::dofs(&model);
+    let n = stepgauge::model::Model::dofs(&model);
     let dofs = match &args.record {
         Some(s) => parse_dofs("--record", s, n)?,
         None => (0..n).collect(),
@@ -550,7 +555,7 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
     let mut steps = 0u64;
     let mut iterations = 0usize;
     let mut max_balance = engine.energy().relative_balance_error();
-    let mut failure: Option<tempora::Error> = None;
+    let mut failure: Option<stepgauge::Error> = None;
     let mut last_drawn = Instant::now();
     let mut bar_on = false;
     // Times on the step grid are `step * dt` rounded to 15 significant digits (not a running
@@ -619,7 +624,7 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
     }
     if !args.quiet {
         let mut summary = format!(
-            "tempora run: {} from t = {t_start} to {} in {steps} steps of dt = {dt:e}, wall time \
+            "stepgauge run: {} from t = {t_start} to {} in {steps} steps of dt = {dt:e}, wall time \
              {:.3} s, max relative energy-balance error {max_balance:.3e}",
             scheme.label,
             state.t,
@@ -634,7 +639,7 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
         None => Ok(true),
         Some(e) => {
             eprintln!(
-                "tempora: the run failed at t = {} after step {}: {}; the history up to the \
+                "stepgauge: the run failed at t = {} after step {}: {}; the history up to the \
                  failure is in {}",
                 state.t,
                 state.step,

@@ -1,16 +1,16 @@
 //! The scheme options shared by `check` and `spectrum`, turned into a library [`Scheme`].
 
 use clap::{Args, ValueEnum};
-use tempora::explicit::ForceVelocity;
-use tempora::params::AlphaParams;
-use tempora::spectral::Scheme;
+use stepgauge::explicit::ForceVelocity;
+use stepgauge::params::AlphaParams;
+use stepgauge::spectral::Scheme;
 
 use super::Failure;
 
 /// The schemes the command line knows.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum SchemeKind {
-    /// Central difference on a lumped mass, as tempora's explicit engine steps it.
+    /// Central difference on a lumped mass, as stepgauge's explicit engine steps it.
     CentralDifference,
     /// Newmark-beta (--beta, --gamma; defaults 1/4, 1/2; --beta 0 is explicit Newmark).
     Newmark,
@@ -128,7 +128,7 @@ impl SchemeArgs {
         if xi.is_finite() && xi >= 0.0 {
             Ok(xi)
         } else {
-            Err(tempora::Error::InvalidParameter {
+            Err(stepgauge::Error::InvalidParameter {
                 name: "xi",
                 value: xi,
                 expected: "a non-negative, finite damping ratio",

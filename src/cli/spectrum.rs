@@ -1,11 +1,11 @@
-//! `tempora spectrum`: spectral radius, algorithmic damping ratio and relative period error of
+//! `stepgauge spectrum`: spectral radius, algorithmic damping ratio and relative period error of
 //! one or more schemes against `Omega = omega dt`.
 
 use std::path::PathBuf;
 
 use clap::Args;
 use serde::Serialize;
-use tempora::spectral::{Metrics, Parameters, log_space, sweep};
+use stepgauge::spectral::{Metrics, Parameters, log_space, sweep};
 
 use super::Failure;
 use super::output::{FormatArgs, csv_field, csv_num, print_stdout, table_num, write_plot};
@@ -23,7 +23,7 @@ with physical damping ratio xi.
   period error     Omega / Omega_bar - 1 (positive: the computed period is too long); '-'
                    (null) where the principal roots are real
 
-One scheme: choose it with the scheme options (as for `tempora check`). Several:
+One scheme: choose it with the scheme options (as for `stepgauge check`). Several:
 --standard-sets adds six standard sets, in this order: average acceleration, linear
 acceleration, HHT alpha = -0.1, WBZ rho_inf = 0.8, generalised-alpha rho_inf = 0.8 and the
 central difference (lagged damping velocity). If scheme options are given as well, that scheme
@@ -46,12 +46,12 @@ round-trip precision.";
 
 pub(super) const AFTER_HELP: &str = "\
 Examples:
-  tempora spectrum --scheme hht --alpha -0.1 --points 5
-  tempora spectrum --scheme central-difference --omega 0.5,1,2,2.5 --json
-  tempora spectrum --scheme generalized-alpha --rho-inf 0.6 --csv > ga.csv
-  tempora spectrum --scheme hht --alpha -0.1 --plot hht.svg
-  tempora spectrum --standard-sets --omega-max 100 --plot sets.svg
-  tempora spectrum --standard-sets --scheme wbz --alpha-m -0.2 --plot mine.svg
+  stepgauge spectrum --scheme hht --alpha -0.1 --points 5
+  stepgauge spectrum --scheme central-difference --omega 0.5,1,2,2.5 --json
+  stepgauge spectrum --scheme generalized-alpha --rho-inf 0.6 --csv > ga.csv
+  stepgauge spectrum --scheme hht --alpha -0.1 --plot hht.svg
+  stepgauge spectrum --standard-sets --omega-max 100 --plot sets.svg
+  stepgauge spectrum --standard-sets --scheme wbz --alpha-m -0.2 --plot mine.svg
 
 Exit status: 0 on success, 1 when the plot or standard output cannot be written, 2 for bad
 arguments (one line on standard error).";
@@ -136,7 +136,7 @@ impl OmegaArgs {
     }
 }
 
-/// Options of `tempora spectrum`.
+/// Options of `stepgauge spectrum`.
 #[derive(Debug, Clone, Args)]
 pub struct SpectrumArgs {
     #[command(flatten, next_help_heading = "Scheme")]
@@ -190,7 +190,7 @@ fn to_json<'a>(s: &'a Labelled, xi: f64, points: &[Metrics]) -> SpectrumJson<'a>
     }
 }
 
-/// Runs `tempora spectrum`.
+/// Runs `stepgauge spectrum`.
 pub fn run(args: &SpectrumArgs) -> Result<(), Failure> {
     let xi = args.scheme.xi()?;
     let mut schemes = Vec::new();

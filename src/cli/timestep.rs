@@ -1,6 +1,6 @@
-//! `tempora timestep`: the frequency range of a model and the steps it allows.
+//! `stepgauge timestep`: the frequency range of a model and the steps it allows.
 //!
-//! * `omega_max` comes from [`tempora::explicit::stable_step::estimate`] on the
+//! * `omega_max` comes from [`stepgauge::explicit::stable_step::estimate`] on the
 //!   [`LinearModel`]: the highest frequency of the lumped-mass model, the one the central
 //!   difference steps (Lanczos on `M_lumped^-1 K` over the free DOFs). For a diagonal mass it is
 //!   the model's highest frequency.
@@ -15,11 +15,11 @@ use clap::Args;
 use nalgebra::DMatrix;
 use serde_json::json;
 use sprs::{CsMat, TriMat};
-use tempora::State;
-use tempora::explicit::stable_step::{StableStepOptions, critical_step, estimate};
-use tempora::linalg::{CsrMatrix, LinearSolver, SparseCholesky};
-use tempora::model::{Constraints, LinearModel};
-use tempora::spectral::largest_step_for_period_error;
+use stepgauge::State;
+use stepgauge::explicit::stable_step::{StableStepOptions, critical_step, estimate};
+use stepgauge::linalg::{CsrMatrix, LinearSolver, SparseCholesky};
+use stepgauge::model::{Constraints, LinearModel};
+use stepgauge::spectral::largest_step_for_period_error;
 
 use super::Failure;
 use super::output::{print_stdout, table_num};
@@ -29,7 +29,7 @@ use super::scheme_args::SchemeArgs;
 /// Largest number of free DOFs for the dense eigen-solve of `omega_min`.
 pub const DENSE_LIMIT: usize = 300;
 
-/// Long help of `tempora timestep`.
+/// Long help of `stepgauge timestep`.
 pub const LONG_ABOUT: &str = "\
 The frequency range of a model and the time steps it allows, from its mass and stiffness
 matrices (Matrix Market files), with the DOFs of --fix removed:
@@ -47,17 +47,17 @@ matrices (Matrix Market files), with the DOFs of --fix removed:
                          chosen scheme (the scheme options, default average acceleration) keeps
                          the relative period error at that frequency under --period-error.";
 
-/// Examples of `tempora timestep`.
+/// Examples of `stepgauge timestep`.
 pub const AFTER_HELP: &str = "\
 Examples:
-  tempora timestep --mass M.mtx --stiffness K.mtx --fix 0,49
-  tempora timestep --mass M.mtx --stiffness K.mtx --xi 0.05 --scheme hht --alpha -0.1 \\
+  stepgauge timestep --mass M.mtx --stiffness K.mtx --fix 0,49
+  stepgauge timestep --mass M.mtx --stiffness K.mtx --xi 0.05 --scheme hht --alpha -0.1 \\
                    --frequency-of-interest 62.8 --json
 
 Exit status: 0 success; 1 standard output could not be written or an eigen-solve failed;
 2 bad arguments or input files (one line on standard error).";
 
-/// The options of `tempora timestep`.
+/// The options of `stepgauge timestep`.
 #[derive(Debug, Clone, Args)]
 pub struct TimestepArgs {
     /// Mass matrix (Matrix Market coordinate file).
@@ -88,7 +88,7 @@ pub struct TimestepArgs {
     pub json: bool,
 }
 
-fn usage(e: tempora::Error) -> Failure {
+fn usage(e: stepgauge::Error) -> Failure {
     match Failure::from(e) {
         Failure::Runtime(m) | Failure::Usage(m) => Failure::Usage(m),
     }
@@ -183,7 +183,7 @@ fn lambda_min_inverse_iteration(m: &CsMat<f64>, k: &CsMat<f64>) -> Result<Lambda
     chol.analyze(&kc).map_err(usage)?;
     if let Err(e) = chol.factor(&kc) {
         return match e {
-            tempora::Error::NotPositiveDefinite { .. } => finish(0.0, 1.0, METHOD),
+            stepgauge::Error::NotPositiveDefinite { .. } => finish(0.0, 1.0, METHOD),
             other => Err(usage(other)),
         };
     }
@@ -221,7 +221,7 @@ fn lambda_min_inverse_iteration(m: &CsMat<f64>, k: &CsMat<f64>) -> Result<Lambda
     })
 }
 
-/// Runs `tempora timestep`.
+/// Runs `stepgauge timestep`.
 pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
     let scheme = args.scheme.resolve()?;
     let xi = args.scheme.xi()?;

@@ -1,30 +1,30 @@
-//! `tempora verify`: runs the verification suite ([`tempora::verification`]) and prints its
+//! `stepgauge verify`: runs the verification suite ([`stepgauge::verification`]) and prints its
 //! checks, or writes them as `docs/validation.md`.
 
 use std::path::PathBuf;
 
 use clap::{Args, ValueEnum};
-use tempora::verification::{self, Check, Kind};
+use stepgauge::verification::{self, Check, Kind};
 
 use super::Failure;
 use super::output::{FormatArgs, csv_field, print_stdout, write_atomically};
 
-/// Long help of `tempora verify`.
+/// Long help of `stepgauge verify`.
 pub const LONG_ABOUT: &str = "\
-Runs the verification suite: tempora's results against outside references (published worked
+Runs the verification suite: stepgauge's results against outside references (published worked
 examples, closed forms from papers and textbooks, independent SciPy computations committed under
 tests/data/, and theoretical orders of accuracy), and prints each check with its source,
 tolerance, result and status. --markdown writes the same as the page docs/validation.md.
 
 Exit status 0 when every check passes, 1 when one fails (or a file cannot be written).";
 
-/// Examples of `tempora verify`.
+/// Examples of `stepgauge verify`.
 pub const AFTER_HELP: &str = "\
 Examples:
-  tempora verify                                   every check, as a table
-  tempora verify --kind published --kind closed-form
-  tempora verify --json
-  tempora verify --markdown docs/validation.md     regenerate the validation page";
+  stepgauge verify                                   every check, as a table
+  stepgauge verify --kind published --kind closed-form
+  stepgauge verify --json
+  stepgauge verify --markdown docs/validation.md     regenerate the validation page";
 
 /// A kind of check on the command line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -50,7 +50,7 @@ impl From<KindArg> for Kind {
     }
 }
 
-/// The options of `tempora verify`.
+/// The options of `stepgauge verify`.
 #[derive(Debug, Clone, Args)]
 pub struct VerifyArgs {
     /// Run only checks of this kind (repeatable; default: all).

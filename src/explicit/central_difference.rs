@@ -43,7 +43,7 @@ pub enum ForceVelocity {
     Lagged,
     /// The predicted integer-step velocity `v* = v_{n+1/2} + (dt/2) a_n`, a second-order estimate
     /// of `v_{n+1}`: the scheme stays second-order accurate with damping, at the price of a smaller
-    /// stable step, `omega dt <= 2 (sqrt(1 + 4 xi^2) - 2 xi)` (derived for tempora from the
+    /// stable step, `omega dt <= 2 (sqrt(1 + 4 xi^2) - 2 xi)` (derived for stepgauge from the
     /// amplification matrix; see `docs/explicit.md`).
     Predicted,
 }

@@ -1,8 +1,8 @@
-//! Atomic file replacement: write a temporary file beside the target, sync it, rename it over the
+//! Atomic file replacement: write a scratch file beside the target, sync it, rename it over the
 //! target.
 //!
 //! A reader of the target sees either the old file or the complete new one, never a half-written
-//! file; when anything fails, the temporary file is removed and an existing target is left
+//! file; when anything fails, the scratch file is removed and an existing target is left
 //! untouched. The rename is atomic on POSIX file systems (and on Windows for files on one volume).
 //!
 //! The new file gets the default permissions of a newly created file, not those of the file it
@@ -15,20 +15,20 @@ use std::sync::atomic::{AtomicU64, Ordering};
 
 use crate::error::{Error, Result};
 
-/// Distinguishes the temporary files of one process.
+/// Distinguishes the scratch files of one process.
 static COUNTER: AtomicU64 = AtomicU64::new(0);
 
-/// Writes `path` atomically: `write` fills a buffered temporary file
+/// Writes `path` atomically: `write` fills a buffered scratch file
 /// `.<name>.tmp-<pid>-<counter>` in the target's directory, which is then flushed, synced to disk
 /// (`sync_all`) and renamed over `path`. On Unix the directory is synced too (best effort), so
 /// that the rename itself survives a crash.
 ///
 /// ```
-/// # fn main() -> tempora::Result<()> {
-/// let dir = std::env::temp_dir().join(format!("tempora-doc-atomic-{}", std::process::id()));
+/// # fn main() -> stepgauge::Result<()> {
+/// let dir = std::env::temp_dir().join(format!("stepgauge-doc-atomic-{}", std::process::id()));
 /// std::fs::create_dir_all(&dir).unwrap();
 /// let path = dir.join("hello.txt");
-/// tempora::io::write_atomically(&path, |w| writeln!(w, "hello"))?;
+/// stepgauge::io::write_atomically(&path, |w| writeln!(w, "hello"))?;
 /// assert_eq!(std::fs::read_to_string(&path).unwrap(), "hello\n");
 /// # std::fs::remove_dir_all(&dir).unwrap();
 /// # Ok(())
@@ -36,8 +36,8 @@ static COUNTER: AtomicU64 = AtomicU64::new(0);
 /// ```
 ///
 /// # Errors
-/// [`Error::Io`] naming the path when the temporary file cannot be created, `write` fails, or
-/// the flush, sync or rename fails. In every case the temporary file is removed and an existing
+/// [`Error::Io`] naming the path when the scratch file cannot be created, `write` fails, or
+/// the flush, sync or rename fails. In every case the scratch file is removed and an existing
 /// file at `path` is left as it was.
 pub fn write_atomically<F>(path: &Path, write: F) -> Result<()>
 where
@@ -71,9 +71,9 @@ where
         .write(true)
         .create_new(true)
         .open(&tmp)
-        .map_err(|e| io_err("create a temporary file beside", e))?;
+        .map_err(|e| io_err("create a scratch file beside", e))?;
     let result = fill(file, write)
-        .and_then(|()| fs::rename(&tmp, path).map_err(|e| ("rename the temporary file onto", e)));
+        .and_then(|()| fs::rename(&tmp, path).map_err(|e| ("rename the scratch file onto", e)));
     match result {
         Ok(()) => {
             sync_dir(&dir);
@@ -86,7 +86,7 @@ where
     }
 }
 
-/// Writes, flushes and syncs the temporary file.
+/// Writes, flushes and syncs the scratch file.
 fn fill<F>(file: File, write: F) -> std::result::Result<(), (&'static str, std::io::Error)>
 where
     F: FnOnce(&mut dyn Write) -> std::io::Result<()>,
@@ -114,7 +114,7 @@ mod tests {
 
     fn scratch(tag: &str) -> PathBuf {
         let d = std::env::temp_dir().join(format!(
-            "tempora-atomic-{tag}-{}-{}",
+            "stepgauge-atomic-{tag}-{}-{}",
             std::process::id(),
             COUNTER.fetch_add(1, Ordering::Relaxed)
         ));
@@ -132,7 +132,7 @@ mod tests {
     }
 
     #[test]
-    fn replaces_the_target_and_leaves_no_temporary_file() {
+    fn replaces_the_target_and_leaves_no_scratch_file() {
         let dir = scratch("ok");
         let path = dir.join("out.txt");
         fs::write(&path, "old").unwrap();
@@ -143,7 +143,7 @@ mod tests {
     }
 
     #[test]
-    fn a_failing_writer_leaves_the_target_and_no_temporary_file() {
+    fn a_failing_writer_leaves_the_target_and_no_scratch_file() {
         let dir = scratch("fail");
         let path = dir.join("out.txt");
         fs::write(&path, "old").unwrap();
@@ -173,7 +173,7 @@ mod tests {
             matches!(
                 e,
                 Error::Io {
-                    action: "rename the temporary file onto",
+                    action: "rename the scratch file onto",
                     ..
                 }
             ),
@@ -193,7 +193,7 @@ mod tests {
             matches!(
                 e,
                 Error::Io {
-                    action: "create a temporary file beside",
+                    action: "create a scratch file beside",
                     ..
                 }
             ),

@@ -4,7 +4,7 @@
 //! A one-line text header, the JSON of the [`Checkpoint`], and a newline:
 //!
 //! ```text
-//! tempora-checkpoint v1 <length> <crc32>
+//! stepgauge-checkpoint v1 <length> <crc32>
 //! {"format_version":1,"scheme":"...","state":{...},"ledger":{...},"extra":...}
 //! ```
 //!
@@ -36,7 +36,7 @@ use crate::state::{State, check_finite};
 pub const CHECKPOINT_FORMAT_VERSION: u32 = 1;
 
 /// The first word of a checkpoint file.
-const MAGIC: &str = "tempora-checkpoint";
+const MAGIC: &str = "stepgauge-checkpoint";
 
 /// The longest header accepted (magic, version, a 20-digit length and the checksum fit easily).
 const MAX_HEADER: usize = 128;
@@ -83,7 +83,7 @@ impl Checkpoint {
 /// [`Error::InvalidParameter`] when `format_version` is not [`CHECKPOINT_FORMAT_VERSION`];
 /// [`Error::NonFiniteInput`] when the state or the ledger holds a NaN or an infinity (JSON cannot
 /// carry it back); [`Error::Io`] when the file cannot be written (an existing file is then left
-/// untouched and no temporary file remains).
+/// untouched and no scratch file remains).
 pub fn write_checkpoint(path: &Path, checkpoint: &Checkpoint) -> Result<()> {
     let bytes = encode(checkpoint, path)?;
     write_atomically(path, |w| w.write_all(&bytes))
@@ -185,7 +185,7 @@ pub(crate) fn decode(bytes: &[u8], path: &Path) -> Result<Checkpoint> {
     let words: Vec<&str> = header.split(' ').collect();
     if words[0] != MAGIC {
         return Err(corrupt(format!(
-            "the file does not start with `{MAGIC}`: it is not a tempora checkpoint"
+            "the file does not start with `{MAGIC}`: it is not a stepgauge checkpoint"
         )));
     }
     if words.len() != 4 {

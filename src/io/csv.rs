@@ -97,8 +97,8 @@ pub fn read_load_table(path: &Path) -> Result<LoadTable> {
 /// Parses the text of a load table; `name` is the file name used in error messages.
 ///
 /// ```
-/// use tempora::model::{LinearModel, Load, Model};
-/// let table = tempora::io::parse_load_table("time,1\n0,0\n2,10\n", "load.csv").unwrap();
+/// use stepgauge::model::{LinearModel, Load, Model};
+/// let table = stepgauge::io::parse_load_table("time,1\n0,0\n2,10\n", "load.csv").unwrap();
 /// let eye = sprs::CsMat::<f64>::eye(2);
 /// let mut model = LinearModel::new(&eye, &eye).unwrap().with_load(Load::Table(table)).unwrap();
 /// let mut f = vec![0.0; 2];
@@ -250,7 +250,7 @@ fn zeros<T: Clone + Default>(n: usize) -> Option<Vec<T>> {
 /// error messages.
 ///
 /// ```
-/// let (u, v) = tempora::io::parse_initial("dof,u,v\n2,0.5,0\n0,0,-1\n", "init.csv", 3).unwrap();
+/// let (u, v) = stepgauge::io::parse_initial("dof,u,v\n2,0.5,0\n0,0,-1\n", "init.csv", 3).unwrap();
 /// assert_eq!(u, vec![0.0, 0.0, 0.5]);
 /// assert_eq!(v, vec![-1.0, 0.0, 0.0]);
 /// ```

@@ -13,7 +13,7 @@
 //! 3 3 1e-3
 //! ```
 //!
-//! - The header's words are case-insensitive. tempora reads `matrix coordinate` files whose
+//! - The header's words are case-insensitive. stepgauge reads `matrix coordinate` files whose
 //!   values are `real` or `integer` and whose symmetry is `general` or `symmetric`; `array`,
 //!   `complex`, `pattern`, `hermitian` and `skew-symmetric` files (and `vector` objects) are
 //!   refused with [`Error::MatrixMarketUnsupported`].
@@ -25,7 +25,7 @@
 //!   diagonal in a symmetric file is refused, since its mirror may be stored as well.
 //! - **Duplicate entries are summed**, as in the usual finite-element assembly (and in sprs's
 //!   triplet conversion).
-//! - Row and column counts are limited to `2^32 - 1` (tempora's
+//! - Row and column counts are limited to `2^32 - 1` (stepgauge's
 //!   [`CsrMatrix`](crate::linalg::CsrMatrix) stores 32-bit column indices).
 //!
 //! Every malformed input gives [`Error::MatrixMarket`] with the file name, the 1-based line and
@@ -47,7 +47,7 @@ const MAX_DIM: usize = u32::MAX as usize;
 ///
 /// # Errors
 /// [`Error::Io`] when the file cannot be read; [`Error::MatrixMarket`] for a malformed file
-/// (with the line); [`Error::MatrixMarketUnsupported`] for a kind of file tempora does not read.
+/// (with the line); [`Error::MatrixMarketUnsupported`] for a kind of file stepgauge does not read.
 pub fn read_matrix_market(path: &Path) -> Result<CsMat<f64>> {
     let name = display_name(path);
     let text = read_text(path, |line| Error::MatrixMarket {
@@ -69,7 +69,7 @@ enum Symmetry {
 ///
 /// ```
 /// let text = "%%MatrixMarket matrix coordinate real symmetric\n2 2 2\n1 1 4\n2 1 -1\n";
-/// let m = tempora::io::parse_matrix_market(text, "k.mtx").unwrap();
+/// let m = stepgauge::io::parse_matrix_market(text, "k.mtx").unwrap();
 /// assert_eq!(m.get(0, 1), Some(&-1.0)); // mirrored from (2, 1)
 /// assert_eq!(m.nnz(), 3);
 /// ```
@@ -426,7 +426,7 @@ pub fn write_matrix_market(path: &Path, m: &CsMat<f64>, symmetric: bool) -> Resu
             "%%MatrixMarket matrix coordinate real {}",
             if symmetric { "symmetric" } else { "general" }
         )?;
-        writeln!(w, "% written by tempora {}", env!("CARGO_PKG_VERSION"))?;
+        writeln!(w, "% written by stepgauge {}", env!("CARGO_PKG_VERSION"))?;
         writeln!(w, "{} {} {}", csr.rows(), csr.cols(), count)?;
         for (i, row) in csr.outer_iterator().enumerate() {
             for (j, &v) in row.iter() {

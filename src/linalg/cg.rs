@@ -1,7 +1,7 @@
 //! Jacobi-preconditioned conjugate gradients for symmetric positive definite matrices.
 //!
 //! Written here rather than taken from a crate: no well-kept Rust crate offers a preconditioned
-//! CG on tempora's CSR type (32-bit column indices) with work vectors allocated once, reductions
+//! CG on stepgauge's CSR type (32-bit column indices) with work vectors allocated once, reductions
 //! that are bit-identical for any thread count, and typed failure reports; faer's iterative
 //! solvers work on its own matrix types and scratch conventions.
 

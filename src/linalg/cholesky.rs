@@ -44,7 +44,7 @@ pub const PIVOT_LOSS_FACTOR: f64 = 4.0;
 ///   computes the ordering and the symbolic factor, and allocates every buffer.
 /// - [`factor`](LinearSolver::factor) checks the pattern is the analysed one, the values are
 ///   finite and symmetric (to [`SYMMETRY_TOLERANCE`](super::SYMMETRY_TOLERANCE)), and factorises
-///   in place. It allocates nothing, with one exception outside tempora: the first supernodal
+///   in place. It allocates nothing, with one exception outside stepgauge: the first supernodal
 ///   factorisation in a process runs the one-time set-up of faer's dense matrix-product backend
 ///   (about 490 small allocations, and a 64 MiB packing buffer per thread that uses it).
 /// - [`solve_in_place`](LinearSolver::solve_in_place) allocates nothing. It does not compute the

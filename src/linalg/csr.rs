@@ -1,6 +1,6 @@
 //! Compressed sparse row matrix with a parallel, allocation-free product.
 //!
-//! Users hand tempora `sprs` matrices; tempora copies them once into this compact form (32-bit
+//! Users hand stepgauge `sprs` matrices; stepgauge copies them once into this compact form (32-bit
 //! column indices, which cut the memory traffic of the product by about a tenth) and multiplies in
 //! its own row loop, which runs over rayon above a size threshold. sprs's own product runs on one
 //! thread and allocates its result, which a time step must not do.

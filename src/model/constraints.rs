@@ -154,7 +154,7 @@ pub struct Constraint {
 /// The set of constrained DOFs of a model. Every other DOF is free.
 ///
 /// ```
-/// use tempora::model::{Constraints, TimeFunction};
+/// use stepgauge::model::{Constraints, TimeFunction};
 /// let c = Constraints::new()
 ///     .fix(0)
 ///     .prescribe_velocity(9, TimeFunction::Constant(-5.0));

@@ -142,7 +142,7 @@ enum LinearDamping {
 ///
 /// ```
 /// use sprs::TriMat;
-/// use tempora::model::{LinearModel, Model};
+/// use stepgauge::model::{LinearModel, Model};
 /// let mut m = TriMat::new((2, 2));
 /// m.add_triplet(0, 0, 2.0);
 /// m.add_triplet(1, 1, 1.0);

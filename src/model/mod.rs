@@ -1,6 +1,6 @@
 //! The model seam: what a user plugs in.
 //!
-//! A [`Model`] is the user's element loop. tempora never needs to know about elements; it asks the
+//! A [`Model`] is the user's element loop. stepgauge never needs to know about elements; it asks the
 //! model for its lumped mass, its internal force `f_int(t, u, v)`, its external force `f_ext(t)`,
 //! its damping and its constraints, always writing into buffers that the caller owns, so that a
 //! time step allocates nothing.

@@ -6,10 +6,10 @@
 //! at any time. A comparison loops over [`all`]:
 //!
 //! ```
-//! use tempora::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity};
-//! use tempora::reference;
+//! use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity};
+//! use stepgauge::reference;
 //!
-//! # fn main() -> tempora::Result<()> {
+//! # fn main() -> stepgauge::Result<()> {
 //! for problem in reference::smooth() {
 //!     let mut model = problem.model()?;
 //!     let mut state = problem.initial_state();
@@ -48,7 +48,7 @@
 //! travelling front caps the convergence order a scheme can show on them.
 //!
 //! [`study`] runs a scheme on a problem and measures its error and order (the core of
-//! `tempora compare` and of the convergence checks of [`verification`](crate::verification)).
+//! `stepgauge compare` and of the convergence checks of [`verification`](crate::verification)).
 //!
 //! # Single-DOF solutions
 //!
@@ -212,7 +212,7 @@ pub trait ReferenceProblem: fmt::Debug + Send + Sync {
 /// The standard set, with our own parameter values (documented on each constructor used here).
 ///
 /// ```
-/// let names: Vec<&str> = tempora::reference::all().iter().map(|p| p.name()).collect();
+/// let names: Vec<&str> = stepgauge::reference::all().iter().map(|p| p.name()).collect();
 /// assert!(names.contains(&"two-dof-step"));
 /// ```
 pub fn all() -> Vec<Box<dyn ReferenceProblem>> {

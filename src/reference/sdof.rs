@@ -341,7 +341,7 @@ impl SdofHalfSine {
     /// `f0` and duration `t_d`, checked as [`validate`](ReferenceProblem::validate) checks them.
     ///
     /// ```
-    /// use tempora::reference::{ReferenceProblem, SdofHalfSine};
+    /// use stepgauge::reference::{ReferenceProblem, SdofHalfSine};
     /// let p = SdofHalfSine::new(0.2533, 10.0, 0.05, 10.0, 0.6).unwrap();
     /// assert_eq!(p.exact(0.0), 0.0);
     /// assert!(SdofHalfSine::new(0.2533, 10.0, 0.05, 10.0, 0.0).is_err());

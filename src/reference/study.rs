@@ -1,14 +1,14 @@
 //! Runs of a scheme on a reference problem against its exact solution: the scheme's stable limit
 //! on the problem, the largest error of the observed DOF over a run, and the order measured from
-//! errors at several steps. `tempora compare` and the convergence checks of
+//! errors at several steps. `stepgauge compare` and the convergence checks of
 //! [`verification`](crate::verification) are built on these.
 //!
 //! ```
-//! use tempora::explicit::ForceVelocity;
-//! use tempora::reference::{self, ReferenceProblem, study};
-//! use tempora::spectral::Scheme;
+//! use stepgauge::explicit::ForceVelocity;
+//! use stepgauge::reference::{self, ReferenceProblem, study};
+//! use stepgauge::spectral::Scheme;
 //!
-//! # fn main() -> tempora::Result<()> {
+//! # fn main() -> stepgauge::Result<()> {
 //! let p = reference::SdofFree::standard_undamped(); // omega = 10 rad/s, t_end = 0.6 pi s
 //! let scheme = Scheme::CentralDifference(ForceVelocity::Predicted);
 //! assert!((study::stable_limit(&p, &scheme)?.unwrap() - 0.2).abs() < 1e-6); // 2 / omega
@@ -126,7 +126,7 @@ pub struct Outcome {
 ///
 /// The central difference runs with its stable-limit guard off (the caller decides which steps to
 /// run; see [`stable_limit`]); the implicit family with the sparse Cholesky solver and `newton`
-/// (the defaults for `tempora compare`).
+/// (the defaults for `stepgauge compare`).
 ///
 /// # Errors
 /// The problem's model errors and the integrator's step errors.
@@ -209,7 +209,7 @@ fn walk<I: Integrator>(
 /// ```
 /// let dts = [0.1, 0.05, 0.025];
 /// let errors = dts.map(|h: f64| 3.0 * h * h);
-/// let order = tempora::reference::study::fitted_order(&dts, &errors).unwrap();
+/// let order = stepgauge::reference::study::fitted_order(&dts, &errors).unwrap();
 /// assert!((order - 2.0).abs() < 1e-12);
 /// ```
 pub fn fitted_order(dts: &[f64], errors: &[f64]) -> Option<f64> {

@@ -69,7 +69,7 @@ pub struct Verdict {
 /// The closed-form critical `Omega` where a published one exists:
 ///
 /// - central difference, lagged damping: `2 (sqrt(1 + xi^2) - xi)` (Belytschko, Liu & Moran 2000);
-///   predicted: `2 (sqrt(1 + 4 xi^2) - 2 xi)` (derived for tempora, `docs/explicit.md`);
+///   predicted: `2 (sqrt(1 + 4 xi^2) - 2 xi)` (derived for stepgauge, `docs/explicit.md`);
 /// - Newmark with `gamma >= 1/2`, `beta < gamma/2`:
 ///   `Omega_crit = (xi (gamma - 1/2) + sqrt(gamma/2 - beta + xi^2 (gamma - 1/2)^2)) / (gamma/2 - beta)`
 ///   (Hughes 1987, sec. 9.1, from memory), which for `gamma = 1/2` is `1/sqrt(gamma/2 - beta)`.

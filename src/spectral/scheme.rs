@@ -1,4 +1,4 @@
-//! The schemes the spectral analysis knows: the central difference as tempora steps it, and any
+//! The schemes the spectral analysis knows: the central difference as stepgauge steps it, and any
 //! member of the generalised-alpha family.
 
 use serde::{Deserialize, Serialize};

@@ -2,9 +2,9 @@
 //! errors and algorithmic damping of the schemes against their published closed forms, and the
 //! reference problems' exact solutions against their equations of motion.
 //!
-//! Every closed form is written out in the check itself, not taken from tempora's code; the
+//! Every closed form is written out in the check itself, not taken from stepgauge's code; the
 //! computed side comes from the spectral analysis (eigenvalues of the amplification matrices and
-//! the bracketing search for the critical `Omega`), or from tempora's parameter constructors.
+//! the bracketing search for the critical `Omega`), or from stepgauge's parameter constructors.
 //! The same facts are tested in `tests/spectral.rs`; these checks put them in the validation
 //! table.
 
@@ -123,7 +123,7 @@ fn central_difference() -> Vec<Check> {
             "closed-form.central-difference.damped-limit.predicted",
             KIND,
             "critical Omega with the damping force at the predicted velocity v_(n+1/2) + dt a_n / 2, bracketing search against 2 (sqrt(1 + 4 xi^2) - 2 xi) for xi = 0.05, 0.2, 0.5, 1; relative difference",
-            "derived for tempora from the characteristic polynomial, docs/explicit.md \
+            "derived for stepgauge from the characteristic polynomial, docs/explicit.md \
              (not from the literature)",
             "max relative difference",
             worst(damped.iter().map(|&xi: &f64| {

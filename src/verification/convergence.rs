@@ -3,7 +3,7 @@
 //!
 //! # Method
 //!
-//! - **Steps.** The coarse grid of `tempora compare` ([`study::smooth_grid`] with
+//! - **Steps.** The coarse grid of `stepgauge compare` ([`study::smooth_grid`] with
 //!   [`MAX_COARSE_STEPS`]): `dt0 = T_min / 20` (0.02 s for the hardening oscillator), horizon
 //!   `t_end` or 400 coarse steps. The runs use `dt0 / 2^l` for the levels `l = s .. s + 4` (five
 //!   steps, four halvings), with the start level `s = 0` unless the pairing is still
@@ -53,7 +53,7 @@ use crate::params::AlphaParams;
 use crate::reference::{self, ReferenceProblem, study};
 use crate::spectral::{self, Scheme};
 
-/// Coarse steps at most per problem (as `tempora compare`).
+/// Coarse steps at most per problem (as `stepgauge compare`).
 pub(crate) const MAX_COARSE_STEPS: usize = 400;
 /// Halvings in a sequence (five steps).
 const HALVINGS: u32 = 4;

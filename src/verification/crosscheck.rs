@@ -1,4 +1,4 @@
-//! Checks of kind [`Kind::CrossCheck`]: tempora against independent computations with NumPy and
+//! Checks of kind [`Kind::CrossCheck`]: stepgauge against independent computations with NumPy and
 //! SciPy, committed as data under `tests/data/` by `tests/data/crosscheck.py` (see
 //! `tests/data/MANIFEST.md`).
 //!
@@ -7,7 +7,7 @@
 //!   [`exact_velocity`](crate::reference::ReferenceProblem::exact_velocity) of every reference
 //!   problem with a closed form against SciPy's integration of its equations of motion
 //!   (`scipy_reference_solutions.csv`). The bar's closed form is the continuum's, which the
-//!   discrete chain only approaches; for it, tempora's central difference on the chain model at two
+//!   discrete chain only approaches; for it, stepgauge's central difference on the chain model at two
 //!   fine steps is compared with SciPy's solution of the same semi-discrete chain, and the
 //!   measured order with 2.
 //! - **Amplification eigenvalues** (`cross-check.amplification.*`):
@@ -41,7 +41,7 @@ const DUFFING: &str = include_str!("../../tests/data/duffing_reference.csv");
 /// The script that makes the two cross-check tables.
 const SCRIPT: &str = "tests/data/crosscheck.py";
 
-/// Largest difference between tempora's closed forms and SciPy's solutions, relative to the
+/// Largest difference between stepgauge's closed forms and SciPy's solutions, relative to the
 /// problem's largest `|u|` (resp. `|v|`). SciPy's values are accurate to about 1e-11 of that scale
 /// (DOP853 at rtol 1e-13 agrees with the exact propagator `scipy.linalg.expm` within 1.5e-11 on
 /// every problem, within 5e-13 on the single-DOF ones: the `measured` lines of the file's header),
@@ -53,7 +53,7 @@ const SOLUTION_TOL: f64 = 1e-9;
 /// both sides balance the matrix and run a backward-stable QR iteration (LAPACK `geev`; nalgebra's
 /// real Schur form in [`spectral::eigenvalues3`]), which gives well-separated roots to a few
 /// hundred units of round-off (the largest difference measured is 4.9e-13; NumPy's values agreed
-/// with a one-off 50-digit mpmath computation, not committed, within 5e-13). 1e-10 leaves a wide margin. Before tempora balanced
+/// with a one-off 50-digit mpmath computation, not committed, within 5e-13). 1e-10 leaves a wide margin. Before stepgauge balanced
 /// its matrices, generalised-alpha with `rho_inf = 1` differed by 4.9e-10 at `Omega = 1000`: this
 /// check found it.
 const EIG_TOL: f64 = 1e-10;
@@ -75,7 +75,7 @@ const CLUSTER_RHO_TOL: f64 = 1e-6;
 /// (a few units of round-off on values of order one).
 const PARAM_TOL: f64 = 1e-15;
 
-/// The bar chain: tempora's central difference at the finer step must be within this fraction of
+/// The bar chain: stepgauge's central difference at the finer step must be within this fraction of
 /// the largest displacement of SciPy's semi-discrete solution. The difference is the scheme's own
 /// step error (second order: measured 7.7e-5 at the Courant number 0.0995 and 1.8e-5 at 0.0498),
 /// SciPy's being below 1e-11; the limit is about three times the measured value, so that a model,
@@ -197,7 +197,7 @@ fn parse_solutions(text: &str) -> Result<Vec<(String, Samples)>, String> {
 }
 
 /// The checks of the reference solutions: one per problem with a closed form, two for the bar
-/// chain, and a failed one for each problem of the file that tempora does not know.
+/// chain, and a failed one for each problem of the file that stepgauge does not know.
 fn solution_checks(text: &str) -> Vec<Check> {
     let source = solution_source();
     let groups = match parse_solutions(text) {
@@ -226,7 +226,7 @@ fn solution_checks(text: &str) -> Vec<Check> {
         }
         let id = format!("cross-check.solution.{name}");
         let what = format!(
-            "{name}: tempora's closed-form displacement and velocity of DOF {} against SciPy's \
+            "{name}: stepgauge's closed-form displacement and velocity of DOF {} against SciPy's \
              integration, largest difference relative to the largest |u| and |v| of the run",
             p.observed_dof()
         );
@@ -260,7 +260,7 @@ fn solution_checks(text: &str) -> Vec<Check> {
                 Kind::CrossCheck,
                 format!("{name}: a problem of the SciPy file"),
                 source.clone(),
-                "not a reference problem of tempora with a closed form (tempora::reference::all)",
+                "not a reference problem of stepgauge with a closed form (stepgauge::reference::all)",
             ));
         }
     }
@@ -286,12 +286,12 @@ fn closed_form_error(p: &dyn ReferenceProblem, rows: &[(f64, f64, f64)]) -> f64 
     })
 }
 
-/// The bar: tempora's chain model stepped by the central difference at two fine steps against
+/// The bar: stepgauge's chain model stepped by the central difference at two fine steps against
 /// SciPy's semi-discrete solution; the error at the finer step and the measured order.
 fn bar_checks(rows: Option<&Samples>, source: &str) -> Vec<Check> {
     let id = "cross-check.solution.bar-impact-chain";
     let id_order = "cross-check.solution.bar-impact-chain-order";
-    let what = "bar-impact: the free end's displacement of tempora's 100-element chain model \
+    let what = "bar-impact: the free end's displacement of stepgauge's 100-element chain model \
                 (BarImpact::model, driven end at constant speed), stepped by the central \
                 difference at the Courant number 0.0498, against SciPy's solution of the same \
                 semi-discrete chain, largest difference relative to the largest |u|";
@@ -398,7 +398,7 @@ struct AmpRow {
     eig: [Complex<f64>; 3],
 }
 
-/// The sets of the file, each with tempora's scheme made by its named constructor and the
+/// The sets of the file, each with stepgauge's scheme made by its named constructor and the
 /// source of its formulas.
 fn named_scheme(set: &str) -> Option<(crate::Result<Scheme>, &'static str)> {
     const NEWMARK: &str = "Newmark 1959, J. Eng. Mech. Div. ASCE 85:67-94";
@@ -500,7 +500,7 @@ fn amplification_checks(text: &str) -> Vec<Check> {
     for set in SETS {
         let id = format!("cross-check.amplification.{set}");
         let what = format!(
-            "{set}: tempora's eigenvalues and spectral radius of the amplification matrix, and \
+            "{set}: stepgauge's eigenvalues and spectral radius of the amplification matrix, and \
              its parameters, against NumPy's on the file's grid of Omega and xi"
         );
         let (scheme, paper) = match named_scheme(set) {
@@ -509,8 +509,8 @@ fn amplification_checks(text: &str) -> Vec<Check> {
         };
         let source = amplification_source(paper);
         let result = match (scheme, sets.get(set)) {
-            (None, _) => Err(format!("no tempora constructor for `{set}`")),
-            (Some(Err(e)), _) => Err(format!("tempora refuses the parameters: {e}")),
+            (None, _) => Err(format!("no stepgauge constructor for `{set}`")),
+            (Some(Err(e)), _) => Err(format!("stepgauge refuses the parameters: {e}")),
             (_, None) => Err(format!("no rows for `{set}` in scipy_amplification.csv")),
             (Some(Ok(scheme)), Some(rows)) => Ok(compare_set(&scheme, rows)),
         };
@@ -526,7 +526,7 @@ fn amplification_checks(text: &str) -> Vec<Check> {
                 Kind::CrossCheck,
                 format!("{set}: a set of the NumPy file"),
                 amplification_source("see the file's header"),
-                "not a set this check knows how to make with tempora's constructors",
+                "not a set this check knows how to make with stepgauge's constructors",
             ));
         }
     }
@@ -855,7 +855,7 @@ mod tests {
 
     /// At the clustered points the file's own roots show the lost digits (the double root of the
     /// lagged central difference at Omega = 1.6, xi = 0.2 is -0.6 exactly: the characteristic
-    /// polynomial is z (z + 0.6)^2), and tempora's polynomial matches while the roots need not.
+    /// polynomial is z (z + 0.6)^2), and stepgauge's polynomial matches while the roots need not.
     #[test]
     fn clustered_points_are_compared_on_the_polynomial() {
         let sets = parse_amplification(AMPLIFICATION).unwrap();

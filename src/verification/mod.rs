@@ -1,16 +1,16 @@
-//! The verification suite: tempora's results against references nobody here wrote.
+//! The verification suite: stepgauge's results against references nobody here wrote.
 //!
 //! Each [`Check`] compares one computed quantity with an outside reference (a published worked
 //! example, a closed form from a paper or textbook, an independent computation with SciPy whose
 //! output is committed under `tests/data/`, or a theoretical order of accuracy) and says which
 //! source it rests on, what tolerance it must meet, what it measured and whether it passed.
 //!
-//! [`run`] runs them all; `tempora verify` prints them and writes `docs/validation.md`
-//! (`tempora verify --markdown docs/validation.md`); the test suite runs them and fails on any
+//! [`run`] runs them all; `stepgauge verify` prints them and writes `docs/validation.md`
+//! (`stepgauge verify --markdown docs/validation.md`); the test suite runs them and fails on any
 //! that does not pass, and on a `docs/validation.md` that lists other checks than [`run`] makes.
 //!
 //! ```
-//! let checks = tempora::verification::run_kind(tempora::verification::Kind::ClosedForm);
+//! let checks = stepgauge::verification::run_kind(stepgauge::verification::Kind::ClosedForm);
 //! assert!(checks.iter().all(|c| c.passed), "{checks:#?}");
 //! ```
 
@@ -56,7 +56,7 @@ impl Kind {
         }
     }
 
-    /// The kind's name on the command line (`tempora verify --kind`).
+    /// The kind's name on the command line (`stepgauge verify --kind`).
     pub fn name(self) -> &'static str {
         match self {
             Kind::Published => "published",
@@ -220,7 +220,7 @@ pub fn markdown(checks: &[Check]) -> String {
     );
     let _ = writeln!(
         s,
-        "Each check compares a result of tempora with a reference nobody here wrote: a \
+        "Each check compares a result of stepgauge with a reference nobody here wrote: a \
          published worked example, a closed form from a paper or textbook, an independent \
          computation with SciPy committed under `tests/data/` (see `tests/data/MANIFEST.md`), \
          or a theoretical order of accuracy. A value marked \"from memory\" was recalled, not \

@@ -1,9 +1,9 @@
 //! Checks of kind [`Kind::Published`](super::Kind): worked examples printed in textbooks.
 //!
-//! Each example is solved with tempora's integrators and compared with the printed table, and
+//! Each example is solved with stepgauge's integrators and compared with the printed table, and
 //! with an independent recurrence written out in the check itself (the textbook's own algebra,
-//! different from tempora's), so that a disagreement with a table can be told apart from a fault
-//! of tempora. The printed numbers below were recalled, not read from the books: every source
+//! different from stepgauge's), so that a disagreement with a table can be told apart from a fault
+//! of stepgauge. The printed numbers below were recalled, not read from the books: every source
 //! says "(from memory)". The tolerances follow the printed rounding: half a unit of the last
 //! printed digit, plus a tenth of a unit for the rounding of the book's own inputs and
 //! intermediate values (for example `m = 0.2533` for `T_n = 1 s`).
@@ -126,7 +126,7 @@ fn chopra_model(zeta: f64) -> Result<LinearModel> {
     Ok(model)
 }
 
-/// tempora's [`AlphaIntegrator`] on the example: `u` at `t = 0.1 .. 1.0 s`.
+/// stepgauge's [`AlphaIntegrator`] on the example: `u` at `t = 0.1 .. 1.0 s`.
 fn chopra_alpha(p: AlphaParams) -> Result<Vec<f64>> {
     let mut model = chopra_model(CH_ZETA)?;
     let mut state = State::at_rest(1, 0.0);
@@ -145,7 +145,7 @@ fn chopra_alpha(p: AlphaParams) -> Result<Vec<f64>> {
     Ok(u)
 }
 
-/// tempora's [`CentralDifference`] on the example with damping ratio `zeta`.
+/// stepgauge's [`CentralDifference`] on the example with damping ratio `zeta`.
 fn chopra_cd(zeta: f64) -> Result<Vec<f64>> {
     let mut model = chopra_model(zeta)?;
     let mut state = State::at_rest(1, 0.0);
@@ -163,7 +163,7 @@ fn chopra_cd(zeta: f64) -> Result<Vec<f64>> {
 }
 
 /// Newmark's method for linear systems in Chopra's incremental form (Chopra 2012, sec. 5.4;
-/// written out here independently of tempora's total, predictor-corrector form):
+/// written out here independently of stepgauge's total, predictor-corrector form):
 ///
 /// ```text
 /// k^ = k + gamma c / (beta dt) + m / (beta dt^2)
@@ -199,7 +199,7 @@ fn chopra_newmark_recurrence(beta: f64, gamma: f64) -> Vec<f64> {
 /// `u_{i+1} = (p_i - a u_{i-1} - b u_i) / k^`, `k^ = m / dt^2 + c_k / (2 dt)`,
 /// `a = m / dt^2 - c_k / (2 dt)`, `b = k - 2 m / dt^2`, where the damping term is
 /// `c_k (u_{i+1} - u_{i-1}) / (2 dt)` (Chopra's centred velocity, `lagged = false`) or, with
-/// `lagged = true`, `c (u_i - u_{i-1}) / dt` (the lagged half-step velocity, as tempora's
+/// `lagged = true`, `c (u_i - u_{i-1}) / dt` (the lagged half-step velocity, as stepgauge's
 /// [`ForceVelocity::Lagged`] takes it): then `k^ = m / dt^2`, `a = m / dt^2 - c / dt`,
 /// `b = k - 2 m / dt^2 + c / dt`.
 fn chopra_cd_recurrence(zeta: f64, lagged: bool) -> Vec<f64> {
@@ -317,7 +317,7 @@ fn chopra() -> Vec<Check> {
                     &table,
                     4,
                     CH_DT,
-                    "the independent recurrence (next check) agrees with tempora to round-off",
+                    "the independent recurrence (next check) agrees with stepgauge to round-off",
                 ),
             ))
         }));
@@ -341,9 +341,9 @@ fn chopra() -> Vec<Check> {
             ))
         }));
     }
-    // The exact column against tempora's closed form.
+    // The exact column against stepgauge's closed form.
     let id = "published.chopra-e5.3.exact";
-    let what = "tempora's exact half-sine pulse solution (reference::SdofHalfSine with Chopra's parameters) against the printed exact column: largest difference";
+    let what = "stepgauge's exact half-sine pulse solution (reference::SdofHalfSine with Chopra's parameters) against the printed exact column: largest difference";
     let src = "Chopra (2012), Dynamics of Structures, 4th ed., Examples 5.3 and 5.4, exact \
                solution column, t = 0.1..1.0 s (values from memory)";
     out.push(checked(id, what, src, || {
@@ -417,7 +417,7 @@ fn chopra() -> Vec<Check> {
         )
         .with_note(format!(
             "Chopra's recurrence takes the centred velocity (u_(i+1) - u_(i-1)) / (2 dt) in the \
-             damping term; tempora's central difference takes the lagged half-step velocity \
+             damping term; stepgauge's central difference takes the lagged half-step velocity \
              (ForceVelocity::Lagged) or a predicted one, never the centred one, so the check \
              uses the lagged variant of the recurrence. The two damping treatments differ here \
              by at most {:.2e} in (largest |u| {:.3} in); against the exact solution the lagged \
@@ -500,7 +500,7 @@ fn bathe_deviation(u: &[[f64; 2]], table: &[[f64; BA_STEPS]; 2]) -> (f64, Vec<St
     (worst, off)
 }
 
-fn bathe_tempora_cd() -> Result<Vec<[f64; 2]>> {
+fn bathe_stepgauge_cd() -> Result<Vec<[f64; 2]>> {
     let problem = TwoDofStep;
     let mut model = problem.model()?;
     let mut state = problem.initial_state();
@@ -513,7 +513,7 @@ fn bathe_tempora_cd() -> Result<Vec<[f64; 2]>> {
     Ok(out)
 }
 
-fn bathe_tempora_trapezoidal() -> Result<Vec<[f64; 2]>> {
+fn bathe_stepgauge_trapezoidal() -> Result<Vec<[f64; 2]>> {
     let problem = TwoDofStep;
     let mut model = problem.model()?;
     let mut state = problem.initial_state();
@@ -641,7 +641,7 @@ fn bathe() -> Vec<Check> {
             source: "Bathe (1996), Finite Element Procedures, sec. 9.2, Example 9.1 (central \
                 difference, dt = 0.28), printed U at t = dt..12 dt to three significant figures \
                 (example number and values from memory)",
-            run: bathe_tempora_cd,
+            run: bathe_stepgauge_cd,
             table: &BA_CD,
             rwhat: "the same run against Bathe's displacement recurrence started with U_-dt = U_0 - dt U'_0 + dt^2 U''_0 / 2, written out in the check: largest difference relative to max |U|",
             rsource: "Bathe (1996), Finite Element Procedures, sec. 9.2.1 (central difference \
@@ -657,13 +657,13 @@ fn bathe() -> Vec<Check> {
             source: "Bathe (1996), Finite Element Procedures, sec. 9.2, the trapezoidal-rule \
                 (Newmark) example on the same system, dt = 0.28, printed U at t = dt..12 dt to \
                 three significant figures (example number and values from memory)",
-            run: bathe_tempora_trapezoidal,
+            run: bathe_stepgauge_trapezoidal,
             table: &BA_TRAPEZOIDAL,
             rwhat: "the same run against Bathe's effective-stiffness Newmark recurrence, written out in the check: largest difference relative to max |U|",
             rsource: "Bathe (1996), Finite Element Procedures, sec. 9.2.4 (Newmark's method with the \
                 integration constants a_0..a_7; from memory)",
             recurrence: bathe_trapezoidal_recurrence,
-            rnote: "tempora solves the predictor-corrector form for u_(n+1); the book's form solves \
+            rnote: "stepgauge solves the predictor-corrector form for u_(n+1); the book's form solves \
                 the effective stiffness K + a_0 M for U_(t+dt): the same scheme, different algebra",
         },
     ];
@@ -698,7 +698,7 @@ fn bathe() -> Vec<Check> {
                 c.with_note(format!(
                     "rounded to three significant figures, {} value(s) differ from the printed \
                      ones: {}. The independent recurrence (next check) gives the same values as \
-                     tempora; the tolerance allows a tenth of a unit for the book's rounding of \
+                     stepgauge; the tolerance allows a tenth of a unit for the book's rounding of \
                      intermediate values",
                     off.len(),
                     off.join("; ")
@@ -753,9 +753,9 @@ mod tests {
         let lin = chopra_alpha(AlphaParams::linear_acceleration()).unwrap();
         assert!(max_diff(&avg, &CH_LINEAR) > 10.0 * CH_TOL);
         assert!(max_diff(&lin, &CH_AVERAGE) > 10.0 * CH_TOL);
-        let cd = bathe_tempora_cd().unwrap();
+        let cd = bathe_stepgauge_cd().unwrap();
         assert!(bathe_deviation(&cd, &BA_TRAPEZOIDAL).0 > 10.0 * BA_TOL_UNITS);
-        let nm = bathe_tempora_trapezoidal().unwrap();
+        let nm = bathe_stepgauge_trapezoidal().unwrap();
         assert!(bathe_deviation(&nm, &BA_CD).0 > 10.0 * BA_TOL_UNITS);
         // The recurrences are not trivially equal to each other either.
         let lagged = chopra_cd_recurrence(CH_ZETA, true);

@@ -4,7 +4,7 @@
 pub mod roots;
 
 use sprs::{CsMat, TriMat};
-use tempora::model::LinearModel;
+use stepgauge::model::LinearModel;
 
 /// A diagonal sparse matrix.
 pub fn diag(v: &[f64]) -> CsMat<f64> {
@@ -62,16 +62,16 @@ pub struct DenseLu {
 }
 
 impl DenseLu {
-    pub fn boxed() -> Box<dyn tempora::linalg::LinearSolver> {
+    pub fn boxed() -> Box<dyn stepgauge::linalg::LinearSolver> {
         Box::new(DenseLu { lu: None })
     }
 }
 
-impl tempora::linalg::LinearSolver for DenseLu {
-    fn analyze(&mut self, _a: &tempora::linalg::CsrMatrix) -> tempora::Result<()> {
+impl stepgauge::linalg::LinearSolver for DenseLu {
+    fn analyze(&mut self, _a: &stepgauge::linalg::CsrMatrix) -> stepgauge::Result<()> {
         Ok(())
     }
-    fn factor(&mut self, a: &tempora::linalg::CsrMatrix) -> tempora::Result<()> {
+    fn factor(&mut self, a: &stepgauge::linalg::CsrMatrix) -> stepgauge::Result<()> {
         let n = a.nrows();
         let mut d = nalgebra::DMatrix::zeros(n, n);
         for i in 0..n {
@@ -82,9 +82,12 @@ impl tempora::linalg::LinearSolver for DenseLu {
         self.lu = Some(d.lu());
         Ok(())
     }
-    fn solve_in_place(&mut self, rhs: &mut [f64]) -> tempora::Result<tempora::linalg::SolveInfo> {
+    fn solve_in_place(
+        &mut self,
+        rhs: &mut [f64],
+    ) -> stepgauge::Result<stepgauge::linalg::SolveInfo> {
         let Some(lu) = self.lu.as_ref() else {
-            return Err(tempora::Error::SolverNotReady {
+            return Err(stepgauge::Error::SolverNotReady {
                 solver: "dense LU (test)",
                 missing: "factor",
             });
@@ -94,14 +97,14 @@ impl tempora::linalg::LinearSolver for DenseLu {
         let x = match (b.len() == lu.l().nrows()).then(|| lu.solve(&b)).flatten() {
             Some(x) => x,
             None => {
-                return Err(tempora::Error::SingularMatrix {
+                return Err(stepgauge::Error::SingularMatrix {
                     solver: "dense LU (test)",
-                    evidence: tempora::error::Singularity::NonFiniteSolution { index: 0 },
+                    evidence: stepgauge::error::Singularity::NonFiniteSolution { index: 0 },
                 });
             }
         };
         rhs.copy_from_slice(x.as_slice());
-        Ok(tempora::linalg::SolveInfo {
+        Ok(stepgauge::linalg::SolveInfo {
             iterations: 0,
             relative_residual: f64::NAN,
         })
@@ -114,12 +117,12 @@ impl tempora::linalg::LinearSolver for DenseLu {
 /// The hardening oscillator of `tests/data/duffing_reference.py`:
 /// `m u'' + c u' + k u + k3 u^3 = F0 sin(w t)` (now part of the library's reference problems).
 #[allow(unused_imports)]
-pub use tempora::reference::Duffing;
+pub use stepgauge::reference::Duffing;
 
 /// The committed reference solution: rows of `(t, u, v)` (the table compiled into
-/// `tempora::reference::Hardening`).
+/// `stepgauge::reference::Hardening`).
 pub fn duffing_reference() -> Vec<(f64, f64, f64)> {
-    tempora::reference::Hardening::new()
+    stepgauge::reference::Hardening::new()
         .rows()
         .iter()
         .map(|r| (r[0], r[1], r[2]))

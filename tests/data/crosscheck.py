@@ -1,25 +1,25 @@
 #!/usr/bin/env python3
-"""Independent SciPy cross-check data for tempora's verification suite.
+"""Independent SciPy cross-check data for stepgauge's verification suite.
 
-Writes two files, computed with NumPy and SciPy only (nothing here calls or copies tempora):
+Writes two files, computed with NumPy and SciPy only (nothing here calls or copies stepgauge):
 
 1. tests/data/scipy_reference_solutions.csv -- the motion of the observed DOF of every reference
-   problem of `tempora::reference::all()` except the hardening oscillator (which has its own SciPy
+   problem of `stepgauge::reference::all()` except the hardening oscillator (which has its own SciPy
    table, tests/data/duffing_reference.py), integrated from the equations of motion with
    scipy.integrate.solve_ivp (DOP853, rtol 1e-13) and checked against a second method of another
-   family (Radau IIA, rtol 1e-12). Columns: problem,t,u,v (problem = tempora's `name()`).
+   family (Radau IIA, rtol 1e-12). Columns: problem,t,u,v (problem = stepgauge's `name()`).
    The bar is the semi-discrete chain that `BarImpact::model()` builds (N lumped elements, driven
    end at constant speed), not the continuum bar.
 
 2. tests/data/scipy_amplification.csv -- the eigenvalues of one step's amplification matrix of
    each scheme on a grid of Omega = omega dt and damping ratios xi, the matrices built from the
-   defining recurrences (not from tempora's simplified entries). Columns:
+   defining recurrences (not from stepgauge's simplified entries). Columns:
    set,alpha_m,alpha_f,beta,gamma,omega,xi,rho,l1_re,l1_im,l2_re,l2_im,l3_re,l3_im.
 
 Run from the repository root:
 
     python3 tests/data/crosscheck.py            # regenerate both files
-    python3 tests/data/crosscheck.py --check    # regenerate into a temporary folder and compare
+    python3 tests/data/crosscheck.py --check    # regenerate into a scratch folder and compare
 
 `--check` exits with status 1 and a message naming the first differences when the regenerated
 data differ from the committed files beyond round-off (see `compare_*` below for the tolerances).
@@ -29,6 +29,7 @@ import argparse
 import functools
 import math
 import os
+import shutil
 import sys
 import tempfile
 
@@ -63,7 +64,7 @@ SOURCES_SOLUTIONS = [
     "sources: the equations of motion m u'' + c u' + k u = f(t) (single DOF, c = 2 xi sqrt(k m))"
     " and M u'' + K u = f (two DOFs, bar chain);",
     "  integration: scipy.integrate.solve_ivp, DOP853 (Dormand & Prince 8(5,3)) and Radau"
-    " (Radau IIA, order 5); parameters restated from tempora's src/reference/*.rs",
+    " (Radau IIA, order 5); parameters restated from stepgauge's src/reference/*.rs",
 ]
 
 SOURCES_AMPLIFICATION = [
@@ -75,7 +76,7 @@ SOURCES_AMPLIFICATION = [
     "  Chung & Hulbert 1993, J. Appl. Mech. 60:371-375 (generalised-alpha balance at"
     " n+1-alpha_m / n+1-alpha_f; eq. (25) alpha_m = (2 rho_inf - 1)/(rho_inf + 1),"
     " alpha_f = rho_inf/(rho_inf + 1), and the WBZ alpha_m = (rho_inf - 1)/(rho_inf + 1));",
-    "  central difference: the half-step stepping equations of tempora's docs/explicit.md"
+    "  central difference: the half-step stepping equations of stepgauge's docs/explicit.md"
     " (common practice)",
 ]
 
@@ -246,7 +247,7 @@ def sdof(name, m, k, xi, force, u0, v0, t_end, generators, breaks=()):
 
 
 def problems():
-    """The reference problems, with the parameters restated from tempora's constructors."""
+    """The reference problems, with the parameters restated from stepgauge's constructors."""
     out = []
     # SdofFree::standard_undamped / standard_damped (src/reference/sdof.rs): m = 2, k = 200,
     # u0 = 0.02, v0 = -0.3, xi = 0 / 0.05; t_end = three undamped periods.
@@ -362,7 +363,7 @@ def write_solutions(path):
     with open(path, "w") as f:
         f.write(f"# command: {COMMAND}\n")
         f.write(versions_line())
-        f.write("# holds: the observed DOF's displacement u and velocity v of tempora's reference"
+        f.write("# holds: the observed DOF's displacement u and velocity v of stepgauge's reference"
                 " problems (name = ReferenceProblem::name), integrated by SciPy from the"
                 " equations of motion\n")
         f.write(f"# method: solve_ivp DOP853 rtol={DOP853_RTOL!r} atol={DOP853_ATOL!r} x scale"
@@ -521,7 +522,7 @@ def amplification_rows():
             for omega in OMEGAS:
                 rows.append((name, params, omega, xi, np.linalg.eigvals(alpha_matrix(params, omega, xi))))
     for name, treatment in CD_SETS:
-        # Reported as the beta = 0, gamma = 1/2 member it resembles (as tempora's
+        # Reported as the beta = 0, gamma = 1/2 member it resembles (as stepgauge's
         # Scheme::parameters does), with its own matrix.
         params = (0.0, 0.0, 0.0, 0.5)
         for xi in XIS:
@@ -641,7 +642,7 @@ def compare_solutions(old, new, errors):
 # moves by about sqrt(1e-16) = 1e-8 under round-off: there the characteristic polynomial's
 # coefficients (well conditioned functions of the matrix, formed from the eigenvalues) are
 # compared at 1e-9 x scale^k for the coefficient of z^(3-k), and the spectral radius at 1e-6
-# (the same treatment as tempora's check in src/verification/crosscheck.rs).
+# (the same treatment as stepgauge's check in src/verification/crosscheck.rs).
 EIG_TOL = 1e-9
 CLUSTER_RHO_TOL = 1e-6
 
@@ -694,7 +695,8 @@ def compare_amplification(old, new, errors):
 
 def check():
     errors = []
-    with tempfile.TemporaryDirectory() as tmp:
+    tmp = tempfile.mkdtemp()
+    try:
         for committed, write, compare in [
             (SOLUTIONS, write_solutions, compare_solutions),
             (AMPLIFICATION, write_amplification, compare_amplification),
@@ -705,6 +707,8 @@ def check():
                 errors.append(f"{committed} is missing")
                 continue
             compare(read_csv(committed), read_csv(fresh), errors)
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
     if errors:
         print(f"crosscheck.py --check: the regenerated data differ from the committed files "
               f"({len(errors)} differences; regenerate with `{COMMAND}` and commit, or find "
@@ -722,7 +726,7 @@ def check():
 def main():
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--check", action="store_true",
-                        help="regenerate into a temporary folder and compare with the committed "
+                        help="regenerate into a scratch folder and compare with the committed "
                              "files; exit 1 on a difference beyond round-off")
     args = parser.parse_args()
     if args.check:

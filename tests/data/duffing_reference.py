@@ -1,17 +1,17 @@
 #!/usr/bin/env python3
-"""Reference solution of the hardening (Duffing-type) oscillator used by tempora's tests.
+"""Reference solution of the hardening (Duffing-type) oscillator used by stepgauge's tests.
 
     m u'' + c u' + k u + k3 u^3 = F0 sin(w t),   u(0) = u0, u'(0) = v0
 
 integrated by SciPy's DOP853 (an 8th-order Runge-Kutta method) at tight tolerances, independently
-of tempora. Writes tests/data/duffing_reference.csv with a header that records the command line,
+of stepgauge. Writes tests/data/duffing_reference.csv with a header that records the command line,
 the parameters and the library versions.
 
 Run from the repository root:
 
     python3 tests/data/duffing_reference.py            # regenerate the table
     python3 tests/data/duffing_reference.py OUT.csv    # write it elsewhere
-    python3 tests/data/duffing_reference.py --check    # regenerate into a temporary folder and
+    python3 tests/data/duffing_reference.py --check    # regenerate into a scratch folder and
                                                        # compare with the committed table
 
 `--check` exits with status 1 and names the differences when a fresh run differs from the
@@ -23,6 +23,7 @@ Requirements: tests/data/requirements.txt
 """
 import argparse
 import os
+import shutil
 import sys
 import tempfile
 
@@ -87,10 +88,13 @@ def read(path):
 
 def check():
     errors = []
-    with tempfile.TemporaryDirectory() as tmp:
+    tmp = tempfile.mkdtemp()
+    try:
         fresh = os.path.join(tmp, "duffing_reference.csv")
         write(fresh)
         (h0, c0, r0), (h1, c1, r1) = read(COMMITTED), read(fresh)
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
     if h0 != h1:
         errors.append(f"header differs: {h0} vs {h1}")
     if c0 != c1:
@@ -123,7 +127,7 @@ def main():
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("out", nargs="?", default=COMMITTED, help="where to write the table")
     parser.add_argument("--check", action="store_true",
-                        help="regenerate into a temporary folder and compare with the committed "
+                        help="regenerate into a scratch folder and compare with the committed "
                              "table; exit 1 on a difference beyond round-off")
     args = parser.parse_args()
     if args.check:

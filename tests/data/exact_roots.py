@@ -1,10 +1,10 @@
 #!/usr/bin/env python3
-"""Exact eigenvalues of one step's amplification matrix, for tempora's accuracy tests.
+"""Exact eigenvalues of one step's amplification matrix, for stepgauge's accuracy tests.
 
 The roots of the characteristic polynomial of the generalised-alpha family (Newmark-beta,
 HHT-alpha, WBZ-alpha and generalised-alpha as members) and of the central difference, computed
 with mpmath at 50 significant digits from the parameters as stored in double precision, and
-written correctly rounded to double precision. Nothing of tempora is used: the polynomial is
+written correctly rounded to double precision. Nothing of stepgauge is used: the polynomial is
 formed here from the step equations, `P(z) = M(z) (z - 1)^2 + 2 xi Omega E(z) G(z) (z - 1)
 + Omega^2 E(z) N(z)` with
 
@@ -33,7 +33,7 @@ Run from the repository root:
 
     python3 tests/data/exact_roots.py            # regenerate tests/data/exact_roots.csv
     python3 tests/data/exact_roots.py OUT.csv    # write it elsewhere
-    python3 tests/data/exact_roots.py --check    # regenerate into a temporary folder and compare
+    python3 tests/data/exact_roots.py --check    # regenerate into a scratch folder and compare
 
 `--check` exits with status 1 and names the differences when a fresh run differs from the
 committed table: the inputs must be equal as written, the roots within 4e-16 of the largest
@@ -44,6 +44,7 @@ Requirements: tests/data/requirements.txt (mpmath)
 import argparse
 import os
 import random
+import shutil
 import sys
 import tempfile
 
@@ -253,10 +254,13 @@ def read(path):
 
 def check():
     errors = []
-    with tempfile.TemporaryDirectory() as tmp:
+    tmp = tempfile.mkdtemp()
+    try:
         fresh = os.path.join(tmp, "exact_roots.csv")
         write(fresh)
         (h0, c0, r0), (h1, c1, r1) = read(COMMITTED), read(fresh)
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
     if h0 != h1:
         errors.append(f"header differs: {h0} vs {h1}")
     if c0 != c1:
@@ -289,7 +293,7 @@ def main():
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("out", nargs="?", default=COMMITTED, help="where to write the table")
     parser.add_argument("--check", action="store_true",
-                        help="regenerate into a temporary folder and compare with the committed "
+                        help="regenerate into a scratch folder and compare with the committed "
                              "table; exit 1 on a difference")
     args = parser.parse_args()
     if args.check:
