@@ -47,9 +47,10 @@ fn energy_balance_within_one_percent() {
 /// The split of the ledger's internal energy: elastic energy from the stress state plus the
 /// plastic work equals the ledger's internal work. The model integrates the plastic work with the
 /// trapezoidal rule, as the ledger does, so the two agree to rounding when every accepted step
-/// commits the material state of its own force evaluation (a wrong commit, a skipped commit or an
-/// extra force evaluation between the step's and the commit breaks it). Tolerance: well inside
-/// the balance error (1e-10 of the initial kinetic energy).
+/// makes the material state of its own force evaluation permanent (accepting the wrong state, a
+/// skipped or doubled `accept_step`, or an extra force evaluation between the step's and the
+/// acceptance breaks it). Tolerance: well inside the balance error (1e-10 of the initial kinetic
+/// energy).
 #[test]
 fn elastic_plus_plastic_is_the_ledger_internal_energy() {
     for o in [plastic(), elastic()] {
@@ -186,12 +187,12 @@ fn stable_step_is_reestimated() {
 }
 
 /// The integrator evaluates the internal force once per step (plus once at the start, for the
-/// initial acceleration) and commits once per accepted step: the protocol that makes trial
-/// history variables safe (`src/model/mod.rs`, "Trial evaluations and history variables"). The
-/// stable-step re-estimate uses the element bound and evaluates no force.
+/// initial acceleration) and calls `accept_step` once per accepted step: the protocol that makes
+/// trial history variables safe (`src/model/mod.rs`, "Trial evaluations and history variables").
+/// The stable-step re-estimate uses the element bound and evaluates no force.
 #[test]
-fn one_force_evaluation_and_one_commit_per_step() {
+fn one_force_evaluation_and_one_acceptance_per_step() {
     let o = plastic();
-    assert_eq!(o.billet.commits, o.steps);
+    assert_eq!(o.billet.accepted_steps, o.steps);
     assert_eq!(o.billet.evaluations, o.steps + 1);
 }

@@ -205,7 +205,7 @@ fn parse_size(s: &str) -> Option<usize> {
 /// * pass 2, per row: `f = sum_k K_ik u'_k` (stored order), `a' = (0 - f) / m` (as a product with
 ///   the stored `1/m`), `v' = vh + (dt/2) a'`, and the energy sums `vh f`, `v' f`, `a' f`,
 ///   `m v'^2`;
-/// * then the vectors are swapped into place, as the integrator commits a step.
+/// * then the vectors are swapped into place, as the integrator accepts a step.
 ///
 /// Both passes run over the fixed chunks of `stepgauge::linalg::CHUNK` entries, on rayon's pool
 /// when the integrator's default [`Parallelism`] goes parallel, serially otherwise, with one

@@ -68,7 +68,7 @@ fn dot4(a: &[f64; 4], b: &[f64; 4]) -> f64 {
 }
 
 /// Radial return for small-strain J2 plasticity with linear isotropic hardening, from the
-/// committed point `old` to the total strain `eps` (`[xx, yy, zz, xy]`, `zz = 0` in plane strain).
+/// accepted point `old` to the total strain `eps` (`[xx, yy, zz, xy]`, `zz = 0` in plane strain).
 ///
 /// Simo & Hughes (1998), *Computational Inelasticity*, sec. 3.3, box 3.2 (from memory):
 ///
@@ -224,16 +224,16 @@ pub struct Billet {
     pub contact_smoothing: f64,
     /// Undeformed element geometry.
     geometry: Vec<QuadGeometry>,
-    /// Committed material points (one per element).
-    committed: Vec<Point>,
+    /// Material points of the last accepted step (one per element).
+    accepted: Vec<Point>,
     /// Trial points of the last internal-force evaluation.
     trial: Vec<Point>,
-    /// Plastic work `sum sigma : d eps_p * V` up to the last commit (J).
+    /// Plastic work `sum sigma : d eps_p * V` up to the last accepted step (J).
     plastic_work: f64,
     /// Internal-force evaluations so far.
     pub evaluations: u64,
-    /// Commits so far.
-    pub commits: u64,
+    /// Accepted steps so far.
+    pub accepted_steps: u64,
     /// Element characteristic lengths and wave speeds for the stable-step estimate.
     lengths: Vec<f64>,
     speeds: Vec<f64>,
@@ -325,11 +325,11 @@ impl Billet {
             contact_stiffness,
             contact_smoothing: 0.0,
             geometry,
-            committed: vec![Point::default(); ne],
+            accepted: vec![Point::default(); ne],
             trial: vec![Point::default(); ne],
             plastic_work: 0.0,
             evaluations: 0,
-            commits: 0,
+            accepted_steps: 0,
             lengths: vec![0.0; ne],
             speeds: vec![0.0; ne],
         })
@@ -348,9 +348,9 @@ impl Billet {
         conn.map(|n| [u[2 * n], u[2 * n + 1]])
     }
 
-    /// The committed material points.
+    /// The material points of the last accepted step.
     pub fn points(&self) -> &[Point] {
-        &self.committed
+        &self.accepted
     }
 
     /// Element geometry (undeformed).
@@ -358,21 +358,16 @@ impl Billet {
         &self.geometry
     }
 
-    /// Plastic work `sum sigma : d eps_p * V` up to the last committed step (J); with linear
+    /// Plastic work `sum sigma : d eps_p * V` up to the last accepted step (J); with linear
     /// hardening it includes the energy held by the hardening, `1/2 H alpha^2` per volume.
     pub fn plastic_work(&self) -> f64 {
         self.plastic_work
     }
 
-    /// Elastic strain energy `sum 1/2 sigma : C^-1 : sigma * V` of the committed state at `u` (J).
+    /// Elastic strain energy `sum 1/2 sigma : C^-1 : sigma * V` of the accepted state at `u` (J).
     pub fn elastic_energy(&self, u: &[f64]) -> f64 {
         let mut w = 0.0;
-        for ((conn, g), p) in self
-            .elements
-            .iter()
-            .zip(&self.geometry)
-            .zip(&self.committed)
-        {
+        for ((conn, g), p) in self.elements.iter().zip(&self.geometry).zip(&self.accepted) {
             let eps = g.strain(&Self::nodal(u, conn));
             w += elastic_energy_density(&self.material, p, &eps) * g.area * self.thickness;
         }
@@ -501,8 +496,8 @@ impl Model for Billet {
         }
     }
 
-    /// `f_I = A t sigma grad N_I` with the stress of a radial return from the committed state
-    /// (trial values only; [`Model::commit`] makes them permanent).
+    /// `f_I = A t sigma grad N_I` with the stress of a radial return from the accepted state
+    /// (trial values only; [`Model::accept_step`] makes them permanent).
     fn internal_force(
         &mut self,
         _t: f64,
@@ -520,7 +515,7 @@ impl Model for Billet {
                 return Err(ModelError::failed(format!("element {e} is inverted")));
             }
             let eps = g.strain(&Self::nodal(u, conn));
-            let p = radial_return(&self.material, &self.committed[e], &eps);
+            let p = radial_return(&self.material, &self.accepted[e], &eps);
             self.trial[e] = p;
             let s = p.stress;
             let at = g.area * self.thickness;
@@ -603,11 +598,11 @@ impl Model for Billet {
     /// as the energy ledger integrates the internal work. Since the elastic energy changes by
     /// exactly `(sigma_n + sigma_{n+1}) / 2 : d eps_e V` (linear elasticity), elastic energy plus
     /// plastic work then equals the ledger's internal work up to rounding, provided that the
-    /// committed points belong to the force of every accepted step: the check in the test.
-    fn commit(&mut self, _t: f64) {
-        self.commits += 1;
+    /// accepted points belong to the force of every accepted step: the check in the test.
+    fn accept_step(&mut self, _t: f64) {
+        self.accepted_steps += 1;
         for ((old, new), g) in self
-            .committed
+            .accepted
             .iter_mut()
             .zip(&self.trial)
             .zip(&self.geometry)
@@ -769,9 +764,9 @@ mod tests {
     }
 
     /// A re-evaluation with the same displacement gives the same force (trial values are computed
-    /// from the committed state), and commit makes them permanent.
+    /// from the accepted state), and `accept_step` makes them permanent.
     #[test]
-    fn trial_evaluations_repeat_until_commit() {
+    fn trial_evaluations_repeat_until_the_step_is_accepted() {
         let mut b = patch();
         let n = b.dofs();
         let u: Vec<f64> = b.nodes.iter().flat_map(|x| [0.0, -0.02 * x[1]]).collect();
@@ -780,10 +775,10 @@ mod tests {
         b.internal_force(0.0, &u, &vec![0.0; n], &mut f2).unwrap();
         assert_eq!(f1, f2);
         assert!(b.trial.iter().all(|p| p.alpha > 0.0));
-        assert!(b.committed.iter().all(|p| p.alpha == 0.0));
-        b.commit(1.0);
+        assert!(b.accepted.iter().all(|p| p.alpha == 0.0));
+        b.accept_step(1.0);
         assert!(b.plastic_work() > 0.0);
-        assert_eq!(b.committed, b.trial);
+        assert_eq!(b.accepted, b.trial);
     }
 
     /// The smoothed contact law: the force is the derivative of the stored energy (central

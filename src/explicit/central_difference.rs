@@ -248,7 +248,7 @@ impl CentralDifference {
         if let StableLimit::Estimate = cd.options.stable_limit {
             cd.reestimate_stable_step(model, &s)?;
         }
-        // Commit: the caller's vectors become the integrator's work buffers.
+        // Accept: the caller's vectors become the integrator's work buffers.
         std::mem::swap(state, &mut s);
         cd.u_next = s.u;
         cd.v_half = s.v;
@@ -573,14 +573,14 @@ impl CentralDifference {
             });
         }
 
-        // Commit.
+        // Accept the step.
         std::mem::swap(&mut state.u, &mut self.u_next);
         std::mem::swap(&mut state.v, &mut self.v_next);
         std::mem::swap(&mut state.a, &mut self.a_next);
         state.t = t_new;
         state.step = step;
         std::mem::swap(&mut self.ledger, &mut self.trial);
-        model.commit(t_new);
+        model.accept_step(t_new);
         Ok(StepReport {
             step,
             t: t_new,

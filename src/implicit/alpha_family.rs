@@ -178,7 +178,7 @@ enum Attempt {
 ///
 /// **Failure and cut-back.** A sub-step whose iterations do not converge, diverge, or hit a
 /// model or solver failure is retried at half the size, up to `max_cutbacks` times; after
-/// `regrow_after` easy sub-steps the size doubles again. Converged sub-steps are committed to the
+/// `regrow_after` easy sub-steps the size doubles again. Converged sub-steps are accepted into the
 /// state as they are reached; when the cut-backs run out the error is returned and the state is the
 /// last converged one.
 ///
@@ -701,7 +701,7 @@ impl AlphaIntegrator {
         })
     }
 
-    /// One attempt at a sub-step of size `h` from `state`; commits it on convergence.
+    /// One attempt at a sub-step of size `h` from `state`; accepts it on convergence.
     fn substep<M: Model + ?Sized>(&mut self, model: &mut M, state: &mut State, h: f64) -> Attempt {
         match self.try_substep(model, state, h) {
             Ok(iters) => Attempt::Converged(iters),
@@ -1469,7 +1469,7 @@ impl AlphaIntegrator {
         }
     }
 
-    /// Books the converged sub-step in the ledger, checks the guards and commits it.
+    /// Books the converged sub-step in the ledger, checks the guards and accepts it.
     fn accept<M: Model + ?Sized>(
         &mut self,
         model: &mut M,
@@ -1514,7 +1514,7 @@ impl AlphaIntegrator {
 
     /// Books a converged sub-step whose works `w` (internal, external, damping, constraint: sums
     /// of `du . (f_0 + f_1)`, already complete over all processes) and kinetic energy `ke` are
-    /// known, checks the growth guard and commits it. The extra forces' works are summed here.
+    /// known, checks the growth guard and accepts it. The extra forces' works are summed here.
     fn book<M: Model + ?Sized>(
         &mut self,
         model: &mut M,
@@ -1565,7 +1565,7 @@ impl AlphaIntegrator {
             });
         }
         self.over_limit = (highs, high);
-        // Commit.
+        // Accept the step.
         std::mem::swap(&mut state.u, &mut self.u1);
         std::mem::swap(&mut state.v, &mut self.v1);
         std::mem::swap(&mut state.a, &mut self.a1);
@@ -1577,7 +1577,7 @@ impl AlphaIntegrator {
         std::mem::swap(&mut self.ledger, &mut self.trial);
         state.t = t1;
         state.step = step;
-        model.commit(t1);
+        model.accept_step(t1);
         Ok(())
     }
 }

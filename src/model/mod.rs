@@ -19,7 +19,7 @@
 //! Force evaluations are *trial* evaluations: a step may be rejected, an implicit solver evaluates
 //! many times per step, and the stable-step estimator may probe perturbed configurations. A model
 //! with history variables (plasticity, damage, friction) must therefore compute trial values in its
-//! force routines and make them permanent only in [`Model::commit`], which the integrator calls
+//! force routines and make them permanent only in [`Model::accept_step`], which the integrator calls
 //! once for every accepted step.
 
 mod constraints;
@@ -319,7 +319,7 @@ pub trait Model {
 
     /// Called once for every accepted step, with the time reached: make trial history variables
     /// permanent. Default: nothing.
-    fn commit(&mut self, t: f64) {
+    fn accept_step(&mut self, t: f64) {
         let _ = t;
     }
 }
