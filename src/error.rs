@@ -408,6 +408,24 @@ pub enum Error {
         /// What failed (magic, length, checksum, JSON).
         reason: String,
     },
+    /// A file whose header does not start with the checkpoint header word: another program's
+    /// file, a checkpoint written before the header took its present form, or a damaged header;
+    /// nothing of it was used.
+    #[error(
+        "`{}` does not start with a stepgauge checkpoint header: it starts with `{found}`, \
+         expected the header `{expected}`. Checkpoints written before the header took this form \
+         and other programs' files are not read, and a damaged header is refused too; nothing was \
+         read from it. Restart the run, or resume from a checkpoint this version wrote",
+        path.display()
+    )]
+    CheckpointHeader {
+        /// The file.
+        path: PathBuf,
+        /// The header's first word as found, made printable and cut to 40 characters.
+        found: String,
+        /// The header this build writes, with placeholders for length and checksum.
+        expected: String,
+    },
     /// An intact checkpoint written in a format version this build does not read.
     #[error(
         "checkpoint `{}` has format version {found}, but this build of stepgauge reads version \

@@ -352,6 +352,26 @@ fn resume_with_another_step_or_a_truncated_checkpoint_is_refused() {
         &["was written by a run with", "dt = 0.02", "dt = 0.01"],
     );
     let bytes = std::fs::read(&ck).unwrap();
+    // The same content under another header word (a made-up one): refused, naming the header
+    // expected, and the output file is not touched.
+    let nl = bytes.iter().position(|&b| b == b'\n').unwrap();
+    let header = std::str::from_utf8(&bytes[..nl]).unwrap();
+    let mut renamed = header
+        .replacen("stepgauge-checkpoint", "formerly-checkpoint", 1)
+        .into_bytes();
+    renamed.extend_from_slice(&bytes[nl..]);
+    std::fs::write(&ck, &renamed).unwrap();
+    let before = std::fs::read(&out).unwrap();
+    let args = with(&["--dt", "0.02", "--t-end", "2", "--resume", &ck]);
+    assert_usage(
+        &args.iter().map(String::as_str).collect::<Vec<_>>(),
+        &[
+            "run.ckpt",
+            "formerly-checkpoint",
+            "expected the header `stepgauge-checkpoint v1 <length> <crc32>`",
+        ],
+    );
+    assert_eq!(std::fs::read(&out).unwrap(), before, "output untouched");
     std::fs::write(&ck, &bytes[..bytes.len() / 2]).unwrap();
     let args = with(&["--dt", "0.02", "--t-end", "2", "--resume", &ck]);
     assert_usage(

@@ -375,7 +375,11 @@ fn small_checkpoint(s: &Scratch) -> Vec<u8> {
 fn assert_refused(path: &Path, bytes: &[u8], what: &str) {
     std::fs::write(path, bytes).unwrap();
     match read_checkpoint(path) {
-        Err(e @ (Error::CheckpointCorrupt { .. } | Error::CheckpointVersion { .. })) => {
+        Err(
+            e @ (Error::CheckpointCorrupt { .. }
+            | Error::CheckpointHeader { .. }
+            | Error::CheckpointVersion { .. }),
+        ) => {
             let msg = e.to_string();
             assert!(msg.contains("bad.ckpt"), "{what}: {msg}");
         }
@@ -385,8 +389,8 @@ fn assert_refused(path: &Path, bytes: &[u8], what: &str) {
 }
 
 /// Every truncation length, and every single bit of every byte flipped, is refused whole with
-/// `CheckpointCorrupt` (or `CheckpointVersion` when the flip turns the version digit into
-/// another number): the header's length and CRC-32 catch every change of the JSON (CRC-32
+/// `CheckpointCorrupt` (or `CheckpointHeader` when the flip is in the header's first word, or
+/// `CheckpointVersion` when the flip turns the version digit into another number): the header's length and CRC-32 catch every change of the JSON (CRC-32
 /// detects every error burst of up to 32 bits, so every single-bit error), and the header
 /// itself is parsed strictly. (`tests/io.rs` flips every fifth byte and a few truncation
 /// lengths; this is the exhaustive version.)

@@ -622,7 +622,11 @@ fn damaged_checkpoints_are_refused_whole() {
     let refused = |bytes: &[u8]| {
         fs::write(&bad, bytes).unwrap();
         match read_checkpoint(&bad) {
-            Err(e @ (Error::CheckpointCorrupt { .. } | Error::CheckpointVersion { .. })) => {
+            Err(
+                e @ (Error::CheckpointCorrupt { .. }
+                | Error::CheckpointHeader { .. }
+                | Error::CheckpointVersion { .. }),
+            ) => {
                 assert!(e.to_string().contains("bad.ckpt"), "{e}");
             }
             other => panic!("not refused: {other:?}"),
@@ -645,6 +649,33 @@ fn damaged_checkpoints_are_refused_whole() {
     b.extend_from_slice(b"more");
     refused(&b);
     refused(b"%%MatrixMarket matrix coordinate real general\n");
+    // Intact files with another first word in the header (a checkpoint of another program, or one
+    // written before the header took its present form; the words here are made up): refused,
+    // and the message names the header expected.
+    let nl = good.iter().position(|&b| b == b'\n').unwrap();
+    let rest = std::str::from_utf8(&good[..nl])
+        .unwrap()
+        .split_once(' ')
+        .unwrap()
+        .1;
+    for word in [
+        "other-checkpoint",
+        "checkpoint",
+        "STEPGAUGE-CHECKPOINT",
+        "\u{1b}[1m",
+    ] {
+        let mut b = format!("{word} {rest}").into_bytes();
+        b.extend_from_slice(&good[nl..]);
+        refused(&b);
+        let e = read_checkpoint(&bad).unwrap_err();
+        assert!(matches!(e, Error::CheckpointHeader { .. }), "{e:?}");
+        let e = e.to_string();
+        assert!(
+            e.contains("expected the header `stepgauge-checkpoint v1 <length> <crc32>`"),
+            "{e}"
+        );
+        assert!(!e.contains('\u{1b}'), "control characters are escaped: {e}");
+    }
     refused(&good.iter().map(|_| b' ').collect::<Vec<_>>());
     // The good one still reads.
     assert!(read_checkpoint(&p).is_ok());

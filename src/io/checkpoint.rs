@@ -92,9 +92,12 @@ pub fn write_checkpoint(path: &Path, checkpoint: &Checkpoint) -> Result<()> {
 /// Reads a checkpoint written by [`write_checkpoint`].
 ///
 /// # Errors
-/// [`Error::Io`] when the file cannot be read; [`Error::CheckpointCorrupt`] when it is not a
-/// checkpoint, is truncated or has extra bytes, fails its checksum, or does not hold a valid
-/// checkpoint; [`Error::CheckpointVersion`] for an intact checkpoint of another format version.
+/// [`Error::Io`] when the file cannot be read; [`Error::CheckpointHeader`] when the header's first
+/// word is not this format's (another program's file, a checkpoint written before the header took
+/// its present form, a damaged header word); [`Error::CheckpointCorrupt`] when it is not a
+/// checkpoint otherwise, is truncated or has extra bytes, fails its checksum, or does not hold a
+/// valid checkpoint; [`Error::CheckpointVersion`] for an intact checkpoint of another format
+/// version.
 pub fn read_checkpoint(path: &Path) -> Result<Checkpoint> {
     let bytes = std::fs::read(path).map_err(|source| Error::Io {
         action: "read",
@@ -174,19 +177,25 @@ pub(crate) fn decode(bytes: &[u8], path: &Path) -> Result<Checkpoint> {
     if bytes.is_empty() {
         return Err(corrupt("the file is empty".into()));
     }
+    let expected = format!("{MAGIC} v{CHECKPOINT_FORMAT_VERSION} <length> <crc32>");
     let Some(nl) = bytes.iter().take(MAX_HEADER).position(|&b| b == b'\n') else {
         return Err(corrupt(format!(
-            "no header line `{MAGIC} v{CHECKPOINT_FORMAT_VERSION} <length> <crc32>` at the start \
-             (not a checkpoint, or truncated)"
+            "no header line `{expected}` at the start (not a checkpoint, or truncated)"
         )));
     };
-    let header = std::str::from_utf8(&bytes[..nl])
-        .map_err(|_| corrupt("the header line is not text".into()))?;
+    let header = std::str::from_utf8(&bytes[..nl]).map_err(|_| {
+        corrupt(format!(
+            "the first line is not text, expected the header `{expected}`"
+        ))
+    })?;
     let words: Vec<&str> = header.split(' ').collect();
     if words[0] != MAGIC {
-        return Err(corrupt(format!(
-            "the file does not start with `{MAGIC}`: it is not a stepgauge checkpoint"
-        )));
+        return Err(Error::CheckpointHeader {
+            path: path.to_path_buf(),
+            // Made printable and cut short: the first word may be anything.
+            found: words[0].escape_debug().take(40).collect(),
+            expected,
+        });
     }
     if words.len() != 4 {
         return Err(corrupt(format!(
@@ -329,9 +338,11 @@ mod tests {
                 let mut b = bytes.clone();
                 b[pos] ^= mask;
                 match decode(&b, Path::new("c")) {
-                    Err(Error::CheckpointCorrupt { .. } | Error::CheckpointVersion { .. }) => {
-                        refused += 1
-                    }
+                    Err(
+                        Error::CheckpointCorrupt { .. }
+                        | Error::CheckpointHeader { .. }
+                        | Error::CheckpointVersion { .. },
+                    ) => refused += 1,
                     other => panic!("byte {pos} ^ {mask:#x} was not refused: {other:?}"),
                 }
             }
