@@ -15,12 +15,17 @@
 //! 10 ms step instead of 8 elements and 5 ms).
 
 mod model;
+// The figures' look (colours, dash patterns, markers), shared with the command line's figures.
+#[allow(dead_code)]
+#[path = "../../src/cli/figure_style.rs"]
+mod figure_style;
 
 use std::error::Error;
 use std::fmt::Write as _;
 use std::path::PathBuf;
 use std::time::Instant;
 
+use figure_style::{SeriesStyle, draw_series};
 use model::{
     FrameLayout, GroundMotion, Response, assemble, effective_masses, modes, peak, simulate,
 };
@@ -234,7 +239,6 @@ fn plot(
     series: &[(&Vec<f64>, &str); 2],
     scale: f64,
 ) -> Result<(), Box<dyn Error>> {
-    let colours = [RGBColor(214, 39, 40), RGBColor(31, 119, 180)];
     let t_max = times.last().copied().unwrap_or(1.0);
     let difference: Vec<f64> = series[0]
         .0
@@ -259,16 +263,13 @@ fn plot(
         .y_desc(y_label)
         .draw()?;
     for (i, (s, label)) in series.iter().enumerate() {
-        let colour = colours[i];
-        chart
-            .draw_series(LineSeries::new(
-                times.iter().zip(s.iter()).map(|(t, v)| (*t, v * scale)),
-                colour.stroke_width(if i == 0 { 3 } else { 1 }),
-            ))?
-            .label(*label)
-            .legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 20, y)], colour.stroke_width(2))
-            });
+        let curve: Vec<(f64, f64)> = times
+            .iter()
+            .zip(s.iter())
+            .map(|(t, v)| (*t, v * scale))
+            .collect();
+        let style = SeriesStyle::nth(i).width(if i == 0 { 3 } else { 1 });
+        draw_series(&mut chart, &[curve], style, Some(label))?;
     }
     chart
         .configure_series_labels()

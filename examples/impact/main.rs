@@ -16,12 +16,17 @@
 //! Run with `cargo run --release --example impact [-- --coarse] [--out DIR]`.
 
 mod model;
+// The figures' look (colours, dash patterns, markers), shared with the command line's figures.
+#[allow(dead_code)]
+#[path = "../../src/cli/figure_style.rs"]
+mod figure_style;
 
 use std::error::Error;
 use std::fmt::Write as _;
 use std::path::PathBuf;
 use std::time::Instant;
 
+use figure_style::{PALETTE, SeriesStyle, draw_series};
 use model::{Outcome, Scenario, simulate};
 use plotters::prelude::*;
 
@@ -178,8 +183,8 @@ fn write_csv(path: &std::path::Path, o: &Outcome) -> std::io::Result<()> {
     std::fs::write(path, s)
 }
 
-/// A curve of the energy plot: its name, colour and value.
-type Series = (&'static str, RGBColor, fn(&model::Sample) -> f64);
+/// A curve of the energy plot: its name and value.
+type Series = (&'static str, fn(&model::Sample) -> f64);
 
 fn plot_energy(path: &std::path::Path, o: &Outcome) -> Result<(), Box<dyn Error>> {
     let root = SVGBackend::new(path, (900, 520)).into_drawing_area();
@@ -200,35 +205,26 @@ fn plot_energy(path: &std::path::Path, o: &Outcome) -> Result<(), Box<dyn Error>
         .x_desc("t (us)")
         .y_desc("energy (J)")
         .draw()?;
-    // The balance error is relative in the samples; drawn in joules against the impact energy.
     let t0 = o.samples[0].kinetic;
-    let series: [Series; 7] = [
-        ("kinetic", BLUE, |s| s.kinetic),
-        ("internal (ledger)", RED, |s| s.internal),
-        ("elastic", MAGENTA, |s| s.elastic),
-        ("plastic", GREEN, |s| s.plastic),
-        ("hourglass", BLACK, |s| s.hourglass),
-        ("contact", CYAN, |s| s.contact),
-        ("external work", RGBColor(230, 140, 0), |s| s.external),
+    let series: [Series; 8] = [
+        ("kinetic", |s| s.kinetic),
+        ("internal (ledger)", |s| s.internal),
+        ("elastic", |s| s.elastic),
+        ("plastic", |s| s.plastic),
+        ("hourglass", |s| s.hourglass),
+        ("contact", |s| s.contact),
+        ("external work", |s| s.external),
+        ("balance error (relative x initial kinetic)", |s| s.balance),
     ];
-    for (name, color, f) in series {
-        chart
-            .draw_series(LineSeries::new(
-                o.samples.iter().map(|s| (s.t * 1e6, f(s))),
-                &color,
-            ))?
-            .label(name)
-            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color));
-    }
-    {
-        let color = RGBColor(120, 120, 120);
-        chart
-            .draw_series(LineSeries::new(
-                o.samples.iter().map(|s| (s.t * 1e6, s.balance * t0)),
-                &color,
-            ))?
-            .label("balance error (relative x initial kinetic)")
-            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color));
+    for (i, (name, f)) in series.into_iter().enumerate() {
+        // The balance error is relative in the samples; drawn in joules against the impact energy.
+        let scale = if i == 7 { t0 } else { 1.0 };
+        let curve: Vec<(f64, f64)> = o
+            .samples
+            .iter()
+            .map(|s| (s.t * 1e6, f(s) * scale))
+            .collect();
+        draw_series(&mut chart, &[curve], SeriesStyle::nth(i), Some(name))?;
     }
     chart
         .configure_series_labels()
@@ -248,7 +244,8 @@ fn plot_mesh(path: &std::path::Path, o: &Outcome) -> Result<(), Box<dyn Error>> 
     let root = SVGBackend::new(path, (300 * o.snapshots.len() as u32, 320)).into_drawing_area();
     root.fill(&WHITE)?;
     let caption = format!(
-        "Billet outline: undeformed (grey), deformed x{magnify} about the centre of mass (blue)"
+        "Billet outline: undeformed (grey, thin), deformed x{magnify} about the centre of mass \
+         (blue, thick)"
     );
     let mut chart = ChartBuilder::on(&root)
         .caption(caption, ("sans-serif", 16))
@@ -297,7 +294,10 @@ fn plot_mesh(path: &std::path::Path, o: &Outcome) -> Result<(), Box<dyn Error>> 
                     (dx + (b.nodes[n][0] + ux) * 1e3, (b.nodes[n][1] + uy) * 1e3)
                 })
                 .collect();
-            chart.draw_series(std::iter::once(PathElement::new(deformed, BLUE)))?;
+            chart.draw_series(std::iter::once(PathElement::new(
+                deformed,
+                PALETTE[0].stroke_width(2),
+            )))?;
         }
         chart.draw_series(std::iter::once(Text::new(
             format!("{label}, t = {:.1} us", t * 1e6),

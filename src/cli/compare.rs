@@ -13,8 +13,8 @@ use stepgauge::reference::{self, ReferenceProblem, study};
 use stepgauge::spectral::Scheme;
 
 use super::Failure;
+use super::figure_style::{SeriesStyle, draw_series};
 use super::output::{FormatArgs, csv_field, csv_num, print_stdout, table_num, write_plot};
-use super::plot::COLOURS;
 use super::scheme_args::{Labelled, SchemeArgs, standard_sets};
 
 /// Long help of `stepgauge compare`.
@@ -462,14 +462,9 @@ pub fn problem_svg(p: &dyn ReferenceProblem, studies: &[Study]) -> Result<String
             .label("exact")
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.mix(0.4)));
         for (i, s) in mine.iter().enumerate() {
-            let colour = COLOURS[i % COLOURS.len()];
-            top.draw_series(LineSeries::new(
-                s.history.iter().copied(),
-                colour.stroke_width(1),
-            ))
-            .map_err(|e| fail(e.to_string()))?
-            .label(s.scheme.as_str())
-            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], colour));
+            let style = SeriesStyle::nth(i).width(1);
+            draw_series(&mut top, &[&s.history], style, Some(s.scheme.as_str()))
+                .map_err(|e| fail(e.to_string()))?;
         }
         top.configure_series_labels()
             .position(SeriesLabelPosition::LowerLeft)
@@ -493,17 +488,13 @@ pub fn problem_svg(p: &dyn ReferenceProblem, studies: &[Study]) -> Result<String
             .draw()
             .map_err(|e| fail(e.to_string()))?;
         for (i, s) in mine.iter().enumerate() {
-            let colour = COLOURS[i % COLOURS.len()];
+            // Few points: the markers fall on every one.
             let pts: Vec<(f64, f64)> = s
                 .rows
                 .iter()
                 .filter_map(|r| r.max_error.filter(|e| *e > 0.0).map(|e| (r.dt, e)))
                 .collect();
-            bottom
-                .draw_series(LineSeries::new(pts.clone(), colour.stroke_width(2)))
-                .map_err(|e| fail(e.to_string()))?;
-            bottom
-                .draw_series(pts.into_iter().map(|q| Circle::new(q, 3, colour.filled())))
+            draw_series(&mut bottom, &[pts], SeriesStyle::nth(i), None)
                 .map_err(|e| fail(e.to_string()))?;
         }
         root.present().map_err(|e| fail(e.to_string()))?;

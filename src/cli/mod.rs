@@ -6,6 +6,7 @@
 mod check;
 mod compare;
 mod demo;
+pub(crate) mod figure_style;
 mod output;
 mod plot;
 mod report;

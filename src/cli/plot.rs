@@ -9,6 +9,7 @@ use plotters::prelude::*;
 use stepgauge::spectral::Metrics;
 
 use super::Failure;
+use super::figure_style::{SeriesStyle, draw_series};
 
 /// One scheme's curve.
 pub struct Series<'a> {
@@ -21,18 +22,6 @@ pub struct Series<'a> {
 const WIDTH: u32 = 960;
 const PANEL_HEIGHT: u32 = 380;
 const TITLE_HEIGHT: u32 = 40;
-
-/// Line colours, one per scheme (cycled); shared by every figure.
-pub(crate) const COLOURS: [RGBColor; 8] = [
-    RGBColor(31, 119, 180),
-    RGBColor(214, 39, 40),
-    RGBColor(44, 160, 44),
-    RGBColor(148, 103, 189),
-    RGBColor(255, 127, 14),
-    RGBColor(0, 0, 0),
-    RGBColor(140, 86, 75),
-    RGBColor(23, 190, 207),
-];
 
 /// One panel: what it shows and how far its y axis may reach.
 struct Panel {
@@ -122,23 +111,11 @@ pub fn spectrum_svg(title: &str, series: &[Series]) -> Result<String, Failure> {
                 .draw()
                 .map_err(|e| fail(e.to_string()))?;
             for (i, (s, points)) in series.iter().zip(&sorted).enumerate() {
-                let colour = COLOURS[i % COLOURS.len()];
-                let style = colour.stroke_width(2);
-                if k == 0 {
-                    // An empty, labelled series: one legend entry per scheme.
-                    chart
-                        .draw_series(LineSeries::new(std::iter::empty::<(f64, f64)>(), style))
-                        .map_err(|e| fail(e.to_string()))?
-                        .label(s.label)
-                        .legend(move |(x, y)| {
-                            PathElement::new(vec![(x, y), (x + 20, y)], colour.stroke_width(2))
-                        });
-                }
-                for segment in segments(points, panel.value, y_lo, y_hi) {
-                    chart
-                        .draw_series(LineSeries::new(segment, style))
-                        .map_err(|e| fail(e.to_string()))?;
-                }
+                // The legend, one entry per scheme, goes on the first panel.
+                let label = (k == 0).then_some(s.label);
+                let pieces = segments(points, panel.value, y_lo, y_hi);
+                draw_series(&mut chart, &pieces, SeriesStyle::nth(i), label)
+                    .map_err(|e| fail(e.to_string()))?;
             }
             if k == 0 {
                 chart
