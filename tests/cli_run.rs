@@ -202,6 +202,11 @@ fn timestep_json_matches_closed_form_chain_frequencies() {
     let got_min = v["omega_min"].as_f64().unwrap();
     assert!((got_max / w_max - 1.0).abs() < 1e-6, "{got_max} vs {w_max}");
     assert!((got_min / w_min - 1.0).abs() < 1e-6, "{got_min} vs {w_min}");
+    // 50 free DOFs: the dense path, named by what it computes.
+    assert_eq!(
+        v["omega_min_method"],
+        "dense symmetric eigensolver on L^-1 K L^-T, M = L L^T"
+    );
     let dt = v["dt_stable"].as_f64().unwrap();
     assert!((dt * got_max / 2.0 - 1.0).abs() < 1e-12);
     let damped = v["dt_stable_damped"].as_f64().unwrap();

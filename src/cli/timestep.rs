@@ -147,7 +147,11 @@ fn lambda_min_dense(m: &CsMat<f64>, k: &CsMat<f64>) -> Result<LambdaMin, Failure
     let (lo, hi) = eig.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), &x| {
         (lo.min(x), hi.max(x.abs()))
     });
-    finish(lo, hi, "dense symmetric eigen-solve (nalgebra)")
+    finish(
+        lo,
+        hi,
+        "dense symmetric eigensolver on L^-1 K L^-T, M = L L^T",
+    )
 }
 
 fn finish(lo: f64, hi: f64, method: &'static str) -> Result<LambdaMin, Failure> {

@@ -37,8 +37,8 @@ pub struct Parallelism {
 
 impl Default for Parallelism {
     /// Parallel from 32,768 entries: below that the loop takes tens of microseconds and the
-    /// hand-off to the pool costs more than it saves (measured on 2 cores; see `docs/performance.md`
-    /// once written).
+    /// hand-off to the pool costs more than it saves (measured on 2 cores when the threshold was
+    /// set; the bench report, `docs/performance.md`, does not measure it again).
     fn default() -> Self {
         Parallelism { threshold: 32_768 }
     }
