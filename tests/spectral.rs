@@ -4,7 +4,7 @@ use proptest::prelude::*;
 use stepgauge::explicit::ForceVelocity;
 use stepgauge::params::AlphaParams;
 use stepgauge::spectral::{
-    CheckContext, Prepared, Scheme, Stability, check, eigenvalues, eigenvalues3, metrics,
+    CheckContext, Prepared, RootPath, Scheme, Stability, check, eigenvalues, eigenvalues3, metrics,
     omega_crit_closed_form, omega_crit_numeric, order_of_accuracy, rho_inf, spectral_radius, sweep,
 };
 
@@ -297,8 +297,8 @@ fn any_scheme() -> impl Strategy<Value = Scheme> {
 proptest! {
     #![proptest_config(ProptestConfig::with_cases(2000))]
 
-    /// The fast path (characteristic polynomial from the parameters, closed-form cubic,
-    /// `spectral::eigenvalues`) against the robust path (balanced real Schur form of the matrix,
+    /// The fast path (characteristic polynomial from the parameters, closed-form cubic or the
+    /// compensated path where roots meet, `spectral::eigenvalues`) against the robust path (balanced real Schur form of the matrix,
     /// `eigenvalues3`), with `Omega` from 1e-6 to 1e6 and `xi` from 0 to 1: each root within the
     /// sum of the two paths' error bounds (`common::roots`, evaluated at the Schur roots), which
     /// is about `1e-13` of the scale for well-separated roots and grows as roots meet. Neither
@@ -314,11 +314,17 @@ proptest! {
     ) {
         let o = 10f64.powf(log_omega);
         let a = scheme.amplification(o, xi);
-        let fast = eigenvalues(&scheme, o, xi);
+        let (fast, path) = Prepared::new(&scheme).eigenvalues_with_path(o, xi);
+        prop_assert_eq!(fast, eigenvalues(&scheme, o, xi));
         let robust = eigenvalues3(&a);
         let b = bounds(&robust, &a);
         let e = errors(&fast, &robust);
-        let tol = [0, 1, 2].map(|i| b.closed_form[i] + b.schur[i]);
+        let mine = match path {
+            RootPath::ClosedForm => b.closed_form,
+            RootPath::Compensated => b.compensated,
+            RootPath::Schur => b.schur,
+        };
+        let tol = [0, 1, 2].map(|i| mine[i] + b.schur[i]);
         for i in 0..3 {
             prop_assert!(e[i] <= tol[i],
                 "{} Omega {o:e} xi {xi}: root {i} {:e} apart (bound {:e})\n{fast:?}\n{robust:?}",

@@ -8,6 +8,7 @@
 
 mod amplification;
 mod bounds;
+mod compensated;
 mod metrics;
 mod prepared;
 mod roots;
@@ -23,7 +24,7 @@ pub use metrics::{
     largest_step_for_period_error, metrics, omega_crit_numeric, order_of_accuracy, rho_inf,
     spectral_radius,
 };
-pub use prepared::Prepared;
+pub use prepared::{Prepared, RootPath};
 pub(crate) use roots::pairing_distance;
 pub use roots::{CONDITION_LIMIT, eigenvalues_fast};
 pub use scheme::{Parameters, Scheme, cd_amplification};

@@ -54,6 +54,7 @@
 use nalgebra::Complex;
 
 use super::amplification::eigenvalues3;
+use super::compensated::{self, Constants};
 use super::metrics::{Metrics, largest_modulus, metrics_from, metrics_from_deflated};
 use super::roots::{
     closed_form_roots, deflated_roots, estimate_real_root, in_range, polish_real_root,
@@ -69,12 +70,41 @@ pub struct Prepared {
     scheme: Scheme,
     /// `k[j] = [a_j, b_j, g_j]`: `P_j = a_j + b_j (2 xi Omega) + g_j Omega^2`, `j = 0..=3`.
     k: [[f64; 3]; 4],
+    /// The same constants in double-double, for the compensated path.
+    exact: Constants,
+}
+
+/// Which way [`Prepared::eigenvalues_with_path`] found the roots.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RootPath {
+    /// The closed-form cubic on double-precision coefficients (every root's condition at most
+    /// [`CONDITION_LIMIT`](super::CONDITION_LIMIT)).
+    ClosedForm,
+    /// The compensated path: coefficients, polish, deflation and discriminant in double-double
+    /// (where roots meet).
+    Compensated,
+    /// The balanced real Schur form of the amplification matrix ([`eigenvalues3`]): non-finite or
+    /// extreme coefficients only.
+    Schur,
 }
 
 impl Prepared {
     /// The scheme's constants (see the module documentation).
     pub fn new(scheme: &Scheme) -> Self {
-        let k = match scheme {
+        let exact = match scheme {
+            Scheme::Alpha(p) => Constants::alpha(p.alpha_m, p.alpha_f, p.beta, p.gamma),
+            Scheme::CentralDifference(_) => Constants::exact(&Self::constants(scheme)),
+        };
+        Prepared {
+            scheme: *scheme,
+            k: Self::constants(scheme),
+            exact,
+        }
+    }
+
+    /// The double-precision constants of the scheme (see the module documentation).
+    fn constants(scheme: &Scheme) -> [[f64; 3]; 4] {
+        match scheme {
             Scheme::CentralDifference(ForceVelocity::Lagged) => [
                 [0.0, 0.0, 0.0],
                 [1.0, -1.0, 0.0],
@@ -108,8 +138,7 @@ impl Prepared {
                     [m1, e1 * g1, e1 * n2],
                 ]
             }
-        };
-        Prepared { scheme: *scheme, k }
+        }
     }
 
     /// The scheme.
@@ -138,18 +167,46 @@ impl Prepared {
     /// are clustered; three NaN for a non-finite matrix.
     #[inline(always)]
     pub fn eigenvalues(&self, omega_dt: f64, xi: f64) -> [Complex<f64>; 3] {
+        self.eigenvalues_with_path(omega_dt, xi).0
+    }
+
+    /// [`Prepared::eigenvalues`] and the path that computed them: the closed form where every
+    /// root's condition allows it, the compensated path where roots meet, the balanced Schur
+    /// form for non-finite or extreme coefficients (each path's accuracy is in
+    /// `docs/spectral.md`).
+    #[inline(always)]
+    pub fn eigenvalues_with_path(&self, omega_dt: f64, xi: f64) -> ([Complex<f64>; 3], RootPath) {
         let (c2, c1, c0) = self.coefficients(omega_dt, xi);
         match closed_form_roots(c2, c1, c0) {
-            Some(z) => z,
+            Some(z) => (z, RootPath::ClosedForm),
             None => self.fallback(omega_dt, xi),
         }
     }
 
-    /// The robust path, out of line so that the fast one stays small.
+    /// The paths for points the closed form cannot take, out of line so that the fast one stays
+    /// small: the compensated one, or (non-finite or extreme coefficients) the balanced Schur
+    /// form. The compensated roots are laid out as the closed form's.
     #[cold]
     #[inline(never)]
-    fn fallback(&self, omega_dt: f64, xi: f64) -> [Complex<f64>; 3] {
-        eigenvalues3(&self.scheme.amplification(omega_dt, xi))
+    fn fallback(&self, omega_dt: f64, xi: f64) -> ([Complex<f64>; 3], RootPath) {
+        let (c2, c1, c0) = self.exact.monic(omega_dt, xi);
+        match compensated::roots(c2, c1, c0) {
+            Some(z) => (z, RootPath::Compensated),
+            None => (
+                eigenvalues3(&self.scheme.amplification(omega_dt, xi)),
+                RootPath::Schur,
+            ),
+        }
+    }
+
+    /// The metrics from the roots of a path (the closed form's and the compensated path's are
+    /// laid out alike).
+    #[inline(always)]
+    fn metrics_of(z: &[Complex<f64>; 3], path: RootPath, omega_dt: f64) -> Metrics {
+        match path {
+            RootPath::ClosedForm | RootPath::Compensated => metrics_from_deflated(z, omega_dt),
+            RootPath::Schur => metrics_from(z, omega_dt),
+        }
     }
 
     /// The spectral radius (largest eigenvalue modulus; NaN for a non-finite matrix).
@@ -164,7 +221,10 @@ impl Prepared {
         let (c2, c1, c0) = self.coefficients(omega_dt, xi);
         match closed_form_roots(c2, c1, c0) {
             Some(z) => metrics_from_deflated(&z, omega_dt),
-            None => metrics_from(&self.fallback(omega_dt, xi), omega_dt),
+            None => {
+                let (z, path) = self.fallback(omega_dt, xi);
+                Self::metrics_of(&z, path, omega_dt)
+            }
         }
     }
 
@@ -187,7 +247,10 @@ impl Prepared {
             let o = omegas[i];
             match &roots[i] {
                 Some(z) => metrics_from_deflated(z, o),
-                None => metrics_from(&self.fallback(o, xi), o),
+                None => {
+                    let (z, path) = self.fallback(o, xi);
+                    Self::metrics_of(&z, path, o)
+                }
             }
         })
     }
@@ -201,7 +264,7 @@ impl Prepared {
             let roots = self.roots_block(block, xi);
             out.extend(block.iter().zip(&roots).map(|(&o, z)| match z {
                 Some(z) => largest_modulus(z),
-                None => largest_modulus(&self.fallback(o, xi)),
+                None => largest_modulus(&self.fallback(o, xi).0),
             }));
         }
         out

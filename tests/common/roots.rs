@@ -1,5 +1,5 @@
-//! Error bounds of computed eigenvalues of a 3x3 amplification matrix (the closed-form cubic's
-//! and the balanced Schur form's), shared by the spectral tests.
+//! Error bounds of computed eigenvalues of a 3x3 amplification matrix (the closed-form cubic's,
+//! the compensated path's and the balanced Schur form's), shared by the spectral tests.
 //!
 //! The closed form moves a root by its condition as a polynomial root times a few roundings of
 //! the coefficients (Wilkinson 1963, *Rounding Errors in Algebraic Processes*, ch. 2); the Schur
@@ -23,6 +23,16 @@ pub const K: f64 = 16.0 * f64::EPSILON;
 /// that caps both where roots meet).
 pub const K_SCHUR: f64 = 128.0 * f64::EPSILON;
 
+/// The compensated path's final rounding: each root's parts are rounded once from double-double
+/// to double (half a unit each), after a last operation or two; four units of the scale.
+pub const K_FINAL: f64 = 4.0 * f64::EPSILON;
+
+/// The compensated path's coefficients: a dozen double-double operations on the binary inputs,
+/// each within about `2^-104` of its terms, which are at most about the scale's power of the
+/// coefficient (`Omega^2` terms of the central difference's `c2` at `Omega^2` scale, the
+/// family's terms over its common denominator bounded); `2^-96` leaves a margin of a few hundred.
+pub const K_DD: f64 = 256.0 * f64::EPSILON * f64::EPSILON; // 2^-96 (EPSILON = 2^-52)
+
 /// Error bounds of each root (absolute), for each path.
 pub struct Bounds {
     /// `max(1, largest modulus)`.
@@ -35,6 +45,9 @@ pub struct Bounds {
     /// condition from the right and left eigenvectors ([`eigenvalue_condition`]), capped by
     /// [`cluster_bound`].
     pub schur: [f64; 3],
+    /// The compensated path's: `K_FINAL scale` plus `K_DD scale max(1, cond_i)`, the latter
+    /// capped by [`cluster_bound`] with the double-double perturbation `K_DD scale^3`.
+    pub compensated: [f64; 3],
     /// The largest `cond_i`.
     pub cond: f64,
 }
@@ -82,8 +95,10 @@ pub fn bounds(z: &[Complex<f64>; 3], a: &[[f64; 3]; 3]) -> Bounds {
     let scale = z.iter().map(|r| r.norm()).fold(1.0, f64::max);
     let norm_a = a.iter().flatten().map(|x| x * x).sum::<f64>().sqrt();
     let delta = K_SCHUR * scale.max(norm_a) * scale * scale;
+    let delta_dd = K_DD * scale * scale * scale;
     let mut closed_form = [0.0; 3];
     let mut schur = [0.0; 3];
+    let mut compensated = [0.0; 3];
     let mut worst = 0.0f64;
     for i in 0..3 {
         let (j, k) = ((i + 1) % 3, (i + 2) % 3);
@@ -99,11 +114,14 @@ pub fn bounds(z: &[Complex<f64>; 3], a: &[[f64; 3]; 3]) -> Bounds {
         let cluster = cluster_bound(delta, dj.max(dk));
         closed_form[i] = (K * scale * cond.max(1.0)).min(cluster);
         schur[i] = (K_SCHUR * norm_a * eigenvalue_condition(a, z[i])).min(cluster);
+        compensated[i] = K_FINAL * scale
+            + (K_DD * scale * cond.max(1.0)).min(cluster_bound(delta_dd, dj.max(dk)));
     }
     Bounds {
         scale,
         closed_form,
         schur,
+        compensated,
         cond: worst,
     }
 }

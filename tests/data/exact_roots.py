@@ -20,14 +20,21 @@ half-step form has `z^3 + (Omega^2 + Z - 2) z^2 + (1 - Z) z` (damping force from
 half-step velocity) and `z^3 + (Omega^2 + 3 Z / 2 - 2) z^2 + (1 - 2 Z) z + Z / 2` (predicted
 velocity), `Z = 2 xi Omega` (the stepping equations of docs/explicit.md).
 
-Three kinds of points:
+Four kinds of points:
 - `random`: a scheme drawn from a family (its parameter drawn uniformly), `Omega` log-uniform on
   [1e-4, 1e6], `xi` uniform on [0, 1] (Python's `random.Random` with a fixed seed: the same
   draws on every platform);
 - `cluster`: points next to where two roots meet (the cubic's discriminant changes sign as
   `Omega` grows, found by bisection in mpmath), at relative offsets 1e-2 .. 1e-12 on both sides:
   roots `sqrt(offset)` apart, the hardest points for any eigenvalue method;
-- `found`: single points that a search found hard (listed in `FOUND` with where they came from).
+- `found`: single points that a search found hard (listed in `FOUND` with where they came from);
+- `coalescence`: for the schemes and damping ratios of `COALESCENCE` (the central difference in
+  both forms at xi 0, 0.01, 0.1, 0.3 and 0.6; Newmark's linear acceleration; generalised-alpha
+  with rho_inf = 0; Newmark with gamma = 0.6, unconditionally and conditionally stable), every
+  sign change of the discriminant located to about 50 digits in exact arithmetic on the binary
+  inputs, then the doubles within two units in the last place of it and at relative offsets
+  1e-15 .. 1e-6 on both sides: roots about 1e-8 .. 1e-3 apart (and, where there is no sign
+  change, generalised-alpha with rho_inf = 0 at Omega 1e2 .. 1e8, closing in on a triple root).
 
 Run from the repository root:
 
@@ -42,6 +49,7 @@ header's version line may differ.
 Requirements: tests/data/requirements.txt (mpmath)
 """
 import argparse
+import math
 import os
 import random
 import shutil
@@ -94,6 +102,25 @@ NAMED = (
 )
 CLUSTER_XI = (0.0, 0.01, 0.05, 0.2, 0.7, 1.0)
 OFFSETS = [s * 10.0 ** -k for k in (2, 4, 6, 8, 10, 12) for s in (-1.0, 1.0)]
+
+# Where roots meet, sampled much closer (the coalescence rows): each scheme at each damping ratio,
+# every Omega in [1e-4, 1e6] where the discriminant changes sign found in exact arithmetic on the
+# binary parameters and damping ratio (mpf of the double, never of a decimal string: one unit in
+# the last place of an input moves a double root by about 1e-8), then the doubles nearest to it
+# (the nearest and two on each side) and Omega (1 +/- s) rounded to double for s = 1e-15 .. 1e-6.
+COALESCENCE = (
+    [(CD_LAGGED, xi) for xi in (0.0, 0.01, 0.1, 0.3, 0.6)]
+    + [(CD_PREDICTED, xi) for xi in (0.0, 0.01, 0.1, 0.3, 0.6)]
+    + [(newmark(1.0 / 6.0, 0.5), xi) for xi in (0.0, 0.05)]
+    + [(generalized_alpha(0.0), xi) for xi in (0.0, 0.05, 1.0)]
+    + [(newmark(0.3025, 0.6), xi) for xi in (0.0, 0.05)]
+    + [(newmark(0.2, 0.6), xi) for xi in (0.0, 0.05)]
+)
+COALESCENCE_OFFSETS = [s * 10.0 ** -k for k in range(6, 16) for s in (-1.0, 1.0)]
+COALESCENCE_ULPS = (-2, -1, 0, 1, 2)
+# Generalised-alpha with rho_inf = 0 has no sign change at xi = 0 or 0.05: its three roots close
+# in on a triple root at 0 as Omega grows (about Omega^(-2/3) apart). Rows at these Omega.
+TRIPLE = [(generalized_alpha(0.0), xi, 10.0 ** k) for xi in (0.0, 0.05) for k in range(2, 9)]
 
 # (scheme, Omega, xi, where it came from)
 FOUND = [
@@ -169,8 +196,9 @@ def roots(scheme, omega, xi):
     return z
 
 
-def cluster_omegas(scheme, xi):
-    """The Omega in [1e-4, 1e6] where the discriminant changes sign (to 40 digits)."""
+def sign_changes(scheme, xi, steps=140):
+    """The Omega in [1e-4, 1e6] where the discriminant changes sign, as mpf, bisected `steps`
+    times from a grid of 401 points (140: to about 40 digits; more for the coalescence rows)."""
     grid = [10.0 ** (-4.0 + 10.0 * i / 400) for i in range(401)]
     disc = [discriminant(coefficients(scheme, o, xi)) for o in grid]
     out = []
@@ -178,14 +206,35 @@ def cluster_omegas(scheme, xi):
         if dlo == 0 or dhi == 0 or (dlo > 0) == (dhi > 0):
             continue
         a, b = mp.mpf(lo), mp.mpf(hi)
-        for _ in range(140):
+        for _ in range(steps):
             mid = (a + b) / 2
             dm = discriminant(coefficients(scheme, mid, xi))
             if (dm > 0) == (dlo > 0):
                 a = mid
             else:
                 b = mid
-        out.append(float((a + b) / 2))
+        out.append((a + b) / 2)
+    return out
+
+
+def cluster_omegas(scheme, xi):
+    """The Omega in [1e-4, 1e6] where the discriminant changes sign (to 40 digits)."""
+    return [float(o) for o in sign_changes(scheme, xi)]
+
+
+def coalescence_omegas(scheme, xi):
+    """The doubles next to each coalescence point (exact to the working precision): the nearest
+    ones, and Omega (1 +/- s) rounded to double."""
+    out = []
+    for oc in sign_changes(scheme, xi, steps=170):
+        nearest = float(oc)
+        for k in COALESCENCE_ULPS:
+            o = nearest
+            for _ in range(abs(k)):
+                o = math.nextafter(o, math.inf if k > 0 else -math.inf)
+            out.append(o)
+        for s in COALESCENCE_OFFSETS:
+            out.append(float(oc * (1 + mp.mpf(s))))
     return out
 
 
@@ -212,6 +261,11 @@ def points():
                     pts.append(("cluster", scheme, o * (1.0 + s), xi))
     for scheme, omega, xi, _ in FOUND:
         pts.append(("found", scheme, omega, xi))
+    for scheme, xi in COALESCENCE:
+        for o in coalescence_omegas(scheme, xi):
+            pts.append(("coalescence", scheme, o, xi))
+    for scheme, xi, o in TRIPLE:
+        pts.append(("coalescence", scheme, o, xi))
     return pts
 
 
@@ -223,7 +277,9 @@ def write(out):
         f.write("# command: python3 tests/data/exact_roots.py\n")
         f.write(f"# python {sys.version.split()[0]}, mpmath {mp.__version__}\n")
         f.write(f"# {RANDOM_POINTS} random points (seed {SEED}), cluster points next to each "
-                "sign change of the discriminant, and the found points:\n")
+                "sign change of the discriminant, the found points, and coalescence points "
+                "(1e-15 .. 1e-6 and 0..2 ulps from each sign change, for the COALESCENCE "
+                "schemes of the script):\n")
         for scheme, omega, xi, why in FOUND:
             f.write(f"#   found at Omega {omega!r}, xi {xi!r}: {why}\n")
         f.write("kind,scheme,alpha_m,alpha_f,beta,gamma,omega,xi,"

@@ -1,0 +1,344 @@
+//! The roots of the characteristic cubic in compensated (double-double) arithmetic: the path of
+//! the points where the closed form's condition test fails, that is where roots meet.
+//!
+//! Where two roots meet (the principal pair turning from complex to real, such as the central
+//! difference's at `Omega_crit`), a relative perturbation `delta` of the coefficients moves them
+//! by about `sqrt(delta)`: the coefficients in double precision (or the rounded amplification
+//! matrix the eigen-solver would be given) leave about eight correct digits. Here:
+//!
+//! 1. the polynomial `P(z) = sum_k P_k z^k` is formed from the scheme's constants held in
+//!    double-double (each `1 - alpha`, sum and product of the parameters exact to about
+//!    `2^-104` of its terms) and from `Z = 2 xi Omega` and `Omega^2` as exact products, and made
+//!    monic in double-double: coefficients within about `1e-31` of the exact polynomial of the
+//!    binary inputs;
+//! 2. the most isolated root (the real root when the other two are a complex pair; of three real
+//!    roots the one farthest from the other two) is taken from the closed form in double
+//!    precision and polished by Newton steps on the double-double cubic, to about `1e-31` when it
+//!    is a simple root;
+//! 3. the cubic is deflated by it in double-double (forward when it is the root of largest
+//!    modulus, backward otherwise) and the remaining quadratic solved with its discriminant in
+//!    double-double, so that the pair that meets is found to about `sqrt(1e-31)`, which is below
+//!    the final rounding to double precision. A complex pair's modulus is the square root of the
+//!    quadratic's constant term (the pair's product), which does not cancel.
+//!
+//! The arithmetic is that of the `twofloat` crate (Joldes, Muller & Popescu 2017, "Tight and
+//! rigorous error bounds for basic building blocks of double-word arithmetic", *ACM TOMS* 44(2);
+//! the algorithms are named in its source).
+
+use nalgebra::Complex;
+use twofloat::TwoFloat as Dd;
+
+use super::roots::{deflated_pair, in_range, polish, real_root};
+
+/// The constants `[a_k, b_k, g_k]` of `P_k = a_k + b_k (2 xi Omega) + g_k Omega^2`, `k = 0..=3`,
+/// in double-double (the same table as [`Prepared`](super::Prepared)'s, see there).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Constants([[Dd; 3]; 4]);
+
+impl Constants {
+    /// The central difference's constants (exact small numbers), from the double table.
+    pub(crate) fn exact(k: &[[f64; 3]; 4]) -> Self {
+        Constants(k.map(|row| row.map(Dd::from)))
+    }
+
+    /// The generalised-alpha family's constants from its parameters, in double-double.
+    pub(crate) fn alpha(am: f64, af: f64, b: f64, g: f64) -> Self {
+        let one = |x: f64| Dd::new_sub(1.0, x);
+        let (m1, m0) = (one(am), Dd::from(am));
+        let (e1, e0) = (one(af), Dd::from(af));
+        let (g1, g0) = (Dd::from(g), one(g));
+        let n2 = Dd::from(b);
+        let n1 = Dd::new_add(g, 0.5) - 2.0 * b;
+        let n0 = Dd::new_sub(0.5, g) + b;
+        Constants([
+            [m0, -(e0 * g0), e0 * n0],
+            [
+                m1 - 2.0 * m0,
+                e0 * g0 - e1 * g0 - e0 * g1,
+                e1 * n0 + e0 * n1,
+            ],
+            [
+                m0 - 2.0 * m1,
+                e1 * g0 + e0 * g1 - e1 * g1,
+                e1 * n1 + e0 * n2,
+            ],
+            [m1, e1 * g1, e1 * n2],
+        ])
+    }
+
+    /// The monic coefficients `(c2, c1, c0)` at `Omega`, `xi`, in double-double.
+    pub(crate) fn monic(&self, omega_dt: f64, xi: f64) -> (Dd, Dd, Dd) {
+        // 2 xi is exact (a power of two times xi); both products are exact in double-double.
+        let z = Dd::new_mul(2.0 * xi, omega_dt);
+        let o2 = Dd::new_mul(omega_dt, omega_dt);
+        let p = |j: usize| {
+            let [a, b, g] = self.0[j];
+            a + b * z + g * o2
+        };
+        let lead = p(3);
+        (div(p(2), lead), div(p(1), lead), div(p(0), lead))
+    }
+}
+
+/// The three roots of the monic cubic `z^3 + c2 z^2 + c1 z + c0` given in double-double, laid out
+/// as the closed form lays them out (a real root, then the pair: complex with the positive
+/// imaginary part first, or real with the larger modulus first); `None` for non-finite or extreme
+/// coefficients (the caller's eigen-solver takes over).
+pub(crate) fn roots(c2: Dd, c1: Dd, c0: Dd) -> Option<[Complex<f64>; 3]> {
+    let (h2, h1, h0) = (c2.hi(), c1.hi(), c0.hi());
+    if !in_range(h2, h1, h0) {
+        return None;
+    }
+    let r = if h0 == 0.0 && c0.lo() == 0.0 {
+        // An exact root 0 (the lagged central difference): deflate by it exactly.
+        Dd::from(0.0)
+    } else {
+        let cubic = Cubic {
+            c2,
+            c1,
+            c0,
+            guesses: guesses(h2, h1, h0),
+        };
+        cubic.isolated_real_root()
+    };
+    // Deflation: z^3 + c2 z^2 + c1 z + c0 = (z - r)(z^2 + b z + c).
+    let b = c2 + r;
+    let c = if r.hi().abs().powi(3) >= h0.abs() {
+        c1 + r * b
+    } else {
+        -div(c0, r)
+    };
+    let hb = -(b * 0.5);
+    let disc = hb * hb - c;
+    let (z2, z3) = if disc.hi() < 0.0 {
+        let im = f64::from((-disc).sqrt());
+        let re = f64::from(hb);
+        (Complex::new(re, im), Complex::new(re, -im))
+    } else {
+        let s = disc.sqrt();
+        let big = if hb.hi() >= 0.0 { hb + s } else { hb - s };
+        let small = if big.hi() == 0.0 {
+            Dd::from(0.0)
+        } else {
+            div(c, big)
+        };
+        (
+            Complex::new(f64::from(big), 0.0),
+            Complex::new(f64::from(small), 0.0),
+        )
+    };
+    let z1 = Complex::new(f64::from(r), 0.0);
+    let finite = [z1, z2, z3]
+        .iter()
+        .all(|z| z.re.is_finite() && z.im.is_finite());
+    finite.then_some([z1, z2, z3])
+}
+
+/// `x / y` in double-double, to about `2^-104` relative: long division with three quotient
+/// digits, each residual formed exactly (Bailey's `qd` library's accurate division, from memory).
+///
+/// Written here because `twofloat`'s own division of two double-double numbers (0.8.4) forms the
+/// reciprocal's residual `1 - y_hi t` without a fused multiply-add, which leaves only about
+/// double precision: `x / x` came out as `1 - 3.7e-17` for the coefficients of Newmark's linear
+/// acceleration at `Omega = 2 sqrt(3)`, where the pair's discriminant is `-6.5e-18`.
+fn div(x: Dd, y: Dd) -> Dd {
+    let q1 = x.hi() / y.hi();
+    let r = x - y * q1;
+    let q2 = r.hi() / y.hi();
+    let r = r - y * q2;
+    let q3 = r.hi() / y.hi();
+    Dd::new_add(q1, q2) + q3
+}
+
+/// Starting points for the bracketed searches: the real parts of the closed form's roots on the
+/// double-precision coefficients (a few units of rounding times the roots' condition off).
+fn guesses(c2: f64, c1: f64, c0: f64) -> [f64; 3] {
+    let r = polish(real_root(c2, c1, c0), c2, c1, c0);
+    let (z2, z3) = deflated_pair(c2, c1, c0, r);
+    [r, z2.re, z3.re]
+}
+
+/// A monic cubic `z^3 + c2 z^2 + c1 z + c0` in double-double, with starting points for its real
+/// roots.
+struct Cubic {
+    c2: Dd,
+    c1: Dd,
+    c0: Dd,
+    guesses: [f64; 3],
+}
+
+impl Cubic {
+    fn value(&self, z: Dd) -> Dd {
+        ((z + self.c2) * z + self.c1) * z + self.c0
+    }
+
+    fn slope(&self, z: Dd) -> Dd {
+        (z * 3.0 + self.c2 * 2.0) * z + self.c1
+    }
+
+    /// The real root farthest from the other two roots: the only real one, or of three real roots
+    /// the one whose nearer neighbour is farthest. Each real root is found in its own interval of
+    /// monotonicity (bounded by the roots of the derivative and the Cauchy bound) by Newton steps
+    /// kept inside a shrinking bracket, so that it is found to double-double precision as a
+    /// simple root of its interval, however close the other roots are.
+    fn isolated_real_root(&self) -> Dd {
+        let (c2, c1, c0) = (self.c2, self.c1, self.c0);
+        // Every root lies within 1 + max |c_k| of zero (Cauchy).
+        let bound = 1.0 + c2.hi().abs().max(c1.hi().abs()).max(c0.hi().abs());
+        let (lo, hi) = (Dd::from(-1.001 * bound), Dd::from(1.001 * bound));
+        // Critical points: 3 z^2 + 2 c2 z + c1 = 0, z = (-c2 -/+ sqrt(c2^2 - 3 c1)) / 3.
+        let d = c2 * c2 - c1 * 3.0;
+        if d.hi() <= 0.0 {
+            // Monotone: one real root.
+            return self.bracketed(lo, hi);
+        }
+        let sq = d.sqrt();
+        // Without cancellation: the critical point of larger modulus first, the other from the
+        // product of the two, c1 / 3.
+        let big = if c2.hi() >= 0.0 { -(c2 + sq) } else { sq - c2 };
+        let big = big / 3.0;
+        let small = if big.hi() == 0.0 {
+            big
+        } else {
+            div(c1, big * 3.0)
+        };
+        let (s1, s2) = if big < small {
+            (big, small)
+        } else {
+            (small, big)
+        };
+        let (f1, f2) = (self.value(s1), self.value(s2));
+        // f rises to a local maximum f1 at s1, falls to a local minimum f2 at s2, then rises.
+        if f1.hi() < 0.0 {
+            return self.bracketed(s2, hi);
+        }
+        if f2.hi() > 0.0 {
+            return self.bracketed(lo, s1);
+        }
+        // Three real roots (a double one where f1 or f2 is zero).
+        let roots = [
+            self.bracketed(lo, s1),
+            self.bracketed(s1, s2),
+            self.bracketed(s2, hi),
+        ];
+        let gap = |i: usize| {
+            let (a, b) = ((i + 1) % 3, (i + 2) % 3);
+            let da = (roots[i] - roots[a]).hi().abs();
+            let db = (roots[i] - roots[b]).hi().abs();
+            da.min(db)
+        };
+        let best = (0..3)
+            .max_by(|&i, &j| gap(i).total_cmp(&gap(j)))
+            .unwrap_or(0);
+        roots[best]
+    }
+
+    /// The root of the cubic in `[lo, hi]`, where it is monotone and changes sign (or vanishes at
+    /// an end): Newton steps from a starting point inside (or the middle), replaced by bisection
+    /// whenever they would leave the bracket, until the bracket or the step is at double-double
+    /// resolution.
+    fn bracketed(&self, mut lo: Dd, mut hi: Dd) -> Dd {
+        let f_lo = self.value(lo);
+        if f_lo.hi() == 0.0 {
+            return lo;
+        }
+        let rising = f_lo.hi() < 0.0;
+        let mut x = match self.guesses.iter().find(|&&g| g > lo.hi() && g < hi.hi()) {
+            Some(&g) => Dd::from(g),
+            None => (lo + hi) * 0.5,
+        };
+        for _ in 0..200 {
+            let f = self.value(x);
+            if f.hi() == 0.0 {
+                return x;
+            }
+            if (f.hi() < 0.0) == rising {
+                lo = x;
+            } else {
+                hi = x;
+            }
+            let width = (hi - lo).hi().abs();
+            let scale = lo.hi().abs().max(hi.hi().abs()).max(f64::MIN_POSITIVE);
+            if width <= 2f64.powi(-104) * scale {
+                return x;
+            }
+            let d = self.slope(x);
+            let newton = if d.hi() == 0.0 {
+                None
+            } else {
+                Some(x - div(f, d))
+            };
+            match newton {
+                Some(n) if n > lo && n < hi => {
+                    if (n - x).hi().abs() <= 2f64.powi(-104) * scale {
+                        return n;
+                    }
+                    x = n;
+                }
+                _ => x = (lo + hi) * 0.5,
+            }
+        }
+        x
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Double roots known exactly: `(z + 1)^2 z` (the undamped central difference at
+    /// `Omega = 2`), `(z - 1/2)^2 (z + 1/4)` and a pair `1/2 +/- 1e-9 i` beside `-0.3`. The
+    /// compensated path gives them to the last bit of double precision where the double-precision
+    /// discriminant leaves about eight digits.
+    #[test]
+    fn double_roots_to_full_precision() {
+        let exact = |c: [f64; 3]| (Dd::from(c[0]), Dd::from(c[1]), Dd::from(c[2]));
+        let (c2, c1, c0) = exact([2.0, 1.0, 0.0]);
+        let z = roots(c2, c1, c0).unwrap();
+        assert_eq!(z[0], Complex::new(0.0, 0.0));
+        assert_eq!(
+            (z[1], z[2]),
+            (Complex::new(-1.0, 0.0), Complex::new(-1.0, 0.0))
+        );
+        // (z - 1/2)^2 (z + 1/4) = z^3 - 3/4 z^2 + 0 z + 1/16.
+        let (c2, c1, c0) = exact([-0.75, 0.0, 0.0625]);
+        let z = roots(c2, c1, c0).unwrap();
+        let mut re: Vec<f64> = z.iter().map(|z| z.re).collect();
+        re.sort_by(f64::total_cmp);
+        assert_eq!(re, vec![-0.25, 0.5, 0.5]);
+        assert!(z.iter().all(|z| z.im == 0.0));
+        // (z + 0.3)((z - 1/2)^2 + 1e-18): coefficients in double-double.
+        let e = Dd::from(1e-18);
+        let q1 = Dd::from(0.25) + e;
+        let (c2, c1, c0) = (Dd::from(-1.0) + 0.3, q1 - Dd::from(0.3), q1 * 0.3);
+        let z = roots(c2, c1, c0).unwrap();
+        assert!((z[0].re + 0.3).abs() <= 1e-16, "{z:?}");
+        assert!((z[1].re - 0.5).abs() <= 1e-16 && (z[1].im - 1e-9).abs() <= 1e-16 * 1e-9 + 1e-24);
+    }
+}
+
+#[cfg(test)]
+mod division_tests {
+    use super::*;
+
+    /// `x / x` is one to the last bit of double-double; `1/3` and `2/3` within `2^-104` of
+    /// their values (exact: `3 q` is `1` to that precision); a quotient of two non-trivial
+    /// double-double numbers times the divisor gives the dividend back to `2^-104`.
+    #[test]
+    fn division_to_double_double_precision() {
+        let x = Dd::new_add(1.0 + 1.0 / 3.0, 1e-17) * 3.7;
+        let q = div(x, x);
+        assert_eq!((q.hi(), q.lo()), (1.0, 0.0));
+        let third = div(Dd::from(1.0), Dd::from(3.0));
+        let back = third * 3.0 - 1.0;
+        assert!(back.hi().abs() <= 2f64.powi(-104), "{}", back.hi());
+        let y = Dd::new_add(0.6666666666666667, -5.551115123125783e-17);
+        let z = div(x, y);
+        let err = z * y - x;
+        assert!(
+            err.hi().abs() <= 2f64.powi(-103) * x.hi().abs(),
+            "{}",
+            err.hi()
+        );
+    }
+}
