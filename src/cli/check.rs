@@ -17,7 +17,10 @@ Judge one time-integration parameter set before a run: is it stable for every st
 up to a critical Omega = omega dt, or for none; its high-frequency spectral radius rho_inf
 (numerical dissipation), its order of accuracy, and, for a given model and step, the largest
 stable step and whether the planned step is within it. Every conclusion comes with its reason,
-naming the published bound or the computation it rests on.
+naming the published bound or the computation it rests on. Stability is decided exactly, for
+every Omega, by the Routh-Hurwitz conditions on the characteristic polynomial in double-double
+arithmetic (docs/spectral.md); published bounds are quoted beside it where their sources state
+them (for xi = 0).
 
 Schemes (--scheme, default newmark with beta 1/4, gamma 1/2: average acceleration):
   central-difference  the explicit engine's scheme; --damping-velocity lagged|predicted
@@ -43,7 +46,9 @@ Output: text by default; --json prints one object with at least {\"scheme\": str
 \"unconditionally_stable\": bool, \"omega_crit\": float or null, \"rho_inf\": float or null
 (null: unbounded, explicit schemes), \"order\": int, \"reasons\": [str, ...]}, followed by
 \"label\", \"stability\" (\"unconditional\", \"conditional\" or \"unstable\"),
-\"omega_crit_closed_form\", \"dissipative\", \"explicit\", \"max_frequency\", \"dt\",
+\"stable_at_omega_crit\" (conditional sets: whether omega dt = omega_crit itself is stable),
+\"stable_again\" ([from, to] intervals of Omega above omega_crit that are stable again; to is
+null for no end), \"omega_crit_closed_form\", \"dissipative\", \"explicit\", \"max_frequency\", \"dt\",
 \"dt_stable\", \"step_stable\", \"frequency_of_interest\", \"period_error_target\",
 \"dt_accuracy\" and \"period_error_at_interest\" (null where not asked or none). --csv prints
 a header row and one data row with the same fields (reasons joined by \" | \"). --plot
@@ -127,6 +132,8 @@ struct CheckJson<'a> {
     reasons: &'a [String],
     label: &'a str,
     stability: &'static str,
+    stable_at_omega_crit: Option<bool>,
+    stable_again: &'a [(f64, f64)],
     omega_crit_closed_form: Option<f64>,
     dissipative: bool,
     explicit: bool,
@@ -191,6 +198,8 @@ pub fn run(args: &CheckArgs) -> Result<u8, Failure> {
         reasons: &verdict.reasons,
         label: &chosen.label,
         stability: stability_name(verdict.stability),
+        stable_at_omega_crit: verdict.stable_at_omega_crit,
+        stable_again: &verdict.stable_again,
         omega_crit_closed_form: verdict.omega_crit_closed_form,
         dissipative: verdict.dissipative,
         explicit: chosen.scheme.is_explicit(),
@@ -237,6 +246,17 @@ fn csv(j: &CheckJson) -> String {
         ("order", j.order.to_string()),
         ("label", csv_field(j.label)),
         ("stability", j.stability.to_string()),
+        ("stable_at_omega_crit", b(j.stable_at_omega_crit)),
+        (
+            "stable_again",
+            csv_field(
+                &j.stable_again
+                    .iter()
+                    .map(|(a, b)| format!("{a}..{b}"))
+                    .collect::<Vec<_>>()
+                    .join(" "),
+            ),
+        ),
         ("omega_crit_closed_form", csv_num(j.omega_crit_closed_form)),
         ("dissipative", b(Some(j.dissipative))),
         ("explicit", b(Some(j.explicit))),
@@ -280,9 +300,16 @@ fn human(chosen: &Labelled, xi: f64, ctx: &CheckContext, v: &Verdict) -> String 
             "none: stable for every step".to_string(),
         ),
         Stability::Conditional { omega_crit } => (
-            "conditionally stable: stable for omega dt <= omega_crit".to_string(),
             format!(
-                "{omega_crit} (bracketing search); closed form {}",
+                "conditionally stable: stable for omega dt {} omega_crit",
+                if v.stable_at_omega_crit == Some(false) {
+                    "<"
+                } else {
+                    "<="
+                }
+            ),
+            format!(
+                "{omega_crit} (exact criterion, see the reasons); closed form {}",
                 v.omega_crit_closed_form
                     .map_or_else(|| "none published".to_string(), |c| c.to_string())
             ),

@@ -3,14 +3,17 @@
 use serde::{Deserialize, Serialize};
 
 use super::metrics::{
-    INSTABILITY_MARGIN, largest_step_for_period_error, metrics, omega_crit_numeric,
-    order_of_accuracy, rho_inf, spectral_radius,
+    INSTABILITY_MARGIN, largest_step_for_period_error, metrics, order_of_accuracy, rho_inf,
+    spectral_radius,
 };
 use super::scheme::Scheme;
+use super::stability::{BoundaryKind, StabilityRegion, StepStability};
 use crate::error::{Error, Result};
 use crate::explicit::ForceVelocity;
 
-/// Largest `Omega` the numerical scan looks at for sets no published bound covers.
+/// Largest `Omega` of the numerical scans ([`omega_crit_numeric`](super::omega_crit_numeric),
+/// an independent cross-check; the verdicts rest on [`StabilityRegion`], which covers every
+/// `Omega`).
 pub const SCAN_LIMIT: f64 = 1e4;
 
 /// Stability of a scheme for one mode with physical damping ratio `xi`.
@@ -46,7 +49,15 @@ pub struct CheckContext {
 pub struct Verdict {
     /// Stability.
     pub stability: Stability,
-    /// The critical `Omega` from the published closed form, where one exists.
+    /// For a conditionally stable set, whether `Omega = omega_crit` itself is stable: `true` for
+    /// a simple root on the unit circle there (bounded), `false` for a double root at -1 (which
+    /// grows linearly: the undamped central difference at `Omega = 2`) or a root beyond it.
+    pub stable_at_omega_crit: Option<bool>,
+    /// Intervals of `Omega` above `omega_crit` (or above zero, for an unstable set) where the
+    /// set is stable again, `(from, to)`, `to` infinite for the last; empty for most sets.
+    pub stable_again: Vec<(f64, f64)>,
+    /// The critical `Omega` from the published closed form, where one exists for the scheme and
+    /// damping ratio (see [`omega_crit_closed_form`]).
     pub omega_crit_closed_form: Option<f64>,
     /// Order of accuracy (from the local truncation error).
     pub order: u32,
@@ -92,12 +103,13 @@ pub fn omega_crit_closed_form(scheme: &Scheme, xi: f64) -> Option<f64> {
 
 /// Judges a scheme for physical damping ratio `xi`, and against the context when given.
 ///
-/// Unconditional stability is decided by the published bounds (Newmark: `2 beta >= gamma >= 1/2`,
-/// Newmark 1959 and Hughes 1987; HHT: `alpha` in `[-1/3, 0]`, Hilber, Hughes & Taylor 1977;
-/// WBZ / generalised-alpha: `alpha_m <= alpha_f <= 1/2`, `beta >= 1/4 + (alpha_f - alpha_m)/2`,
-/// Chung & Hulbert 1993) and the limit analysis (`rho_inf <= 1`), never by scanning to huge
-/// `Omega` alone. Conditional sets get `Omega_crit` by a bracketing search (and the closed form
-/// beside it where one exists).
+/// Stability is decided by [`StabilityRegion`]: the Routh-Hurwitz conditions on the bilinear
+/// transform of the characteristic polynomial, evaluated in double-double at every `Omega` where
+/// one of them can change, so the verdict covers every `Omega > 0` and `omega_crit` is exact to
+/// that rounding (see `docs/spectral.md`). The step of the context is judged by the same
+/// criterion at its own `Omega`. The published bounds (Newmark 1959 and Hughes 1987; Hilber,
+/// Hughes & Taylor 1977; Chung & Hulbert 1993, for the second-order `gamma` only) and the closed
+/// forms of `omega_crit` are quoted beside it in the reasons, where their sources state them.
 ///
 /// # Errors
 /// [`Error::InvalidParameter`] for a negative or non-finite `xi` or context value, and for family
@@ -135,12 +147,9 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
     let rho_inf = rho_inf(scheme);
     let order = order_of_accuracy(scheme, xi);
     let closed = omega_crit_closed_form(scheme, xi);
-    let stability = stability(scheme, xi, rho_inf, &mut reasons);
-    if let (Stability::Conditional { omega_crit }, Some(c)) = (stability, closed) {
-        reasons.push(format!(
-            "critical Omega {omega_crit:.12} found by bracketing; the closed form gives {c:.12}"
-        ));
-    }
+    let region = StabilityRegion::new(scheme, xi);
+    let stability = stability(&region, closed, &mut reasons);
+    published_bounds(scheme, xi, stability, &mut reasons);
     reasons.push(match order {
         2.. => format!(
             "order {order}: the local truncation error falls like Omega^{} (Hughes 1987, sec. 9.1)",
@@ -170,8 +179,14 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
         Some(r) => format!("no high-frequency dissipation: rho_inf = {r:.12}"),
         None => "explicit: the spectral radius grows without bound as Omega grows".to_string(),
     });
+    let boundary = region.critical_boundary();
     let mut verdict = Verdict {
         stability,
+        stable_at_omega_crit: match stability {
+            Stability::Conditional { .. } => boundary.map(|b| b.at.is_stable()),
+            _ => None,
+        },
+        stable_again: region.stable_again(),
         omega_crit_closed_form: closed,
         order,
         rho_inf,
@@ -183,36 +198,46 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
         reasons,
     };
     if let Some(w) = ctx.omega_max {
-        match stability {
-            Stability::Conditional { omega_crit } => {
-                let dt_stable = omega_crit / w;
-                verdict.dt_stable = Some(dt_stable);
-                verdict.reasons.push(format!(
-                    "with omega_max = {w} rad/s the largest stable step is {dt_stable:.6e} s"
-                ));
-                if let Some(dt) = ctx.dt {
-                    let ok = dt <= dt_stable;
-                    verdict.step_stable = Some(ok);
-                    verdict.reasons.push(if ok {
-                        format!("dt = {dt} s is within the stable limit")
-                    } else {
-                        format!("dt = {dt} s exceeds the stable limit {dt_stable:.6e} s")
-                    });
+        if let Stability::Conditional { omega_crit } = stability {
+            let dt_stable = omega_crit / w;
+            verdict.dt_stable = Some(dt_stable);
+            verdict.reasons.push(format!(
+                "with omega_max = {w} rad/s the largest stable step is {dt_stable:.6e} s{}",
+                if verdict.stable_at_omega_crit == Some(false) {
+                    " (exclusive: Omega_crit itself is unstable)"
+                } else {
+                    ""
                 }
-            }
-            Stability::Unconditional => {
-                if ctx.dt.is_some() {
-                    verdict.step_stable = Some(true);
-                }
-            }
-            Stability::Unstable => {
-                if ctx.dt.is_some() {
-                    verdict.step_stable = Some(false);
-                }
+            ));
+        }
+        if let Some(dt) = ctx.dt {
+            // The criterion at the step's own Omega, in double-double: exact also a few units in
+            // the last place from the limit.
+            let at = region.at(w * dt);
+            verdict.step_stable = Some(at.is_stable());
+            if let Stability::Conditional { .. } = stability {
+                verdict.reasons.push(match at {
+                    StepStability::Stable => {
+                        format!(
+                            "dt = {dt} s (Omega = {}) is within the stable limit",
+                            w * dt
+                        )
+                    }
+                    StepStability::Marginal => format!(
+                        "dt = {dt} s (Omega = {}) is stable, with a root on the unit circle",
+                        w * dt
+                    ),
+                    StepStability::Unstable => format!(
+                        "dt = {dt} s (Omega = {}) exceeds the stable limit{}",
+                        w * dt,
+                        verdict
+                            .dt_stable
+                            .map_or(String::new(), |d| format!(" {d:.6e} s"))
+                    ),
+                });
             }
         }
-    } else if let (Some(dt), Stability::Unstable) = (ctx.dt, stability) {
-        let _ = dt;
+    } else if let (Some(_), Stability::Unstable) = (ctx.dt, stability) {
         verdict.step_stable = Some(false);
     }
     if let Some(wi) = ctx.omega_interest {
@@ -230,103 +255,181 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
     Ok(verdict)
 }
 
+/// The verdict from the exact region, with its reasons (the closed form beside it where one
+/// exists for the scheme and damping ratio).
 fn stability(
-    scheme: &Scheme,
-    xi: f64,
-    rho_inf: Option<f64>,
+    region: &StabilityRegion,
+    closed: Option<f64>,
     reasons: &mut Vec<String>,
 ) -> Stability {
-    let conditional =
-        |reasons: &mut Vec<String>, why: String| match omega_crit_numeric(scheme, xi, SCAN_LIMIT) {
-            Some(o) if o > 0.0 => {
-                reasons.push(why);
-                Stability::Conditional { omega_crit: o }
-            }
-            Some(_) => {
-                reasons.push(format!("{why}; but already unstable at Omega = 1e-3"));
-                Stability::Unstable
-            }
-            None => {
-                reasons.push(format!(
-                    "{why}; no instability found up to Omega = {SCAN_LIMIT:e} (numerical scan)"
-                ));
-                Stability::Unconditional
-            }
-        };
-    match scheme {
-        Scheme::CentralDifference(fv) => conditional(
-            reasons,
+    const CRITERION: &str = "the Routh-Hurwitz conditions on the bilinear transform of the \
+        characteristic polynomial, evaluated in double-double at every Omega where one can change \
+        (common practice; Hughes 1987, sec. 9.1, uses the same criterion for Newmark's method)";
+    let windows = |again: &[(f64, f64)]| -> String {
+        again
+            .iter()
+            .map(|(a, b)| {
+                if b.is_finite() {
+                    format!("{a:.12} < Omega < {b:.12}")
+                } else {
+                    format!("Omega > {a:.12}")
+                }
+            })
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    let again = region.stable_again();
+    if !region.below_first.is_stable() {
+        reasons.push(format!(
+            "unstable for every step: a root lies outside the unit circle for every small Omega ({CRITERION})"
+        ));
+        if !again.is_empty() {
+            reasons.push(format!(
+                "stable only for larger steps, where no accuracy is left: {}",
+                windows(&again)
+            ));
+        }
+        return Stability::Unstable;
+    }
+    let Some(b) = region.critical_boundary() else {
+        let mut on_circle = Vec::new();
+        if region.pair_on_circle_everywhere() {
+            on_circle.push("the principal pair lies on the unit circle at every Omega (no algorithmic damping)");
+        }
+        if region.root_at_minus_one_everywhere() {
+            on_circle.push(
+                "a root stays at z = -1 at every Omega (rho = 1: no high-frequency dissipation)",
+            );
+        }
+        reasons.push(format!(
+            "unconditionally stable: every root stays in the closed unit disk for every Omega > 0 ({CRITERION}){}",
+            on_circle
+                .iter()
+                .map(|t| format!("; {t}"))
+                .collect::<String>()
+        ));
+        return Stability::Unconditional;
+    };
+    let omega_crit = b.omega;
+    let how = match b.kind {
+        BoundaryKind::RootAtMinusOne => "a real root passes through z = -1 (P(-1) = 0)",
+        BoundaryKind::PairOnCircle => "a complex pair crosses the unit circle",
+        BoundaryKind::Coefficient => "a root crosses the unit circle",
+    };
+    reasons.push(format!(
+        "conditionally stable: Omega_crit = {omega_crit:.15}, where {how} ({CRITERION})"
+    ));
+    reasons.push(match b.at {
+        StepStability::Unstable => format!(
+            "at Omega = Omega_crit exactly: unstable (a double root at -1, or a root beyond the circle: the solution grows linearly or faster), so stable for Omega < {omega_crit:.15}"
+        ),
+        _ => format!(
+            "at Omega = Omega_crit exactly: stable (a simple root on the unit circle: bounded, not growing), so stable for Omega <= {omega_crit:.15}"
+        ),
+    });
+    if !again.is_empty() {
+        reasons.push(format!(
+            "unstable above Omega_crit, but stable again for {}",
+            windows(&again)
+        ));
+    }
+    if let Some(c) = closed {
+        reasons.push(format!(
+            "the published closed form gives Omega_crit = {c:.15} (relative difference {:.1e})",
+            (c - omega_crit).abs() / omega_crit
+        ));
+    }
+    Stability::Conditional { omega_crit }
+}
+
+/// The published unconditional-stability bounds as cross-checks, only where their sources state
+/// them: Newmark 1959 / Hughes 1987 (`alpha_m = alpha_f = 0`), Hilber, Hughes & Taylor 1977 (the
+/// HHT relations), Chung & Hulbert 1993 (the second-order `gamma = 1/2 - alpha_m + alpha_f`), all
+/// for the undamped mode (`xi = 0`); elsewhere the reason says that the criterion alone decides.
+fn published_bounds(scheme: &Scheme, xi: f64, stability: Stability, reasons: &mut Vec<String>) {
+    let Scheme::Alpha(p) = scheme else {
+        return;
+    };
+    let (am, af, b, g) = (p.alpha_m, p.alpha_f, p.beta, p.gamma);
+    let tol = 1e-12;
+    // What the source states, where it applies: the stability it gives (None: the set lies
+    // outside a sufficient bound, so the source says nothing), and the statement.
+    let statement: Option<(Option<&str>, String)> = if am == 0.0 && af == 0.0 {
+        Some(if g < 0.5 {
+            (
+                Some("unstable"),
+                format!("gamma = {g} < 1/2: unstable (Newmark 1959; Hughes 1987, sec. 9.1)"),
+            )
+        } else if 2.0 * b >= g {
+            (
+                Some("unconditional"),
+                format!(
+                    "2 beta = {} >= gamma = {g} >= 1/2: unconditionally stable (Newmark 1959; Hughes 1987, sec. 9.1)",
+                    2.0 * b
+                ),
+            )
+        } else {
+            (
+                Some("conditional"),
+                format!(
+                    "gamma = {g} >= 1/2 but 2 beta = {} < gamma: conditionally stable (Newmark 1959; Hughes 1987, sec. 9.1)",
+                    2.0 * b
+                ),
+            )
+        })
+    } else if am == 0.0
+        && (g - (0.5 + af)).abs() <= tol
+        && (b - (1.0 + af) * (1.0 + af) / 4.0).abs() <= tol
+    {
+        let inside = (0.0..=1.0 / 3.0 + tol).contains(&af);
+        Some((
+            inside.then_some("unconditional"),
             format!(
-                "central difference is conditionally stable: Omega_crit = {} (Belytschko, Liu & Moran 2000; Hughes 1987, sec. 9.3)",
-                match fv {
-                    ForceVelocity::Lagged =>
-                        "2 (sqrt(1 + xi^2) - xi) with the lagged damping velocity",
-                    ForceVelocity::Predicted =>
-                        "2 (sqrt(1 + 4 xi^2) - 2 xi) with the predicted damping velocity",
+                "HHT alpha = {} {} (Hilber, Hughes & Taylor 1977: unconditionally stable for alpha in [-1/3, 0])",
+                -af,
+                if inside {
+                    "lies in [-1/3, 0]"
+                } else {
+                    "lies outside [-1/3, 0]"
+                },
+            ),
+        ))
+    } else if (g - (0.5 - am + af)).abs() <= tol {
+        let inside = am <= af + tol && af <= 0.5 + tol && b >= 0.25 + 0.5 * (af - am) - tol;
+        Some((
+            inside.then_some("unconditional"),
+            format!(
+                "alpha_m = {am}, alpha_f = {af}, beta = {b} with the second-order gamma {} (Chung & Hulbert 1993: unconditionally stable for alpha_m <= alpha_f <= 1/2 and beta >= 1/4 + (alpha_f - alpha_m)/2)",
+                if inside {
+                    "lie inside the bound"
+                } else {
+                    "lie outside the bound"
                 }
             ),
+        ))
+    } else {
+        None
+    };
+    let found = match stability {
+        Stability::Unconditional => "unconditional",
+        Stability::Conditional { .. } => "conditional",
+        Stability::Unstable => "unstable",
+    };
+    match statement {
+        None => reasons.push(format!(
+            "no published bound covers gamma = {g} with alpha_m = {am}, alpha_f = {af} (the bounds of Chung & Hulbert 1993 are stated for the second-order gamma = 1/2 - alpha_m + alpha_f): the criterion above decides"
+        )),
+        Some(_) if xi > 0.0 => reasons.push(
+            "the published bounds are stated for the undamped mode (xi = 0); with physical damping the criterion above decides"
+                .to_string(),
         ),
-        Scheme::Alpha(p) => {
-            let (am, af, b, g) = (p.alpha_m, p.alpha_f, p.beta, p.gamma);
-            if g < 0.5 - 1e-15 && am == 0.0 && af == 0.0 {
-                reasons.push(format!(
-                    "unstable: gamma = {g} < 1/2 makes the amplification grow for every step (Newmark 1959; Hughes 1987, sec. 9.1)"
-                ));
-                return Stability::Unstable;
-            }
-            if am == 0.0 && af == 0.0 {
-                if 2.0 * b >= g - 1e-15 {
-                    reasons.push(format!(
-                        "unconditionally stable: 2 beta = {} >= gamma = {g} >= 1/2 (Newmark 1959; Hughes 1987, sec. 9.1)",
-                        2.0 * b
-                    ));
-                    return Stability::Unconditional;
-                }
-                return conditional(
-                    reasons,
-                    format!(
-                        "conditionally stable: gamma = {g} >= 1/2 but 2 beta = {} < gamma (Newmark 1959; Hughes 1987, sec. 9.1)",
-                        2.0 * b
-                    ),
-                );
-            }
-            let hht_form = am == 0.0
-                && (g - (0.5 + af)).abs() < 1e-12
-                && (b - (1.0 + af) * (1.0 + af) / 4.0).abs() < 1e-12;
-            if hht_form && (0.0..=1.0 / 3.0 + 1e-15).contains(&af) {
-                reasons.push(format!(
-                        "unconditionally stable: HHT alpha = {} lies in [-1/3, 0] (Hilber, Hughes & Taylor 1977)",
-                        -af
-                    ));
-                return Stability::Unconditional;
-            }
-            // Chung & Hulbert (1993): unconditional stability of the generalised-alpha family for
-            // alpha_m <= alpha_f <= 1/2 and beta >= 1/4 + (alpha_f - alpha_m)/2 (with gamma =
-            // 1/2 - alpha_m + alpha_f for second order).
-            let tol = 1e-12;
-            if am <= af + tol
-                && af <= 0.5 + tol
-                && b >= 0.25 + 0.5 * (af - am) - tol
-                && g >= 0.5 - am + af - tol
-            {
-                reasons.push(format!(
-                    "unconditionally stable: alpha_m = {am} <= alpha_f = {af} <= 1/2 and beta = {b} >= 1/4 + (alpha_f - alpha_m)/2 (Chung & Hulbert 1993)"
-                ));
-                return Stability::Unconditional;
-            }
-            match rho_inf {
-                Some(r) if r > 1.0 + INSTABILITY_MARGIN => conditional(
-                    reasons,
-                    format!(
-                        "no published unconditional bound covers these parameters and rho_inf = {r} > 1: unstable at high frequency"
-                    ),
-                ),
-                _ => conditional(
-                    reasons,
-                    "no published unconditional bound covers these parameters".to_string(),
-                ),
-            }
-        }
+        Some((None, text)) => reasons.push(format!(
+            "the published bound says nothing here: {text}; the criterion above decides"
+        )),
+        Some((Some(stated), text)) => reasons.push(format!(
+            "{} the published bound: {text}",
+            if stated == found { "agrees with" } else { "DIFFERS from" }
+        )),
     }
 }
 

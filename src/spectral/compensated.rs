@@ -29,6 +29,8 @@ use nalgebra::Complex;
 use twofloat::TwoFloat as Dd;
 
 use super::roots::{deflated_pair, in_range, polish, real_root};
+use super::scheme::Scheme;
+use crate::explicit::ForceVelocity;
 
 /// The constants `[a_k, b_k, g_k]` of `P_k = a_k + b_k (2 xi Omega) + g_k Omega^2`, `k = 0..=3`,
 /// in double-double (the same table as [`Prepared`](super::Prepared)'s, see there).
@@ -36,13 +38,34 @@ use super::roots::{deflated_pair, in_range, polish, real_root};
 pub(crate) struct Constants([[Dd; 3]; 4]);
 
 impl Constants {
-    /// The central difference's constants (exact small numbers), from the double table.
-    pub(crate) fn exact(k: &[[f64; 3]; 4]) -> Self {
-        Constants(k.map(|row| row.map(Dd::from)))
+    /// The scheme's constants: the central difference's are small exact numbers (the table of
+    /// [`Prepared`](super::Prepared)), the family's are formed from its parameters.
+    pub(crate) fn of(scheme: &Scheme) -> Self {
+        let exact = |k: [[f64; 3]; 4]| Constants(k.map(|row| row.map(Dd::from)));
+        match scheme {
+            Scheme::CentralDifference(ForceVelocity::Lagged) => exact([
+                [0.0, 0.0, 0.0],
+                [1.0, -1.0, 0.0],
+                [-2.0, 1.0, 1.0],
+                [1.0, 0.0, 0.0],
+            ]),
+            Scheme::CentralDifference(ForceVelocity::Predicted) => exact([
+                [0.0, 0.5, 0.0],
+                [1.0, -2.0, 0.0],
+                [-2.0, 1.5, 1.0],
+                [1.0, 0.0, 0.0],
+            ]),
+            Scheme::Alpha(p) => Self::alpha(p.alpha_m, p.alpha_f, p.beta, p.gamma),
+        }
+    }
+
+    /// Row `j`: `[a_j, b_j, g_j]`.
+    pub(crate) fn row(&self, j: usize) -> [Dd; 3] {
+        self.0[j]
     }
 
     /// The generalised-alpha family's constants from its parameters, in double-double.
-    pub(crate) fn alpha(am: f64, af: f64, b: f64, g: f64) -> Self {
+    fn alpha(am: f64, af: f64, b: f64, g: f64) -> Self {
         let one = |x: f64| Dd::new_sub(1.0, x);
         let (m1, m0) = (one(am), Dd::from(am));
         let (e1, e0) = (one(af), Dd::from(af));
@@ -141,7 +164,7 @@ pub(crate) fn roots(c2: Dd, c1: Dd, c0: Dd) -> Option<[Complex<f64>; 3]> {
 /// reciprocal's residual `1 - y_hi t` without a fused multiply-add, which leaves only about
 /// double precision: `x / x` came out as `1 - 3.7e-17` for the coefficients of Newmark's linear
 /// acceleration at `Omega = 2 sqrt(3)`, where the pair's discriminant is `-6.5e-18`.
-fn div(x: Dd, y: Dd) -> Dd {
+pub(crate) fn div(x: Dd, y: Dd) -> Dd {
     let q1 = x.hi() / y.hi();
     let r = x - y * q1;
     let q2 = r.hi() / y.hi();

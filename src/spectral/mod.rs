@@ -13,6 +13,7 @@ mod metrics;
 mod prepared;
 mod roots;
 mod scheme;
+mod stability;
 mod sweep;
 
 pub use amplification::{alpha_amplification, eigenvalues3};
@@ -28,4 +29,5 @@ pub use prepared::{Prepared, RootPath};
 pub(crate) use roots::pairing_distance;
 pub use roots::{CONDITION_LIMIT, eigenvalues_fast};
 pub use scheme::{Parameters, Scheme, cd_amplification};
+pub use stability::{Boundary, BoundaryKind, StabilityRegion, StepStability};
 pub use sweep::{log_space, newmark_stability_map, sweep};

@@ -55,7 +55,7 @@ use nalgebra::Complex;
 
 use super::amplification::eigenvalues3;
 use super::compensated::{self, Constants};
-use super::metrics::{Metrics, largest_modulus, metrics_from, metrics_from_deflated};
+use super::metrics::{ExactMode, Metrics, largest_modulus, metrics_from, metrics_from_deflated};
 use super::roots::{
     closed_form_roots, deflated_roots, estimate_real_root, in_range, polish_real_root,
 };
@@ -91,14 +91,10 @@ pub enum RootPath {
 impl Prepared {
     /// The scheme's constants (see the module documentation).
     pub fn new(scheme: &Scheme) -> Self {
-        let exact = match scheme {
-            Scheme::Alpha(p) => Constants::alpha(p.alpha_m, p.alpha_f, p.beta, p.gamma),
-            Scheme::CentralDifference(_) => Constants::exact(&Self::constants(scheme)),
-        };
         Prepared {
             scheme: *scheme,
             k: Self::constants(scheme),
-            exact,
+            exact: Constants::of(scheme),
         }
     }
 
@@ -202,10 +198,17 @@ impl Prepared {
     /// The metrics from the roots of a path (the closed form's and the compensated path's are
     /// laid out alike).
     #[inline(always)]
-    fn metrics_of(z: &[Complex<f64>; 3], path: RootPath, omega_dt: f64) -> Metrics {
+    fn metrics_of(
+        z: &[Complex<f64>; 3],
+        path: RootPath,
+        omega_dt: f64,
+        exact: ExactMode,
+    ) -> Metrics {
         match path {
-            RootPath::ClosedForm | RootPath::Compensated => metrics_from_deflated(z, omega_dt),
-            RootPath::Schur => metrics_from(z, omega_dt),
+            RootPath::ClosedForm | RootPath::Compensated => {
+                metrics_from_deflated(z, omega_dt, exact)
+            }
+            RootPath::Schur => metrics_from(z, omega_dt, exact),
         }
     }
 
@@ -219,11 +222,12 @@ impl Prepared {
     #[inline]
     pub fn metrics(&self, omega_dt: f64, xi: f64) -> Metrics {
         let (c2, c1, c0) = self.coefficients(omega_dt, xi);
+        let exact = ExactMode::new(xi);
         match closed_form_roots(c2, c1, c0) {
-            Some(z) => metrics_from_deflated(&z, omega_dt),
+            Some(z) => metrics_from_deflated(&z, omega_dt, exact),
             None => {
                 let (z, path) = self.fallback(omega_dt, xi);
-                Self::metrics_of(&z, path, omega_dt)
+                Self::metrics_of(&z, path, omega_dt, exact)
             }
         }
     }
@@ -243,13 +247,14 @@ impl Prepared {
         xi: f64,
     ) -> impl Iterator<Item = Metrics> + use<'a> {
         let roots = self.roots_block(omegas, xi);
+        let exact = ExactMode::new(xi);
         (0..omegas.len()).map(move |i| {
             let o = omegas[i];
             match &roots[i] {
-                Some(z) => metrics_from_deflated(z, o),
+                Some(z) => metrics_from_deflated(z, o, exact),
                 None => {
                     let (z, path) = self.fallback(o, xi);
-                    Self::metrics_of(&z, path, o)
+                    Self::metrics_of(&z, path, o, exact)
                 }
             }
         })
@@ -419,7 +424,11 @@ mod tests {
                 for &o in &omegas {
                     let (c2, c1, c0) = p.coefficients(o, xi);
                     if let Some(z) = closed_form_roots(c2, c1, c0) {
-                        let (got, want) = (metrics_from_deflated(&z, o), metrics_from(&z, o));
+                        let exact = ExactMode::new(xi);
+                        let (got, want) = (
+                            metrics_from_deflated(&z, o, exact),
+                            metrics_from(&z, o, exact),
+                        );
                         assert_eq!(
                             format!("{got:?}"),
                             format!("{want:?}"),

@@ -4,7 +4,8 @@
 //!
 //! Every closed form is written out in the check itself, not taken from stepgauge's code; the
 //! computed side comes from the spectral analysis (eigenvalues of the amplification matrices and
-//! the bracketing search for the critical `Omega`), or from stepgauge's parameter constructors.
+//! the verdict's exact criterion for the critical `Omega`), or from stepgauge's parameter
+//! constructors.
 //! The same facts are tested in `tests/spectral.rs`; these checks put them in the validation
 //! table.
 
@@ -13,8 +14,8 @@ use crate::explicit::ForceVelocity;
 use crate::params::AlphaParams;
 use crate::reference::{ReferenceProblem, SdofFree, SdofHalfSine, SdofHarmonic, TwoDofStep};
 use crate::spectral::{
-    CheckContext, Scheme, Stability, check, log_space, metrics, omega_crit_numeric,
-    order_of_accuracy, rho_inf, spectral_radius,
+    CheckContext, Scheme, Stability, check, log_space, metrics, order_of_accuracy, rho_inf,
+    spectral_radius,
 };
 
 const KIND: Kind = Kind::ClosedForm;
@@ -52,10 +53,10 @@ fn verdict_omega_crit(s: &Scheme, xi: f64) -> f64 {
     }
 }
 
-/// The numerical critical `Omega` (`NaN` when none is found).
-fn numeric_omega_crit(s: &Scheme, xi: f64) -> f64 {
-    omega_crit_numeric(s, xi, 1e4).unwrap_or(f64::NAN)
-}
+/// The verdict's critical `Omega` is exact to double-double rounding and rounded once; the
+/// closed forms are evaluated in double precision with a few roundings: a few units in the last
+/// place apart at most.
+const CRIT_TOL: f64 = 1e-14;
 
 fn period_error(s: &Scheme, omega: f64) -> f64 {
     metrics(s, omega, 0.0).period_error.unwrap_or(f64::NAN)
@@ -71,11 +72,11 @@ fn central_difference() -> Vec<Check> {
         Check::at_most(
             "closed-form.central-difference.omega-crit",
             KIND,
-            "critical Omega = omega dt of the undamped central difference, from the bracketing search of the spectral radius, against 2",
+            "critical Omega = omega dt of the undamped central difference, from the verdict's exact criterion (Routh-Hurwitz in double-double), against 2",
             cd_src.as_str(),
             "|Omega_crit - 2|",
             (verdict_omega_crit(&lagged, 0.0) - 2.0).abs(),
-            1e-9,
+            CRIT_TOL,
             "",
         ),
         Check::at_most(
@@ -108,29 +109,29 @@ fn central_difference() -> Vec<Check> {
         Check::at_most(
             "closed-form.central-difference.damped-limit.lagged",
             KIND,
-            "critical Omega with the damping force at the lagged half-step velocity, bracketing search against 2 (sqrt(1 + xi^2) - xi) for xi = 0.05, 0.2, 0.5, 1; relative difference",
+            "critical Omega with the damping force at the lagged half-step velocity, the verdict's exact criterion against 2 (sqrt(1 + xi^2) - xi) for xi = 0.05, 0.2, 0.5, 1; relative difference",
             "Belytschko, Liu & Moran (2000), Nonlinear Finite Elements for Continua and \
              Structures, sec. 6.2 (from memory)",
             "max relative difference",
             worst(damped.iter().map(|&xi: &f64| {
                 let closed = 2.0 * ((1.0 + xi * xi).sqrt() - xi);
-                (numeric_omega_crit(&lagged, xi) - closed).abs() / closed
+                (verdict_omega_crit(&lagged, xi) - closed).abs() / closed
             })),
-            1e-8,
+            CRIT_TOL,
             "",
         ),
         Check::at_most(
             "closed-form.central-difference.damped-limit.predicted",
             KIND,
-            "critical Omega with the damping force at the predicted velocity v_(n+1/2) + dt a_n / 2, bracketing search against 2 (sqrt(1 + 4 xi^2) - 2 xi) for xi = 0.05, 0.2, 0.5, 1; relative difference",
+            "critical Omega with the damping force at the predicted velocity v_(n+1/2) + dt a_n / 2, the verdict's exact criterion against 2 (sqrt(1 + 4 xi^2) - 2 xi) for xi = 0.05, 0.2, 0.5, 1; relative difference",
             "derived for stepgauge from the characteristic polynomial, docs/explicit.md \
              (not from the literature)",
             "max relative difference",
             worst(damped.iter().map(|&xi: &f64| {
                 let closed = 2.0 * ((1.0 + 4.0 * xi * xi).sqrt() - 2.0 * xi);
-                (numeric_omega_crit(&predicted, xi) - closed).abs() / closed
+                (verdict_omega_crit(&predicted, xi) - closed).abs() / closed
             })),
-            1e-8,
+            CRIT_TOL,
             "",
         ),
     ]
@@ -184,7 +185,7 @@ fn newmark() -> Vec<Check> {
         for &g in &[0.5f64, 0.6, 0.7] {
             let closed = 1.0 / (g / 2.0 - b).sqrt();
             let computed = newmark_scheme(b, g)
-                .map(|s| numeric_omega_crit(&s, 0.0))
+                .map(|s| verdict_omega_crit(&s, 0.0))
                 .unwrap_or(f64::NAN);
             crit.push((computed - closed).abs() / closed);
         }
@@ -203,21 +204,21 @@ fn newmark() -> Vec<Check> {
         Check::at_most(
             "closed-form.newmark.omega-crit",
             KIND,
-            "undamped Newmark-beta with gamma >= 1/2 and 2 beta < gamma: bracketing search against Omega_crit = 1 / sqrt(gamma/2 - beta) for beta = 0, 1/12, 1/6, 0.2 and gamma = 0.5, 0.6, 0.7; relative difference",
+            "undamped Newmark-beta with gamma >= 1/2 and 2 beta < gamma: the verdict's exact criterion against Omega_crit = 1 / sqrt(gamma/2 - beta) for beta = 0, 1/12, 1/6, 0.2 and gamma = 0.5, 0.6, 0.7; relative difference",
             src.as_str(),
             "max relative difference",
             worst(crit),
-            1e-8,
+            CRIT_TOL,
             "",
         ),
         Check::at_most(
             "closed-form.newmark.linear-acceleration",
             KIND,
-            "critical Omega of linear acceleration (beta = 1/6, gamma = 1/2) from the verdict's bracketing search, against 2 sqrt(3)",
+            "critical Omega of linear acceleration (beta = 1/6, gamma = 1/2) from the verdict's exact criterion, against 2 sqrt(3)",
             src.as_str(),
             "|Omega_crit - 2 sqrt(3)|",
             (verdict_omega_crit(&linear, 0.0) - 12f64.sqrt()).abs(),
-            1e-9,
+            CRIT_TOL,
             "",
         ),
         Check::at_most(
@@ -562,8 +563,8 @@ mod tests {
         // The two damped limits differ by far more than the tolerance.
         let xi: f64 = 0.2;
         let pred_closed = 2.0 * ((1.0 + 4.0 * xi * xi).sqrt() - 2.0 * xi);
-        assert!((numeric_omega_crit(&lagged, xi) - pred_closed).abs() / pred_closed > 1e-3);
-        assert!((numeric_omega_crit(&predicted, xi) - pred_closed).abs() / pred_closed < 1e-8);
+        assert!((verdict_omega_crit(&lagged, xi) - pred_closed).abs() / pred_closed > 1e-3);
+        assert!((verdict_omega_crit(&predicted, xi) - pred_closed).abs() / pred_closed < CRIT_TOL);
         // Linear acceleration's period error is not the trapezoidal rule's.
         let lin = Scheme::Alpha(AlphaParams::linear_acceleration());
         let o: f64 = 0.5;
