@@ -222,6 +222,53 @@ fn timestep_json_matches_closed_form_chain_frequencies() {
     assert!(v["dt_accuracy"].is_null());
 }
 
+/// The damped stable step follows the central difference's damping velocity: with the damping
+/// force at the lagged half-step velocity `(2/w)(sqrt(1 + xi^2) - xi)` (Belytschko, Liu & Moran
+/// 2000, sec. 6.2, from memory), at the predicted one `(2/w)(sqrt(1 + 4 xi^2) - 2 xi)` (derived in
+/// docs/explicit.md, a re-derivation in the project; cross-checked against the spectral radius by
+/// the exact criterion in tests/spectral_verdicts.rs). Before, the lagged limit was reported for
+/// both.
+#[test]
+fn timestep_damped_step_follows_the_damping_velocity() {
+    let s = Scratch::new("dampvel");
+    let (m, kk) = chain(&s, 20, 100.0);
+    let mut got = Vec::new();
+    for dv in ["lagged", "predicted"] {
+        let r = stepgauge(&[
+            "timestep",
+            "--mass",
+            &m,
+            "--stiffness",
+            &kk,
+            "--xi",
+            "0.1",
+            "--scheme",
+            "central-difference",
+            "--damping-velocity",
+            dv,
+            "--json",
+        ]);
+        assert_eq!(r.code, 0, "{}", r.stderr);
+        let v: Value = serde_json::from_str(&r.stdout).expect("JSON");
+        assert_eq!(v["damping_velocity"], dv);
+        let w = v["omega_max"].as_f64().unwrap();
+        got.push((v["dt_stable_damped"].as_f64().unwrap(), w));
+    }
+    let (lagged, w) = got[0];
+    let (predicted, _) = got[1];
+    let xi = 0.1f64;
+    let want_lagged = 2.0 / w * ((1.0 + xi * xi).sqrt() - xi);
+    let want_predicted = 2.0 / w * ((1.0 + 4.0 * xi * xi).sqrt() - 2.0 * xi);
+    assert!(
+        (lagged / want_lagged - 1.0).abs() < 1e-14,
+        "{lagged} {want_lagged}"
+    );
+    assert!(
+        (predicted / want_predicted - 1.0).abs() < 1e-14,
+        "{predicted} {want_predicted}"
+    );
+}
+
 #[test]
 fn timestep_free_free_model_reports_zero_lowest_frequency_with_note() {
     let s = Scratch::new("freefree");

@@ -16,10 +16,11 @@ use nalgebra::DMatrix;
 use serde_json::json;
 use sprs::{CsMat, TriMat};
 use stepgauge::State;
+use stepgauge::explicit::ForceVelocity;
 use stepgauge::explicit::stable_step::{StableStepOptions, critical_step, estimate};
 use stepgauge::linalg::{CsrMatrix, LinearSolver, SparseCholesky};
 use stepgauge::model::{Constraints, LinearModel};
-use stepgauge::spectral::largest_step_for_period_error;
+use stepgauge::spectral::{Scheme, largest_step_for_period_error};
 
 use super::Failure;
 use super::output::{print_stdout, table_num};
@@ -41,8 +42,10 @@ matrices (Matrix Market files), with the DOFs of --fix removed:
                          Cholesky factor of K above). A singular K (free-free model) gives
                          omega_min = 0 with a note.
   dt_stable              central-difference stable step 2/omega_max, undamped;
-  dt_stable_damped       the same with damping ratio --xi at omega_max:
-                         (2/omega_max)(sqrt(1 + xi^2) - xi);
+  dt_stable_damped       the same with damping ratio --xi at omega_max: with the damping force
+                         at the lagged half-step velocity (2/omega_max)(sqrt(1 + xi^2) - xi);
+                         with --scheme central-difference --damping-velocity predicted
+                         (2/omega_max)(sqrt(1 + 4 xi^2) - 2 xi);
   dt_accuracy            with --frequency-of-interest (rad/s): the largest step for which the
                          chosen scheme (the scheme options, default average acceleration) keeps
                          the relative period error at that frequency under --period-error.";
@@ -255,7 +258,14 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
         Failure::Runtime("the highest frequency could not be estimated".to_string())
     })?;
     let dt_stable = critical_step(omega_max, 0.0).ok();
-    let dt_stable_damped = critical_step(omega_max, xi).ok();
+    // The damped limit of the central difference as it will step: the damping force at the
+    // lagged half-step velocity unless --scheme central-difference --damping-velocity predicted.
+    let force_velocity = match scheme.scheme {
+        Scheme::CentralDifference(fv) => fv,
+        Scheme::Alpha(_) => ForceVelocity::Lagged,
+    };
+    let dt_stable_damped =
+        (omega_max > 0.0).then(|| force_velocity.critical_omega_dt(xi) / omega_max);
 
     // omega_min on the free DOFs.
     let mut index = vec![None; n];
@@ -302,6 +312,7 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
             "f_min_hz": hz(omega_min),
             "dt_stable": dt_stable,
             "dt_stable_damped": dt_stable_damped,
+            "damping_velocity": force_velocity_name(force_velocity),
             "xi": xi,
             "dt_accuracy": dt_accuracy,
             "scheme": scheme.label,
@@ -336,8 +347,9 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
         table_num(dt_stable)
     ));
     out.push_str(&format!(
-        "                                damped    = {}  (xi = {xi} at omega_max)\n",
-        table_num(dt_stable_damped)
+        "                                damped    = {}  (xi = {xi} at omega_max, {} damping velocity)\n",
+        table_num(dt_stable_damped),
+        force_velocity_name(force_velocity)
     ));
     match (args.frequency_of_interest, dt_accuracy) {
         (Some(w), Some(dt)) => out.push_str(&format!(
@@ -352,4 +364,11 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
         ),
     }
     print_stdout(&out)
+}
+
+fn force_velocity_name(fv: ForceVelocity) -> &'static str {
+    match fv {
+        ForceVelocity::Lagged => "lagged",
+        ForceVelocity::Predicted => "predicted",
+    }
 }

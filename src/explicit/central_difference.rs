@@ -444,21 +444,31 @@ impl CentralDifference {
         state: &State,
     ) -> Result<&StableStep> {
         let mut s = stable_step::estimate(model, state, &self.options.stable_step)?;
-        // The damped limit of this integrator's treatment of velocity-dependent forces; for an
-        // element estimate, at the frequency 2 / dt it implies (exact for two-node bars).
-        let omega = s.omega_max.or_else(|| {
-            (s.dt_critical.is_finite() && s.dt_critical > 0.0).then(|| 2.0 / s.dt_critical)
-        });
-        if let Some(w) = omega.filter(|w| *w > 0.0)
-            && let Some(xi) = self
-                .damping
+        // The damped limits of this integrator's treatment of velocity-dependent forces, at the
+        // estimate and at its upper bound; for an element estimate, at the frequency 2 / dt it
+        // implies (exact for two-node bars).
+        let implied = |dt: f64| (dt.is_finite() && dt > 0.0).then(|| 2.0 / dt);
+        let omega = s.omega_max.or_else(|| implied(s.dt_critical));
+        let upper = s.omega_max_upper.or_else(|| implied(s.dt_limit));
+        let ratio = |w: f64| {
+            self.damping
                 .ratio_at(w)
                 .filter(|x| x.is_finite() && *x >= 0.0)
+        };
+        if let Some(w) = omega.filter(|w| *w > 0.0)
+            && let Some(xi) = ratio(w)
         {
             s.xi = Some(xi);
             s.dt_critical_damped = self.options.force_velocity.critical_omega_dt(xi) / w;
         }
-        self.dt_stable = Some(s.dt_critical_damped);
+        if let Some(w) = upper.filter(|w| *w > 0.0 && w.is_finite())
+            && let Some(xi) = ratio(w)
+        {
+            s.dt_limit_damped = self.options.force_velocity.critical_omega_dt(xi) / w;
+        }
+        // Steps are refused above the guaranteed limit, not above the estimate (which a Lanczos
+        // estimate approaches from the unsafe side).
+        self.dt_stable = Some(s.dt_limit_damped);
         Ok(self.stable.insert(s))
     }
 
@@ -1079,6 +1089,6 @@ impl Integrator for CentralDifference {
         state: &State,
     ) -> Result<Option<f64>> {
         CentralDifference::reestimate_stable_step(self, model, state)
-            .map(|s| Some(s.dt_critical_damped))
+            .map(|s| Some(s.dt_limit_damped))
     }
 }

@@ -30,9 +30,11 @@
 //! [`Model::internal_force`] when the model has no stiffness product.
 //!
 //! Note that a Lanczos Ritz value never exceeds the true `lambda_max` (it is a Rayleigh quotient),
-//! so the Lanczos `omega_max` is approximated from below and the resulting step from above, by at
-//! most the reported [`OmegaMaxEstimate::error_bound`]; the safety factor ([`DEFAULT_SAFETY`])
-//! covers this.
+//! so the Lanczos `omega_max` is approximated from below and the resulting step from above. The
+//! estimate therefore also gives an upper bound, [`OmegaMaxEstimate::lambda_upper`] (see
+//! [`lanczos_margin`]), and [`StableStep::dt_limit_damped`], the step the integrator refuses to
+//! exceed, rests on an upper bound (that one, Gershgorin's, or the model's element step), never on
+//! the estimate itself.
 
 use nalgebra::{DMatrix, SymmetricEigen};
 use rayon::prelude::*;
@@ -48,9 +50,9 @@ use crate::state::{State, check_finite, check_len};
 /// The margin covers three things:
 ///
 /// * the error of the estimate itself: a Lanczos estimate of `omega_max` converges from below, so
-///   the step derived from it is slightly too large (by the relative
-///   [`OmegaMaxEstimate::error_bound`], usually far below 1 %), and element formulas `L / c` are
-///   only approximations of `2 / omega_max` for distorted or higher-order elements;
+///   the step derived from it is slightly too large (the recommended step is also capped at the
+///   guaranteed [`StableStep::dt_limit_damped`]), and element formulas `L / c` are only
+///   approximations of `2 / omega_max` for distorted or higher-order elements;
 /// * stiffening of nonlinear models between two estimates (the limit is recomputed only every so
 ///   many steps, while contact, hardening or large deformation can raise `omega_max` meanwhile);
 /// * damping that the estimate does not account for (a damping force of unknown type,
@@ -233,6 +235,48 @@ pub fn omega_max_gershgorin(
     Ok(b_sym.min(b_inv).max(0.0).sqrt())
 }
 
+/// The probability, over the start vector, with which [`OmegaMaxEstimate::lambda_upper`] may
+/// fall below the largest eigenvalue when it rests on [`lanczos_margin`]: `1e-9`.
+pub const LANCZOS_FAILURE: f64 = 1e-9;
+
+/// The relative margin `eps` such that the largest Ritz value of a Lanczos process of `products`
+/// steps from a random start, on a symmetric positive semi-definite matrix with `n` rows, is at
+/// least `(1 - eps) lambda_max` except with probability [`LANCZOS_FAILURE`]:
+///
+/// ```text
+/// P(theta_k < (1 - eps) lambda_max) <= 1.648 sqrt(n) exp(-sqrt(eps) (2k - 1))
+/// ```
+///
+/// solved for `eps` (capped at 1, where it says nothing). The bound needs no gap, so it holds in
+/// clustered spectra where the Ritz gap of [`OmegaMaxEstimate::error_estimate`] misleads: with
+/// `n = 1e6`, `eps` is 12.7 % of `lambda` (6.6 % of `omega`) after 40 products, 0.5 % after 200
+/// and 0.02 % after 1000.
+///
+/// Stated for the plain Lanczos process from a start vector uniform on the sphere; here the
+/// start is a fixed pseudo-random vector (for reproducible results) and the process is
+/// thick-restarted (its space after `k` products lies in the Krylov space of dimension `k`, whose
+/// largest Ritz value the kept Ritz vectors approach): the margin is applied to these as to the
+/// plain process, an assumption this module states rather than proves.
+///
+/// # Reference
+/// Kuczyński & Woźniakowski (1992), "Estimating the largest eigenvalue by the power and Lanczos
+/// algorithms with a random start", *SIAM J. Matrix Anal. Appl.* 13(4), 1094-1122, theorem 4.2
+/// (from memory).
+pub fn lanczos_margin(products: usize, n: usize) -> f64 {
+    let k = products as f64;
+    if k < 1.0 {
+        return 1.0;
+    }
+    let s = (1.648 * (n as f64).sqrt() / LANCZOS_FAILURE).ln() / (2.0 * k - 1.0);
+    (s * s).min(1.0)
+}
+
+/// The Lanczos estimate goes on past its tolerance until [`lanczos_margin`] is at most this
+/// (2 % of `lambda_max`, 1 % of `omega_max`), unless its space became exact: about 100 products
+/// for 1e4 to 1e7 free DOFs, so that [`OmegaMaxEstimate::lambda_upper`] stays close to the
+/// estimate.
+pub const LANCZOS_MARGIN_TARGET: f64 = 0.02;
+
 /// Settings of the Lanczos estimate of `lambda_max` ([`omega_max_lanczos`]).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct EigenOptions {
@@ -244,7 +288,7 @@ pub struct EigenOptions {
     /// [`Error::EigenNotConverged`]. Default 5000. Must be at least 1.
     pub max_products: usize,
     /// When `max_products` is spent before `tolerance` is met, the estimate is still returned
-    /// (with its [`OmegaMaxEstimate::error_bound`]) if that bound is at most this; otherwise
+    /// (with its [`OmegaMaxEstimate::error_estimate`]) if that estimate is at most this; otherwise
     /// [`Error::EigenNotConverged`]. Default `1e-4`; `0` makes `tolerance` strict.
     ///
     /// Meshes with many equal elements have a cluster of eigenvalues at the top of the spectrum
@@ -322,9 +366,17 @@ pub struct OmegaMaxEstimate {
     /// A-posteriori estimate of `|lambda_max - lambda| / lambda`: `min(r, r^2 / gap) / lambda` with
     /// `r` the residual norm of the top Ritz pair and `gap` the distance to the next Ritz value
     /// (`r` alone bounds the distance to the nearest eigenvalue; the `r^2 / gap` bound holds with
-    /// the true gap, which the Ritz gap approximates). At rounding level when the Krylov space
+    /// the true gap, which the Ritz gap only approximates: where the top of the spectrum is
+    /// clustered this is an estimate, not a bound). At rounding level when the Krylov space
     /// became invariant.
-    pub error_bound: f64,
+    pub error_estimate: f64,
+    /// An upper bound on the largest eigenvalue, for a safe stable step: exact to rounding when
+    /// the Krylov space became invariant or spans every free DOF (the Ritz values are then the
+    /// eigenvalues; `lambda_max` plus its residual and a few roundings of `||A||`); otherwise
+    /// `lambda_max / (1 - eps)` with the margin `eps` of [`lanczos_margin`] for the products
+    /// spent, which a Lanczos process from a random start undershoots `lambda_max` by more than
+    /// only with probability [`LANCZOS_FAILURE`], and at least `lambda_max` plus its residual.
+    pub lambda_upper: f64,
     /// Stiffness products used.
     pub products: usize,
     /// Thick restarts performed.
@@ -412,7 +464,8 @@ fn lanczos(
         return Ok(OmegaMaxEstimate {
             omega_max: 0.0,
             lambda_max: 0.0,
-            error_bound: 0.0,
+            error_estimate: 0.0,
+            lambda_upper: 0.0,
             products: 0,
             restarts: 0,
         });
@@ -520,16 +573,31 @@ fn lanczos(
             } else {
                 f64::INFINITY
             };
-            if invariant
-                || (full && m == n_free)
-                || relative <= options.tolerance
+            let exact = invariant || (full && m == n_free);
+            // Converged, and enough products spent for a useful upper bound (see
+            // `lanczos_margin`).
+            let bounded = exact || lanczos_margin(products, n_free) <= LANCZOS_MARGIN_TARGET;
+            if exact
+                || (relative <= options.tolerance && bounded)
                 || theta1 >= accept_at
                 || (out_of_budget && relative <= options.tolerance_at_budget)
             {
+                let lambda_upper = if exact {
+                    theta1 + r + 8.0 * f64::EPSILON * a_norm
+                } else {
+                    let eps = lanczos_margin(products, n_free);
+                    let upper = if eps < 1.0 {
+                        theta1 / (1.0 - eps)
+                    } else {
+                        f64::INFINITY
+                    };
+                    upper.max(theta1 + r)
+                };
                 return Ok(OmegaMaxEstimate {
                     omega_max: theta1.max(0.0).sqrt(),
                     lambda_max: theta1,
-                    error_bound: relative,
+                    error_estimate: relative,
+                    lambda_upper,
                     products,
                     restarts,
                 });
@@ -634,6 +702,18 @@ pub struct StableStep {
     /// limit of its own treatment ([`ForceVelocity`](crate::explicit::ForceVelocity)) and applies
     /// the damping of an element estimate at `omega = 2 / dt`.
     pub dt_critical_damped: f64,
+    /// An upper bound on the highest circular frequency, when one was computed: Gershgorin's
+    /// bound for [`StableStepMethod::LanczosGershgorin`] (guaranteed), the Lanczos estimate's
+    /// [`OmegaMaxEstimate::lambda_upper`] (capped by Gershgorin's bound for a linear model)
+    /// otherwise, with a margin of `1e-6` for finite-difference products.
+    pub omega_max_upper: Option<f64>,
+    /// The largest step this estimate guarantees stable, undamped: `2 / omega_max_upper`, or the
+    /// element step (the model's own bound).
+    pub dt_limit: f64,
+    /// The same with the damping ratio at `omega_max_upper` (lagged damping velocity, as
+    /// `dt_critical_damped`): the step above which
+    /// [`CentralDifference`](crate::explicit::CentralDifference) refuses to go.
+    pub dt_limit_damped: f64,
     /// The safety fraction applied by [`recommended`](StableStep::recommended).
     pub safety: f64,
     /// How the estimate was made.
@@ -641,7 +721,7 @@ pub struct StableStep {
 }
 
 impl StableStep {
-    /// The step to use: `safety * dt_critical_damped`.
+    /// The step to use: `safety * dt_critical_damped`, and never above `dt_limit_damped`.
     ///
     /// The damped limit is used because the explicit scheme takes the damping force at the lagged
     /// half-step velocity, which lowers the stability limit below `2 / omega_max`.
@@ -650,7 +730,7 @@ impl StableStep {
     /// Belytschko, Liu & Moran (2000), *Nonlinear Finite Elements for Continua and Structures*,
     /// ch. 6.
     pub fn recommended(&self) -> f64 {
-        self.safety * self.dt_critical_damped
+        (self.safety * self.dt_critical_damped).min(self.dt_limit_damped)
     }
 }
 
@@ -753,6 +833,9 @@ pub fn estimate<M: Model + ?Sized>(
             xi: None,
             dt_critical: dt,
             dt_critical_damped: dt,
+            omega_max_upper: None,
+            dt_limit: dt,
+            dt_limit_damped: dt,
             safety,
             method: StableStepMethod::Elements,
         });
@@ -828,25 +911,51 @@ pub fn estimate<M: Model + ?Sized>(
         Err(e) => return Err(e),
     };
 
-    let (omega, method) = match upper {
-        Some(g) if found.lambda_max >= accept_at => (g.sqrt(), StableStepMethod::LanczosGershgorin),
-        _ => (found.omega_max, method),
+    let (omega, method, lambda_upper) = match upper {
+        Some(g) if found.lambda_max >= accept_at => {
+            (g.sqrt(), StableStepMethod::LanczosGershgorin, g)
+        }
+        _ => {
+            // Finite-difference products carry a relative error of about sqrt(eps); the
+            // margin covers it.
+            let fd = if method == StableStepMethod::FiniteDifferenceLanczos {
+                1.0 + 1e-6
+            } else {
+                1.0
+            };
+            let bound = (found.lambda_upper * fd).min(upper.unwrap_or(f64::INFINITY));
+            (found.omega_max, method, bound)
+        }
+    };
+    let damping = model.damping();
+    let damped = |w: f64| -> Result<f64> {
+        let xi = if w > 0.0 { damping.ratio_at(w) } else { None };
+        match xi {
+            Some(xi) => critical_step(w, xi),
+            None => critical_step(w, 0.0),
+        }
     };
     let xi = if omega > 0.0 {
-        model.damping().ratio_at(omega)
+        damping.ratio_at(omega)
     } else {
         None
     };
     let dt_critical = critical_step(omega, 0.0)?;
-    let dt_critical_damped = match xi {
-        Some(xi) => critical_step(omega, xi)?,
-        None => dt_critical,
+    let dt_critical_damped = damped(omega)?;
+    let omega_upper = lambda_upper.max(0.0).sqrt();
+    let (dt_limit, dt_limit_damped) = if omega_upper.is_finite() {
+        (critical_step(omega_upper, 0.0)?, damped(omega_upper)?)
+    } else {
+        (0.0, 0.0)
     };
     Ok(StableStep {
         omega_max: Some(omega),
         xi,
         dt_critical,
         dt_critical_damped,
+        omega_max_upper: Some(omega_upper),
+        dt_limit,
+        dt_limit_damped,
         safety,
         method,
     })
@@ -1063,10 +1172,10 @@ mod tests {
         eprintln!(
             "fixed-fixed chain n = {n}: omega = {:.15e}, exact {omega_exact:.15e}, relative error \
              {err:.2e}, error bound (lambda) {:.2e}, products {}, restarts {}",
-            est.omega_max, est.error_bound, est.products, est.restarts
+            est.omega_max, est.error_estimate, est.products, est.restarts
         );
         assert!(err < 1e-9, "n = {n}: relative error {err:e}");
-        assert!(est.error_bound <= 1e-10);
+        assert!(est.error_estimate <= 1e-10);
         // A Ritz value never exceeds the eigenvalue it approximates.
         assert!(est.lambda_max <= lambda_n * (1.0 + 1e-14));
         let bound = omega_max_gershgorin(&kmat, &mass, None).unwrap();
@@ -1541,8 +1650,11 @@ mod tests {
         assert!(matches!(e, Error::DimensionMismatch { .. }), "{e}");
     }
 
+    /// An isolated top eigenvalue is found to rounding at once; the process then goes on only as
+    /// far as the upper bound needs (`lanczos_margin` at most `LANCZOS_MARGIN_TARGET`), and stops
+    /// within one test interval of that.
     #[test]
-    fn isolated_top_eigenvalue_converges_in_few_products() {
+    fn isolated_top_eigenvalue_converges_and_stops_at_the_margin() {
         // K = diag(d) with d in [0, 1) and one entry 10, unit masses: lambda_max = 10.
         let n = 500;
         let mut d = lcg_values(9, n, 0.0, 1.0);
@@ -1563,11 +1675,19 @@ mod tests {
             "isolated eigenvalue: products {}, lambda rel. error {:.2e}, bound {:.2e}",
             est.products,
             rel(est.lambda_max, 10.0),
-            est.error_bound
+            est.error_estimate
         );
-        assert!(est.products <= 10, "{}", est.products);
-        assert_eq!(est.restarts, 0);
         assert!(rel(est.lambda_max, 10.0) < 1e-12);
+        assert!(lanczos_margin(est.products, n) <= LANCZOS_MARGIN_TARGET);
+        // The test interval is at most (krylov_dim - krylov_dim / 2) / 2 = 10 products.
+        assert!(
+            lanczos_margin(est.products - 10, n) > LANCZOS_MARGIN_TARGET,
+            "{}",
+            est.products
+        );
+        // The upper bound lies above the eigenvalue, within the margin.
+        assert!(est.lambda_upper >= 10.0);
+        assert!(est.lambda_upper <= 10.0 / (1.0 - LANCZOS_MARGIN_TARGET) * (1.0 + 1e-12));
     }
 
     #[test]
@@ -1791,9 +1911,10 @@ mod budget_tests {
         let est = omega_max_lanczos(&mass, None, apply, &options).unwrap();
         assert_eq!(est.products, 150, "the budget was spent");
         assert!(
-            est.error_bound > options.tolerance && est.error_bound <= options.tolerance_at_budget,
+            est.error_estimate > options.tolerance
+                && est.error_estimate <= options.tolerance_at_budget,
             "{}",
-            est.error_bound
+            est.error_estimate
         );
         let exact = 4.0
             * (n as f64 * std::f64::consts::PI / (2.0 * (n + 1) as f64))
@@ -1801,9 +1922,9 @@ mod budget_tests {
                 .powi(2);
         let rel = (exact - est.lambda_max) / exact;
         assert!(
-            rel >= -1e-14 && rel <= est.error_bound,
+            rel >= -1e-14 && rel <= est.error_estimate,
             "{rel} vs {}",
-            est.error_bound
+            est.error_estimate
         );
 
         let strict = EigenOptions {
@@ -1817,7 +1938,7 @@ mod budget_tests {
                 residual,
             } => {
                 assert_eq!(iterations, 150);
-                assert!((residual - est.error_bound).abs() <= 1e-12 * est.error_bound);
+                assert!((residual - est.error_estimate).abs() <= 1e-12 * est.error_estimate);
             }
             e => panic!("{e}"),
         }
