@@ -83,21 +83,30 @@ pub(crate) fn check_growth_limit(limit: f64) -> Result<()> {
     Ok(())
 }
 
-/// A copy of `state` with the constraints applied at its time: `v = 0` at fixed DOFs, `u = g(t)`
-/// at prescribed-displacement DOFs, `v = h(t)` at prescribed-velocity DOFs, and `a = 0` at all of
-/// them.
+/// A copy of `state` with the constraints applied at its time: `v = a = 0` at fixed DOFs,
+/// `u = g(t)`, `v = g'(t)`, `a = g''(t)` at prescribed-displacement DOFs, and `v = h(t)`,
+/// `a = h'(t)` at prescribed-velocity DOFs (the rates of [`TimeFunction::rates`]).
+///
+/// [`TimeFunction::rates`]: crate::model::TimeFunction::rates
 pub(crate) fn constrained_start(constraints: &[(usize, Motion)], state: &State) -> Result<State> {
     let mut s = state.clone();
     for (dof, motion) in constraints {
-        match motion {
-            Motion::Fixed => s.v[*dof] = 0.0,
-            Motion::Displacement(g) => s.u[*dof] = g.value(s.t),
-            Motion::Velocity(h) => s.v[*dof] = h.value(s.t),
-        }
-        s.a[*dof] = 0.0;
+        let d = *dof;
+        // The motion's own velocity and acceleration at the start: a prescribed displacement
+        // g(t) starts with v = g'(t0) and a = g''(t0) (whatever the state held), so that the
+        // scheme's updates of the constrained DOF carry no start error on.
+        (s.v[d], s.a[d]) = match motion {
+            Motion::Fixed => (0.0, 0.0),
+            Motion::Displacement(g) => {
+                s.u[d] = g.value(s.t);
+                g.rates(s.t)
+            }
+            Motion::Velocity(h) => (h.value(s.t), h.rates(s.t).0),
+        };
     }
     check_finite("constrained initial displacement", &s.u)?;
     check_finite("constrained initial velocity", &s.v)?;
+    check_finite("constrained initial acceleration", &s.a)?;
     Ok(s)
 }
 

@@ -221,7 +221,10 @@ impl CentralDifference {
         for (dof, motion) in &cd.constraints {
             match motion {
                 Motion::Fixed => cd.v_half[*dof] = 0.0,
-                Motion::Displacement(g) => cd.u_next[*dof] = g.value(state.t),
+                Motion::Displacement(g) => {
+                    cd.u_next[*dof] = g.value(state.t);
+                    cd.v_half[*dof] = g.rates(state.t).0;
+                }
                 Motion::Velocity(h) => cd.v_half[*dof] = h.value(state.t),
             }
         }

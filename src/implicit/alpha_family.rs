@@ -244,6 +244,9 @@ pub struct AlphaIntegrator {
     f_x1: Vec<Vec<f64>>,
     reactions0: Vec<f64>,
     reactions1: Vec<f64>,
+    /// The velocity and acceleration of each constrained DOF at the end of the current
+    /// sub-step, from its motion (in the order of `constraints`).
+    con_rates: Vec<(f64, f64)>,
     ledger: EnergyLedger,
     trial: EnergyLedger,
     report: NewtonReport,
@@ -285,11 +288,20 @@ impl AlphaIntegrator {
         let mut it = Self::prepare(model, state, params, solver, options)?;
         let mut s = constrained_start(&it.constraints, state)?;
         it.forces_at(model, &s, s.step)?;
-        // M a0 = f_ext - f_int - f_d - sum f_k on the free DOFs; a0 = 0 on constrained DOFs.
+        // M a0 = f_ext - f_int - f_d - sum f_k on the free DOFs, with the constrained DOFs'
+        // accelerations (their motion's, from `constrained_start`) moved to the right-hand side
+        // through a consistent mass's coupling; constrained DOFs keep their motion's.
+        let constrained_a: Vec<f64> = (0..it.n)
+            .map(|i| if it.mask[i] { s.a[i] } else { 0.0 })
+            .collect();
+        let mut coupling = vec![0.0; it.n];
+        if let Mass::Consistent { matrix: m, .. } = &it.mass {
+            m.mul_vec(&constrained_a, &mut coupling, it.options.parallel);
+        }
         let mut rhs = vec![0.0; it.n];
         for i in 0..it.n {
             if !it.mask[i] {
-                let mut f = it.f_ext0[i] - it.f_int0[i] - it.f_d0[i];
+                let mut f = it.f_ext0[i] - it.f_int0[i] - it.f_d0[i] - coupling[i];
                 for x in &it.f_x0 {
                     f -= x[i];
                 }
@@ -299,7 +311,11 @@ impl AlphaIntegrator {
         match &it.mass {
             Mass::Lumped(m) => {
                 for i in 0..it.n {
-                    s.a[i] = if it.mask[i] { 0.0 } else { rhs[i] / m[i] };
+                    s.a[i] = if it.mask[i] {
+                        constrained_a[i]
+                    } else {
+                        rhs[i] / m[i]
+                    };
                 }
             }
             Mass::Consistent { matrix: m, .. } => {
@@ -320,7 +336,7 @@ impl AlphaIntegrator {
                 it.solver.factor(&mm)?;
                 it.solver.solve_in_place(&mut rhs)?;
                 for i in 0..it.n {
-                    s.a[i] = if it.mask[i] { 0.0 } else { rhs[i] };
+                    s.a[i] = if it.mask[i] { constrained_a[i] } else { rhs[i] };
                 }
             }
         }
@@ -441,15 +457,17 @@ impl AlphaIntegrator {
         let (con_zero, con_diag) = constrained_positions(&jac, &mask);
         let k = names.len();
         let ledger = EnergyLedger::new(names, constraints.len());
-        let linear = model.is_linear() && k == 0;
         let nc = constraints.len();
-        // The streamlined linear path needs the damping force in the iteration matrix, and no
-        // constraints (the general path handles both).
+        // Every term of the residual must be in the iteration matrix for one correction to
+        // solve a step exactly: a damping force without its matrix is not (its Newton iterations
+        // then converge linearly, with the residual checked as for a nonlinear model).
         let damping_in_matrix = match damping {
             Damping::None | Damping::Rayleigh { .. } => true,
             Damping::Force => c_matrix.is_some(),
         };
-        let fast_linear = linear && !options.refine_linear && nc == 0 && damping_in_matrix;
+        let linear = model.is_linear() && k == 0 && damping_in_matrix;
+        // The streamlined linear path needs no constraints (the general path handles them).
+        let fast_linear = linear && !options.refine_linear && nc == 0;
         let chunks = crate::linalg::chunk_count(n);
         Ok(AlphaIntegrator {
             n,
@@ -495,6 +513,7 @@ impl AlphaIntegrator {
             f_x1: vec![vec![0.0; n]; k],
             reactions0: vec![0.0; nc],
             reactions1: vec![0.0; nc],
+            con_rates: vec![(0.0, 0.0); nc],
             trial: ledger.clone(),
             ledger,
             report: NewtonReport {
@@ -729,12 +748,25 @@ impl AlphaIntegrator {
             self.u1[i] = state.u[i] + h * state.v[i] + 0.5 * h * h * state.a[i];
         }
         self.dtot.fill(0.0);
-        for (dof, motion) in &self.constraints {
+        for ((dof, motion), rates) in self.constraints.iter().zip(&mut self.con_rates) {
             let d = *dof;
+            // The displacement at t1, and the velocity and acceleration there from the motion
+            // itself (not from the scheme's relations, whose acceleration of a prescribed
+            // displacement is only first order and, for the trapezoidal rule, drifts: its
+            // error mode at z = -1 is marginal and driven at its own frequency).
             let target = match motion {
-                Motion::Fixed => state.u[d],
-                Motion::Displacement(g) => g.value(t1),
-                Motion::Velocity(hv) => state.u[d] + h * hv.value(t0 + 0.5 * h),
+                Motion::Fixed => {
+                    *rates = (0.0, 0.0);
+                    state.u[d]
+                }
+                Motion::Displacement(g) => {
+                    *rates = g.rates(t1);
+                    g.value(t1)
+                }
+                Motion::Velocity(hv) => {
+                    *rates = (hv.value(t1), hv.rates(t1).0);
+                    state.u[d] + h * hv.value(t0 + 0.5 * h)
+                }
             };
             self.dtot[d] = target - self.u1[d];
             self.u1[d] = target;
@@ -1382,6 +1414,9 @@ impl AlphaIntegrator {
             let d = self.dtot[i];
             self.a1[i] = a0[i] + d / bh2;
             self.v1[i] = v0[i] + h * a0[i] + (p.gamma * d) / bh;
+        }
+        for ((dof, _), &(v, a)) in self.constraints.iter().zip(&self.con_rates) {
+            (self.v1[*dof], self.a1[*dof]) = (v, a);
         }
         let err = model_err(step, t1);
         model.external_force(t1, &mut self.f_ext1).map_err(&err)?;
