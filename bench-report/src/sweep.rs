@@ -117,12 +117,16 @@ pub fn section(settings: Settings) -> Section {
          the largest eigenvalue modulus alone, one call per point; `spectral_radii` the same \
          values for the whole grid in blocks (`Prepared::spectral_radii`). The eigenvalues come \
          from the characteristic cubic in closed form, its coefficients formed from the \
-         parameters without the matrix (`spectral::Prepared`), with the balanced Schur form of \
-         the matrix as the fallback for clustered roots; the last \
-         column times that Schur form at every point, as every point was computed before the \
-         fast path (same run). The usual plotting range is `Omega` 1e-2 to 1e2; on the wide \
-         grid, large `Omega` brings the three roots of the dissipative members together and \
-         those points fall back to the Schur form.\n"
+         parameters without the matrix (`spectral::Prepared`), and where roots meet (a root's \
+         condition above 64) from the compensated path (double-double coefficients, bracketed \
+         real root, double-double discriminant; `docs/spectral.md`); the last column times the \
+         balanced Schur form of the matrix at every point, as every point was computed before \
+         the fast path (same run), and as clustered points were until the compensated path \
+         replaced it (the Schur form loses half the digits where roots meet). The usual \
+         plotting range is `Omega` 1e-2 to 1e2, where these three schemes take the closed form \
+         at every point; on the wide grid, small `Omega` (the pair near 1, condition about \
+         `1 / Omega`) and large `Omega` (the dissipative members' three roots closing in) take \
+         the compensated path.\n"
     );
     let _ = writeln!(
         body,

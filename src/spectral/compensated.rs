@@ -116,13 +116,19 @@ pub(crate) fn roots(c2: Dd, c1: Dd, c0: Dd) -> Option<[Complex<f64>; 3]> {
         // An exact root 0 (the lagged central difference): deflate by it exactly.
         Dd::from(0.0)
     } else {
+        let guesses = guesses(h2, h1, h0);
         let cubic = Cubic {
             c2,
             c1,
             c0,
-            guesses: guesses(h2, h1, h0),
+            guesses: guesses.map(|z| z.re),
         };
-        cubic.isolated_real_root()
+        match trusted_isolated(&guesses) {
+            // The double-precision roots tell the isolated one apart: a few Newton steps.
+            Some(r) => cubic.newton(Dd::from(r)),
+            // They do not (a tight cluster): search every real root in its own bracket.
+            None => cubic.isolated_real_root(),
+        }
     };
     // Deflation: z^3 + c2 z^2 + c1 z + c0 = (z - r)(z^2 + b z + c).
     let b = c2 + r;
@@ -173,12 +179,32 @@ pub(crate) fn div(x: Dd, y: Dd) -> Dd {
     Dd::new_add(q1, q2) + q3
 }
 
-/// Starting points for the bracketed searches: the real parts of the closed form's roots on the
-/// double-precision coefficients (a few units of rounding times the roots' condition off).
-fn guesses(c2: f64, c1: f64, c0: f64) -> [f64; 3] {
+/// The closed form's roots on the double-precision coefficients (a few units of rounding times
+/// each root's condition off): a real root first, then the pair.
+fn guesses(c2: f64, c1: f64, c0: f64) -> [Complex<f64>; 3] {
     let r = polish(real_root(c2, c1, c0), c2, c1, c0);
     let (z2, z3) = deflated_pair(c2, c1, c0, r);
-    [r, z2.re, z3.re]
+    [Complex::new(r, 0.0), z2, z3]
+}
+
+/// The most isolated real root of the double-precision roots `z` when they certainly identify
+/// it: its error (about `16 eps` times its condition `scale^2 / (d1 d2)`, relative to the scale)
+/// is below a hundredth of its distance to the others, so the root a Newton search from it finds
+/// is that one. `None` inside a tight cluster, where the doubles cannot tell the roots apart.
+fn trusted_isolated(z: &[Complex<f64>; 3]) -> Option<f64> {
+    let scale = z.iter().map(|r| r.norm()).fold(1.0, f64::max);
+    let sep = |i: usize| {
+        let (a, b) = ((i + 1) % 3, (i + 2) % 3);
+        ((z[i] - z[a]).norm(), (z[i] - z[b]).norm())
+    };
+    // Of the real ones, the farthest from its nearer neighbour.
+    let best = (0..3).filter(|&i| z[i].im == 0.0).max_by(|&i, &j| {
+        let (si, sj) = (sep(i), sep(j));
+        si.0.min(si.1).total_cmp(&sj.0.min(sj.1))
+    })?;
+    let (d1, d2) = sep(best);
+    let error = 16.0 * f64::EPSILON * scale * scale * scale / (d1 * d2);
+    (error.is_finite() && error < 0.01 * d1.min(d2)).then_some(z[best].re)
 }
 
 /// A monic cubic `z^3 + c2 z^2 + c1 z + c0` in double-double, with starting points for its real
@@ -197,6 +223,30 @@ impl Cubic {
 
     fn slope(&self, z: Dd) -> Dd {
         (z * 3.0 + self.c2 * 2.0) * z + self.c1
+    }
+
+    /// Newton steps from `x` (a double-precision estimate of a simple root) while they shrink, at
+    /// most eight: a simple root's estimate to rounding needs one or two.
+    fn newton(&self, mut x: Dd) -> Dd {
+        let mut last = f64::INFINITY;
+        for _ in 0..8 {
+            let (f, d) = (self.value(x), self.slope(x));
+            if f.hi() == 0.0 || d.hi() == 0.0 {
+                break;
+            }
+            let step = div(f, d);
+            let size = step.hi().abs();
+            // Stop when the step no longer shrinks (or is NaN).
+            if size >= last || size.is_nan() {
+                break;
+            }
+            x -= step;
+            last = size;
+            if size <= 2f64.powi(-104) * x.hi().abs() {
+                break;
+            }
+        }
+        x
     }
 
     /// The real root farthest from the other two roots: the only real one, or of three real roots

@@ -70,8 +70,6 @@ pub struct Prepared {
     scheme: Scheme,
     /// `k[j] = [a_j, b_j, g_j]`: `P_j = a_j + b_j (2 xi Omega) + g_j Omega^2`, `j = 0..=3`.
     k: [[f64; 3]; 4],
-    /// The same constants in double-double, for the compensated path.
-    exact: Constants,
 }
 
 /// Which way [`Prepared::eigenvalues_with_path`] found the roots.
@@ -94,7 +92,6 @@ impl Prepared {
         Prepared {
             scheme: *scheme,
             k: Self::constants(scheme),
-            exact: Constants::of(scheme),
         }
     }
 
@@ -185,7 +182,22 @@ impl Prepared {
     #[cold]
     #[inline(never)]
     fn fallback(&self, omega_dt: f64, xi: f64) -> ([Complex<f64>; 3], RootPath) {
-        let (c2, c1, c0) = self.exact.monic(omega_dt, xi);
+        self.fallback_with(&mut None, omega_dt, xi)
+    }
+
+    /// [`Prepared::fallback`] keeping the double-double constants in `exact` across the points of
+    /// one call. They are formed here, on the points that need them, so that a `Prepared` stays
+    /// cheap to make (`spectral_radius` makes one per call).
+    #[cold]
+    #[inline(never)]
+    fn fallback_with(
+        &self,
+        exact: &mut Option<Constants>,
+        omega_dt: f64,
+        xi: f64,
+    ) -> ([Complex<f64>; 3], RootPath) {
+        let constants = exact.get_or_insert_with(|| Constants::of(&self.scheme));
+        let (c2, c1, c0) = constants.monic(omega_dt, xi);
         match compensated::roots(c2, c1, c0) {
             Some(z) => (z, RootPath::Compensated),
             None => (
@@ -248,12 +260,13 @@ impl Prepared {
     ) -> impl Iterator<Item = Metrics> + use<'a> {
         let roots = self.roots_block(omegas, xi);
         let exact = ExactMode::new(xi);
+        let mut constants = None;
         (0..omegas.len()).map(move |i| {
             let o = omegas[i];
             match &roots[i] {
                 Some(z) => metrics_from_deflated(z, o, exact),
                 None => {
-                    let (z, path) = self.fallback(o, xi);
+                    let (z, path) = self.fallback_with(&mut constants, o, xi);
                     Self::metrics_of(&z, path, o, exact)
                 }
             }
@@ -265,11 +278,12 @@ impl Prepared {
     /// fastest way to many spectral radii.
     pub fn spectral_radii(&self, omegas: &[f64], xi: f64) -> Vec<f64> {
         let mut out = Vec::with_capacity(omegas.len());
+        let mut constants = None;
         for block in omegas.chunks(BLOCK) {
             let roots = self.roots_block(block, xi);
             out.extend(block.iter().zip(&roots).map(|(&o, z)| match z {
                 Some(z) => largest_modulus(z),
-                None => largest_modulus(&self.fallback(o, xi).0),
+                None => largest_modulus(&self.fallback_with(&mut constants, o, xi).0),
             }));
         }
         out
