@@ -11,10 +11,11 @@ use super::output::{FormatArgs, csv_field, print_stdout, write_atomically};
 
 /// Long help of `stepgauge verify`.
 pub const LONG_ABOUT: &str = "\
-Runs the verification suite: stepgauge's results against outside references (published worked
-examples, closed forms from papers and textbooks, independent SciPy computations committed under
-tests/data/, and theoretical orders of accuracy), and prints each check with its source,
-tolerance, result and status. --markdown writes the same as the page docs/validation.md.
+Runs the verification suite: stepgauge's results against references, each labelled with its
+kind: values printed in worked examples, closed forms from papers and textbooks, independent SciPy
+computations committed under tests/data/, re-derivations written in this project (not outside
+references: a second implementation by the same hands), and theoretical orders of accuracy. Prints
+each check with its source, tolerance, result and status. --markdown writes the same as the page docs/validation.md.
 
 Exit status 0 when every check passes, 1 when one fails (or a file cannot be written).";
 
@@ -35,6 +36,8 @@ pub enum KindArg {
     ClosedForm,
     /// Cross-checks with SciPy.
     CrossCheck,
+    /// Re-derivations in the project (not outside references).
+    Rederived,
     /// Convergence orders.
     Convergence,
 }
@@ -45,6 +48,7 @@ impl From<KindArg> for Kind {
             KindArg::Published => Kind::Published,
             KindArg::ClosedForm => Kind::ClosedForm,
             KindArg::CrossCheck => Kind::CrossCheck,
+            KindArg::Rederived => Kind::Rederived,
             KindArg::Convergence => Kind::Convergence,
         }
     }

@@ -262,7 +262,8 @@ fn facts(name: &str) -> Option<Facts> {
 
 /// The level of the first step of the sequence (`dt0 / 2^s`) and why it is not 0.
 ///
-/// Each is chosen from the successive-halving orders (given in the check's note) where a
+/// Not derived: each level was read from the successive-halving orders (given in the check's
+/// note, so that a reader can judge the choice) where a
 /// lower-order or higher-order term still competes at `dt0`:
 ///
 /// - central difference with the lagged damping velocity on a damped problem: its first-order
@@ -515,7 +516,9 @@ fn check_one(case: &Case, p: &dyn ReferenceProblem) -> Check {
     }
     if let Some(why) = start_why {
         notes.push(format!(
-            "start: {why}; successive-halving orders from dt0: {}.",
+            "start: {why}; successive-halving orders from dt0: {}. The start level is not \
+             derived: it was read from these orders, where the stated term visibly bends the \
+             first halvings; the order is then measured over the five steps from there.",
             successive(0)
         ));
     }

@@ -1,9 +1,12 @@
-//! The verification suite: stepgauge's results against references nobody here wrote.
+//! The verification suite: stepgauge's results against references, each labelled with what it is.
 //!
-//! Each [`Check`] compares one computed quantity with an outside reference (a published worked
-//! example, a closed form from a paper or textbook, an independent computation with SciPy whose
-//! output is committed under `tests/data/`, or a theoretical order of accuracy) and says which
-//! source it rests on, what tolerance it must meet, what it measured and whether it passed.
+//! Each [`Check`] compares one computed quantity with a reference and says which [`Kind`] of
+//! reference it is: a value printed in a textbook or paper, a published closed form, an
+//! independent computation with a general-purpose library (SciPy, NumPy) whose output is
+//! committed under `tests/data/`, a re-derivation written in this project (a second
+//! implementation by the same hands: it catches slips, not shared misunderstandings), or a
+//! theoretical order of accuracy. Each says which source it rests on, what tolerance it must
+//! meet, what it measured and whether it passed.
 //!
 //! [`run`] runs them all; `stepgauge verify` prints them and writes `docs/validation.md`
 //! (`stepgauge verify --markdown docs/validation.md`); the test suite runs them and fails on any
@@ -33,16 +36,22 @@ pub enum Kind {
     ClosedForm,
     /// An independent computation with a general-purpose library (SciPy), committed as data.
     CrossCheck,
+    /// A re-derivation written in this project: a textbook's recurrence written out in the
+    /// check, a closed form derived here, or a library computation of equations taken from
+    /// stepgauge's own documentation. Not an outside reference: it catches slips in one of two
+    /// implementations, not a misunderstanding both share.
+    Rederived,
     /// The measured order of accuracy against the theoretical one.
     Convergence,
 }
 
 impl Kind {
     /// Every kind, in the order of the report.
-    pub const ALL: [Kind; 4] = [
+    pub const ALL: [Kind; 5] = [
         Kind::Published,
         Kind::ClosedForm,
         Kind::CrossCheck,
+        Kind::Rederived,
         Kind::Convergence,
     ];
 
@@ -52,7 +61,44 @@ impl Kind {
             Kind::Published => "Published worked examples",
             Kind::ClosedForm => "Closed-form results",
             Kind::CrossCheck => "Cross-checks with SciPy",
+            Kind::Rederived => "Re-derivations in the project",
             Kind::Convergence => "Convergence orders",
+        }
+    }
+
+    /// What the kind's checks compare with, and how much such a check proves: the paragraph
+    /// under the kind's heading on the validation page.
+    pub fn description(self) -> &'static str {
+        match self {
+            Kind::Published => {
+                "Values printed in a textbook's worked example, compared with stepgauge's run of \
+                 the same example. The printed values were recalled, not read from the books \
+                 (every source says \"from memory\"); the tolerance is half a unit of the last \
+                 printed digit plus the effect of the book's rounded inputs."
+            }
+            Kind::ClosedForm => {
+                "Closed forms published in papers and textbooks (stability limits, spectral \
+                 radii, period errors, parameter formulas, exact solutions), written out in the \
+                 check and compared with stepgauge's spectral analysis or constructors."
+            }
+            Kind::CrossCheck => {
+                "Independent computations with general-purpose libraries (SciPy's ODE solvers, \
+                 LAPACK's eigenvalues through NumPy), run by the scripts under \
+                 `tests/data/` from the schemes' and problems' published definitions; their \
+                 output is committed with the script that made it (`tests/data/MANIFEST.md`)."
+            }
+            Kind::Rederived => {
+                "Not outside references: a textbook's recurrence written out in the check, a \
+                 closed form or series derived in this project, or a library computation of \
+                 equations taken from stepgauge's own documentation. They compare two \
+                 implementations by the same hands, so they catch slips in one of them, not a \
+                 misunderstanding both share."
+            }
+            Kind::Convergence => {
+                "Measured orders of accuracy (the slope of the error against the step on \
+                 problems with an exact solution) against the order theory gives for each \
+                 scheme."
+            }
         }
     }
 
@@ -62,6 +108,7 @@ impl Kind {
             Kind::Published => "published",
             Kind::ClosedForm => "closed-form",
             Kind::CrossCheck => "cross-check",
+            Kind::Rederived => "rederived",
             Kind::Convergence => "convergence",
         }
     }
@@ -188,19 +235,40 @@ pub fn fixed(x: f64) -> String {
     format!("{x:.4}")
 }
 
-/// Runs every check of the suite, kind by kind.
+/// Runs every check of the suite, in the order of [`Kind::ALL`] (within a kind, in the order
+/// the checks are made).
 pub fn run() -> Vec<Check> {
-    Kind::ALL.iter().flat_map(|&k| run_kind(k)).collect()
+    let mut all: Vec<Check> = [
+        published::checks(),
+        closed_form::checks(),
+        crosscheck::checks(),
+        convergence::checks(),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
+    all.sort_by_key(|c| c.kind); // stable: keeps the order within a kind
+    all
 }
 
-/// Runs the checks of one kind.
+/// Runs the checks of one kind (the modules that make checks of that kind, filtered by kind:
+/// a re-derivation sits beside the check it backs up).
 pub fn run_kind(kind: Kind) -> Vec<Check> {
-    match kind {
+    let made = match kind {
         Kind::Published => published::checks(),
         Kind::ClosedForm => closed_form::checks(),
         Kind::CrossCheck => crosscheck::checks(),
+        Kind::Rederived => [
+            published::checks(),
+            closed_form::checks(),
+            crosscheck::checks(),
+        ]
+        .into_iter()
+        .flatten()
+        .collect(),
         Kind::Convergence => convergence::checks(),
-    }
+    };
+    made.into_iter().filter(|c| c.kind == kind).collect()
 }
 
 /// The command that regenerates `docs/validation.md`.
@@ -220,14 +288,23 @@ pub fn markdown(checks: &[Check]) -> String {
     );
     let _ = writeln!(
         s,
-        "Each check compares a result of stepgauge with a reference nobody here wrote: a \
-         published worked example, a closed form from a paper or textbook, an independent \
-         computation with SciPy committed under `tests/data/` (see `tests/data/MANIFEST.md`), \
-         or a theoretical order of accuracy. A value marked \"from memory\" was recalled, not \
-         read from the source; where it disagrees with two independent calculations, the note \
-         says so and the calculations are trusted.\n"
+        "Each check compares a result of stepgauge with a reference and says what kind of \
+         reference it is: a value printed in a worked example, a published closed form, an \
+         independent computation with a general-purpose library committed under `tests/data/` \
+         (see `tests/data/MANIFEST.md`), a re-derivation written in this project (not an \
+         outside reference), or a theoretical order of accuracy. A value marked \"from \
+         memory\" was recalled, not read from the source; where it disagrees with two \
+         independent calculations, the note says so and the calculations are trusted.\n"
     );
     let _ = writeln!(s, "**{passed} of {} checks pass.**\n", checks.len());
+    let _ = writeln!(s, "| kind | checks | passing |");
+    let _ = writeln!(s, "|---|---|---|");
+    for kind in Kind::ALL {
+        let n = checks.iter().filter(|c| c.kind == kind).count();
+        let p = checks.iter().filter(|c| c.kind == kind && c.passed).count();
+        let _ = writeln!(s, "| {} | {n} | {p} |", kind.title());
+    }
+    let _ = writeln!(s);
     let labels = shared_sources(checks);
     if !labels.is_empty() {
         let _ = writeln!(
@@ -243,6 +320,7 @@ pub fn markdown(checks: &[Check]) -> String {
             continue;
         }
         let _ = writeln!(s, "## {}\n", kind.title());
+        let _ = writeln!(s, "{}\n", kind.description());
         let _ = writeln!(s, "| id | what | source | tolerance | result | status |");
         let _ = writeln!(s, "|---|---|---|---|---|---|");
         for c in rows {
@@ -392,6 +470,10 @@ mod tests {
         ];
         let md = markdown(&checks);
         assert!(md.contains("**1 of 2 checks pass.**"));
+        // Counts per kind, every kind listed.
+        assert!(md.contains("| Published worked examples | 1 | 1 |"), "{md}");
+        assert!(md.contains("| Cross-checks with SciPy | 1 | 0 |"), "{md}");
+        assert!(md.contains("| Re-derivations in the project | 0 | 0 |"), "{md}");
         assert!(md.contains("| x.1 [note 1] | a\\|b |"));
         assert!(md.contains("FAIL"));
         assert!(md.contains("1. `x.1`: remembered value differs"));
