@@ -105,8 +105,10 @@ pub enum Error {
     },
     /// A step above the stability limit of a conditionally stable scheme.
     #[error(
-        "time step {dt} is above the stable limit {dt_stable} of the explicit scheme; use dt <= {dt_stable} \
-         (times a safety fraction), or override the check explicitly if you know better"
+        "time step {dt} is above the step limit {dt_stable} of the explicit scheme (from an upper \
+         bound on the model's highest frequency, with its damping: the largest step stepgauge can \
+         vouch for, which may lie a little below the estimated critical step); use dt <= \
+         {dt_stable} (times a safety fraction), or override the check explicitly if you know better"
     )]
     StepAboveStableLimit {
         /// The step asked for.

@@ -60,7 +60,21 @@ pub struct AlphaParams {
     pub family: Family,
 }
 
+/// The largest magnitude of a parameter: far beyond every published set (`beta` and `gamma` of
+/// order one), and within what the spectral analysis resolves (its criterion polynomials sum
+/// terms of the size of the parameters' products and must still see terms of order one beside
+/// them, see `spectral::stability`).
+pub const PARAMETER_LIMIT: f64 = 1e6;
+
 fn check(name: &'static str, value: f64, ok: bool, expected: &'static str) -> Result<()> {
+    if value.is_nan() || value.abs() > PARAMETER_LIMIT {
+        return Err(Error::InvalidParameter {
+            name,
+            value,
+            expected: "a finite value of magnitude at most 1e6 (no useful set has larger \
+                       parameters, and the stability analysis cannot resolve them)",
+        });
+    }
     if ok && value.is_finite() {
         Ok(())
     } else {

@@ -189,6 +189,54 @@ fn check_exit_3_when_the_step_exceeds_the_limit() {
     assert_eq!(stepgauge(&base).code, 0);
 }
 
+/// A step whose own Omega lies in a window where the set is stable again, while the modes below
+/// it are not: exit 3, the reason says so (before: exit 0, "within the stable limit").
+#[test]
+fn check_exit_3_when_lower_modes_are_unstable() {
+    let args = [
+        "check",
+        "--scheme",
+        "generalized-alpha",
+        "--alpha-m",
+        "-0.039",
+        "--alpha-f",
+        "0.203",
+        "--beta",
+        "0.385",
+        "--gamma",
+        "0.595",
+        "--xi",
+        "0.02",
+        "--max-frequency",
+        "1000",
+        "--dt",
+        "0.01",
+    ];
+    let r = stepgauge(&args);
+    assert_eq!(r.code, 3, "{}{}", r.stdout, r.stderr);
+    assert!(r.stdout.contains("stable again"), "{}", r.stdout);
+    let (v, code) = json(&[&args[..], &["--json"]].concat());
+    assert_eq!(code, 3);
+    assert_eq!(v["step_stable"], false);
+    // The printed limit pasted back as the step is accepted (before: the predicted central
+    // difference at xi = 0.1 refused its own limit, exit 3).
+    let base = [
+        "check",
+        "--scheme",
+        "central-difference",
+        "--damping-velocity",
+        "predicted",
+        "--xi",
+        "0.1",
+        "--max-frequency",
+        "1",
+    ];
+    let (v, _) = json(&[&base[..], &["--json"]].concat());
+    let dt = format!("{}", f(&v, "dt_stable"));
+    let (v, code) = json(&[&base[..], &["--dt", dt.as_str(), "--json"]].concat());
+    assert_eq!((code, &v["step_stable"]), (0, &Value::Bool(true)), "dt {dt}");
+}
+
 /// gamma < 1/2 is unstable for every step: exit 4.
 #[test]
 fn check_exit_4_when_unstable() {
@@ -296,6 +344,9 @@ fn negative_values_are_accepted() {
         &["check", "--scheme", "hht", "--alpha", "-0.1", "--json"][..],
         &["check", "--scheme", "hht", "--alpha=-0.1", "--json"][..],
         &["check", "--scheme", "wbz", "--alpha-m", "-0.2", "--json"][..],
+        // With an exponent (before: "unexpected argument '-1'").
+        &["check", "--scheme", "wbz", "--alpha-m", "-1e-3", "--json"][..],
+        &["check", "--scheme", "wbz", "--alpha-m", "-2E-1", "--json"][..],
     ] {
         let (v, code) = json(args);
         assert_eq!(code, 0, "{args:?}");

@@ -222,6 +222,50 @@ fn timestep_json_matches_closed_form_chain_frequencies() {
     assert!(v["dt_accuracy"].is_null());
 }
 
+/// `timestep` prints the limit `run` enforces beside the estimated critical step: the limit from
+/// an upper bound on omega_max lies a little below the estimate (for this chain, Gershgorin's
+/// bound `2 sqrt(k/m)`, 0.24 % above the exact `omega_max`), `run` accepts a step at the limit and
+/// refuses one a rounding above it. Before, `timestep` printed only the estimate, and `run`
+/// refused steps between the two with "the run would go unstable".
+#[test]
+fn timestep_prints_the_step_limit_run_enforces() {
+    let s = Scratch::new("limit");
+    let (m, kk) = chain(&s, 50, 100.0);
+    let r = stepgauge(&["timestep", "--mass", &m, "--stiffness", &kk, "--json"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let v: Value = serde_json::from_str(&r.stdout).expect("JSON");
+    let estimate = v["dt_stable"].as_f64().unwrap();
+    let limit = v["dt_limit_damped"].as_f64().unwrap();
+    assert_eq!(v["dt_limit"].as_f64().unwrap(), limit, "undamped: the same");
+    assert!(limit < estimate && limit > 0.97 * estimate, "{limit} vs {estimate}");
+    // Gershgorin on the chain: omega_upper = 2 sqrt(k / m) = 20, the limit 0.1.
+    assert!((limit - 0.1).abs() <= 1e-12, "{limit}");
+    let out = s.path("limit.csv");
+    let run = |dt: f64| {
+        stepgauge(&[
+            "run",
+            "--mass",
+            &m,
+            "--stiffness",
+            &kk,
+            "--scheme",
+            "central-difference",
+            "--dt",
+            &format!("{dt}"),
+            "--t-end",
+            "1",
+            "--output",
+            &out,
+        ])
+    };
+    let r = run(limit);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let r = run(limit * (1.0 + 1e-12));
+    assert_eq!(r.code, 2, "{}", r.stderr);
+    assert!(r.stderr.contains("exceeds the step limit"), "{}", r.stderr);
+    assert!(r.stderr.contains("estimated critical step"), "{}", r.stderr);
+}
+
 /// The damped stable step follows the central difference's damping velocity: with the damping
 /// force at the lagged half-step velocity `(2/w)(sqrt(1 + xi^2) - xi)` (Belytschko, Liu & Moran
 /// 2000, sec. 6.2, from memory), at the predicted one `(2/w)(sqrt(1 + 4 xi^2) - 2 xi)` (derived in
@@ -580,7 +624,7 @@ fn bad_inputs_are_one_line_with_exit_status_2() {
     // Above the central-difference stable step 2/sqrt(5) = 0.894: refused before the run.
     check(
         run(&m, &k, &["--scheme", "central-difference", "--dt", "1"]),
-        &["exceeds the stable step", "--dt auto"],
+        &["exceeds the step limit", "--dt auto"],
     );
     assert!(!Path::new(&out).exists(), "no output after a refusal");
 }

@@ -168,3 +168,51 @@ fn base_motion_converges_at_second_order() {
         }
     }
 }
+
+/// A ramp-and-hold base motion given as a plain function steps as the same motion given as a
+/// table: the function's rates look forward (the slope of the ramp from its start, none after
+/// its end), as the table's do. The kink at `t = 1` falls on the grid (binary steps). Before, the
+/// function's rates were centred differences, which straddle the kink: the free DOF's
+/// displacement at `t = 5` differed from the table's run by 25 %, 10 % and 4 % at `dt` = 0.1,
+/// 0.05 and 0.025 (first order). The two runs differ only by the rounding of the function's
+/// finite differences (relative `1e-9` at most, see `TimeFunction::rates`).
+#[test]
+fn a_ramp_as_a_function_steps_as_the_same_ramp_as_a_table() {
+    let ramp_end = 1.0;
+    let run = |motion: TimeFunction, dt: f64| -> f64 {
+        let m = common::dense(&[&[M / 3.0, M / 6.0], &[M / 6.0, M / 3.0]]);
+        let k = common::dense(&[&[K, -K], &[-K, K]]);
+        let mut model = LinearModel::new(&m, &k)
+            .unwrap()
+            .with_constraints(Constraints::new().prescribe_displacement(0, motion))
+            .unwrap();
+        let mut state = State::at_rest(2, 0.0);
+        let mut it = AlphaIntegrator::new(
+            &mut model,
+            &mut state,
+            AlphaParams::average_acceleration(),
+            common::DenseLu::boxed(),
+            ImplicitOptions::default(),
+        )
+        .unwrap();
+        let steps = (5.0 / dt).round() as usize;
+        let mut worst = 0.0f64;
+        for _ in 0..steps {
+            it.step(&mut model, &mut state, dt).unwrap();
+            worst = worst.max(state.u[1].abs());
+        }
+        assert_eq!(state.t, 5.0);
+        state.u[1] / worst
+    };
+    for dt in [0.125, 0.0625, 0.03125] {
+        let f = run(
+            TimeFunction::function(move |t: f64| A * (t / ramp_end).clamp(0.0, 1.0)),
+            dt,
+        );
+        let tab = run(
+            TimeFunction::table(vec![0.0, ramp_end, 100.0], vec![0.0, A, A]).unwrap(),
+            dt,
+        );
+        assert!((f - tab).abs() <= 1e-9, "dt {dt}: function {f}, table {tab}");
+    }
+}

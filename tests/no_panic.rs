@@ -372,6 +372,8 @@ proptest! {
     #[test]
     fn alpha_params_constructors(a in num(), b in num(), c in num(), d in num()) {
         let unit = |x: f64| (0.0..=1.0).contains(&x);
+        // Parameters of magnitude up to PARAMETER_LIMIT (1e6) are accepted.
+        let finite = |x: f64| x.is_finite() && x.abs() <= stepgauge::params::PARAMETER_LIMIT;
         let checks: Vec<(&str, stepgauge::Result<AlphaParams>, bool)> = vec![
             ("newmark", guard("AlphaParams::newmark", &(a, b), || AlphaParams::newmark(a, b)),
              finite(a) && finite(b) && a >= 0.0 && b >= 0.0),
@@ -385,7 +387,7 @@ proptest! {
             ("generalized_alpha", guard("generalized_alpha", &a, || AlphaParams::generalized_alpha(a)),
              unit(a)),
             ("raw", guard("AlphaParams::raw", &(a, b, c, d), || AlphaParams::raw(a, b, c, d)),
-             [a, b, c, d].iter().all(|x| x.is_finite()) && a < 1.0 && b < 1.0 && c >= 0.0
+             [a, b, c, d].iter().all(|&x| finite(x)) && a < 1.0 && b < 1.0 && c >= 0.0
                  && d >= 0.0),
         ];
         for (name, r, valid) in checks {
@@ -398,7 +400,7 @@ proptest! {
         // A set built field by field (the fields are public).
         let p = AlphaParams { alpha_m: a, alpha_f: b, beta: c, gamma: d, family: Family::Custom };
         let r = guard("validate_for_stepping", &p, || p.validate_for_stepping());
-        if !([a, b, c, d].iter().all(|x| x.is_finite()) && a < 1.0 && b < 1.0 && c > 0.0 && d >= 0.0) {
+        if !([a, b, c, d].iter().all(|&x| finite(x)) && a < 1.0 && b < 1.0 && c > 0.0 && d >= 0.0) {
             refused("validate_for_stepping", &p, &r);
         }
     }

@@ -270,10 +270,25 @@ fn largest_step_for_a_damping_target() {
     use stepgauge::spectral::largest_step_for_damping;
     let s = alpha(AlphaParams::hht(-0.3).unwrap());
     let w = 20.0;
-    let dt = largest_step_for_damping(&s, w, 0.0, 0.01).unwrap();
+    let dt = largest_step_for_damping(&s, w, 0.0, 0.01).unwrap().unwrap();
     let d = metrics(&s, w * dt, 0.0).damping_ratio.unwrap();
     assert!((d - 0.01).abs() < 1e-9, "{d}");
     assert!(largest_step_for_damping(&s, -1.0, 0.0, 0.01).is_err());
+    // With xi >= 1 there is no exact oscillation: no accuracy step (before: 0, "dt <= 0 s").
+    use stepgauge::spectral::largest_step_for_period_error;
+    for xi in [1.0, 1.5] {
+        assert_eq!(largest_step_for_damping(&s, w, xi, 0.01).unwrap(), None);
+        assert_eq!(largest_step_for_period_error(&s, w, xi, 0.01).unwrap(), None);
+        let ctx = stepgauge::spectral::CheckContext {
+            omega_interest: Some(w),
+            ..Default::default()
+        };
+        let v = stepgauge::spectral::check(&s, xi, &ctx).unwrap();
+        assert_eq!(v.dt_accuracy, None);
+        assert!(v.reasons.iter().any(|r| r.contains("does not oscillate")), "{v:#?}");
+    }
+    let p = largest_step_for_period_error(&s, w, 0.5, 0.01).unwrap().unwrap();
+    assert!(p > 0.0);
 }
 
 /// A scheme drawn from every family over its whole range: generalised-alpha, HHT-alpha and

@@ -177,10 +177,162 @@ fn steps_a_few_ulps_from_the_limit() {
             (omega_crit - crit).abs() <= 4.0 * f64::EPSILON * crit,
             "xi {xi}"
         );
-        // At the double nearest the limit: the region's criterion there, in double-double.
+        // Omega_crit is the largest double up to which every step is stable: a step pasted from
+        // it is accepted, the next double is not.
         let region = StabilityRegion::new(&cd, xi);
-        assert_eq!(judge(xi, omega_crit), region.at(omega_crit).is_stable());
+        assert!(judge(xi, omega_crit), "xi {xi}");
+        assert!(region.at(omega_crit).is_stable(), "xi {xi}");
+        assert!(!judge(xi, omega_crit.next_up()), "xi {xi}");
     }
+}
+
+/// The critical `Omega` is rounded to the stable side of the boundary, and the stable step to
+/// the largest `dt` whose `omega_max dt` is within it: for every conditional row of the table, at
+/// `omega_max` = 1 and 997 rad/s, the printed limit is accepted as a step and the next double is
+/// not. (Before: the boundary was rounded to nearest, so for the predicted central difference at
+/// `xi = 0.1` the printed `dt_stable = 1.639607805437114` was refused as exceeding itself.)
+#[test]
+fn the_printed_limit_is_a_stable_step_and_the_next_double_is_not() {
+    let mut n = 0;
+    for r in rows().iter().filter(|r| r.verdict == "conditional") {
+        for w in [1.0f64, 997.0] {
+            let judge = |dt: f64| {
+                let ctx = CheckContext {
+                    omega_max: Some(w),
+                    dt: Some(dt),
+                    ..CheckContext::default()
+                };
+                check(&r.scheme, r.xi, &ctx).unwrap()
+            };
+            let v = judge(1.0);
+            let dt = v.dt_stable.unwrap_or_else(|| panic!("line {}: no dt_stable", r.line));
+            assert_eq!(judge(dt).step_stable, Some(true), "line {} w {w}", r.line);
+            assert_eq!(
+                judge(dt.next_up()).step_stable,
+                Some(false),
+                "line {} w {w}",
+                r.line
+            );
+            n += 1;
+        }
+    }
+    assert!(n >= 20, "{n} rows");
+}
+
+/// A step is stable when every mode up to `omega_max` is, not only the highest: a step whose own
+/// `Omega` falls in a window where the set is stable again is refused (exit 3 on the command line,
+/// `tests/cli.rs`), and so is any step of a set unstable for every small `Omega`. Before, the
+/// verdict judged `Omega = omega_max dt` alone and accepted both (the generalised-alpha set below
+/// at `dt = 0.01` with `omega_max = 1000`: "within the stable limit", while its modes from 28 to
+/// 235 rad/s grow).
+#[test]
+fn a_step_is_judged_by_every_mode_below_it() {
+    let judge = |p: AlphaParams, xi: f64, w: f64, dt: f64| {
+        let ctx = CheckContext {
+            omega_max: Some(w),
+            dt: Some(dt),
+            ..CheckContext::default()
+        };
+        check(&Scheme::Alpha(p), xi, &ctx).unwrap()
+    };
+    let p = AlphaParams::raw(-0.039, 0.203, 0.385, 0.595).unwrap();
+    let region = StabilityRegion::new(&Scheme::Alpha(p), 0.02);
+    assert!(region.at(10.0).is_stable(), "Omega = 10 lies in the window");
+    let v = judge(p, 0.02, 1000.0, 0.01);
+    assert_eq!(v.step_stable, Some(false), "{v:#?}");
+    assert!(v.reasons.iter().any(|r| r.contains("stable again")), "{v:#?}");
+    // Every row with a window: a step inside the window is refused.
+    let mut windows = 0;
+    for r in rows() {
+        let Some(from) = r.stable_again_from else { continue };
+        let Scheme::Alpha(p) = r.scheme else { continue };
+        let v = judge(p, r.xi, 1.0, 2.0 * from);
+        assert!(StabilityRegion::new(&r.scheme, r.xi).at(2.0 * from).is_stable());
+        assert_eq!(v.step_stable, Some(false), "line {}", r.line);
+        windows += 1;
+    }
+    assert!(windows >= 1, "the table has rows with windows");
+    // A set unstable for every small Omega, stable again at large ones: no step is stable.
+    let u = AlphaParams::raw(
+        -1.6184463450448816,
+        -0.5171510742910171,
+        1.307132961189449,
+        0.7818994062664542,
+    )
+    .unwrap();
+    let v = judge(u, 0.0, 1.0, 50.0);
+    assert_eq!(v.stability, Stability::Unstable);
+    assert!(!v.stable_again.is_empty(), "{v:#?}");
+    assert_eq!(v.step_stable, Some(false), "{v:#?}");
+}
+
+/// Tiny steps and extreme damping ratios: the criterion's zero test must tell a small true value
+/// (`q0 = Omega^2` at `Omega = 1e-14`) from cancellation, and a set that meets a condition only to
+/// the rounding of its parameters (HHT with `alpha = -0.1`: `gamma = 0.6` is a rounded double)
+/// must be judged as meant. Before: the central difference at `Omega = 1e-14` "exceeded the stable
+/// limit 2", HHT-alpha -0.1 at `Omega = 1e-14` was "unconditional" with an unstable step, and
+/// generalised-alpha with `xi = 1e-30` was "unstable for every step".
+#[test]
+fn tiny_steps_and_extreme_damping_are_judged_as_meant() {
+    let judge = |s: Scheme, xi: f64, omega: f64| {
+        let ctx = CheckContext {
+            omega_max: Some(1.0),
+            dt: Some(omega),
+            ..CheckContext::default()
+        };
+        check(&s, xi, &ctx).unwrap()
+    };
+    let cd = Scheme::CentralDifference(ForceVelocity::Lagged);
+    for omega in [1e-14, 1e-30, 1e-200] {
+        assert_eq!(judge(cd, 0.0, omega).step_stable, Some(true), "Omega {omega}");
+    }
+    let hht = Scheme::Alpha(AlphaParams::hht(-0.1).unwrap());
+    for omega in [1e-17, 1e-12, 1e-8, 1.0] {
+        let v = judge(hht, 0.0, omega);
+        assert_eq!(v.stability, Stability::Unconditional, "Omega {omega}");
+        assert_eq!(v.step_stable, Some(true), "Omega {omega}");
+    }
+    // No boundary at all for the published families at xi = 0 (none from input rounding).
+    for p in [
+        AlphaParams::hht(-0.1).unwrap(),
+        AlphaParams::hht(-0.3).unwrap(),
+        AlphaParams::generalized_alpha(0.5).unwrap(),
+        AlphaParams::wbz_from_rho_inf(0.7).unwrap(),
+    ] {
+        let region = StabilityRegion::new(&Scheme::Alpha(p), 0.0);
+        assert!(region.below_first.is_stable() && region.omega_crit().is_none(), "{p:?}");
+    }
+    let ga = Scheme::Alpha(AlphaParams::generalized_alpha(0.5).unwrap());
+    let trap = Scheme::Alpha(AlphaParams::average_acceleration());
+    for (s, xi) in [(ga, 1e-30), (ga, 1e-300), (trap, 1e30), (trap, 1e-30), (ga, 1e12)] {
+        let v = judge(s, xi, 1e-10);
+        assert_eq!(v.stability, Stability::Unconditional, "{s:?} xi {xi}");
+        assert_eq!(v.step_stable, Some(true), "{s:?} xi {xi}");
+    }
+    // The central difference with the smallest damping: 2 (sqrt(1 + xi^2) - xi) = 2 to rounding.
+    let v = judge(cd, 1e-30, 1.0);
+    let Stability::Conditional { omega_crit } = v.stability else {
+        panic!("{v:#?}")
+    };
+    assert!((omega_crit - 2.0).abs() <= 2.0 * f64::EPSILON, "{omega_crit}");
+}
+
+/// Parameters far beyond every useful set are refused (the analysis cannot resolve them) instead
+/// of being judged wrongly (before: `beta = gamma = 1e50` was "unstable for every step" and
+/// "DIFFERS from the published bound").
+#[test]
+fn absurd_parameters_are_refused() {
+    assert!(AlphaParams::newmark(1e50, 1e50).is_err());
+    assert!(AlphaParams::raw(0.0, 0.0, 0.25, 1e7).is_err());
+    assert!(AlphaParams::raw(-2e6, 0.0, 0.25, 0.5).is_err());
+    assert!(AlphaParams::newmark(1e6, 1e6).is_ok());
+    let v = check(
+        &Scheme::Alpha(AlphaParams::newmark(1e6, 1e6).unwrap()),
+        0.0,
+        &CheckContext::default(),
+    )
+    .unwrap();
+    assert_eq!(v.stability, Stability::Unconditional, "2 beta >= gamma >= 1/2");
 }
 
 /// Over every published family (generalised-alpha, HHT-alpha, WBZ-alpha for rho_inf on a grid

@@ -81,7 +81,7 @@ pub struct CheckArgs {
     #[arg(
         long,
         value_name = "RAD_PER_S",
-        allow_negative_numbers = true,
+        allow_hyphen_values = true,
         help_heading = "Model and run"
     )]
     pub max_frequency: Option<f64>,
@@ -89,7 +89,7 @@ pub struct CheckArgs {
     #[arg(
         long,
         value_name = "SECONDS",
-        allow_negative_numbers = true,
+        allow_hyphen_values = true,
         help_heading = "Model and run"
     )]
     pub dt: Option<f64>,
@@ -97,7 +97,7 @@ pub struct CheckArgs {
     #[arg(
         long,
         value_name = "RAD_PER_S",
-        allow_negative_numbers = true,
+        allow_hyphen_values = true,
         help_heading = "Model and run"
     )]
     pub frequency_of_interest: Option<f64>,
@@ -105,7 +105,7 @@ pub struct CheckArgs {
     #[arg(
         long,
         value_name = "FRACTION",
-        allow_negative_numbers = true,
+        allow_hyphen_values = true,
         requires = "frequency_of_interest",
         help_heading = "Model and run"
     )]
@@ -362,18 +362,33 @@ fn human(chosen: &Labelled, xi: f64, ctx: &CheckContext, v: &Verdict) -> String 
     if let (Some(w), Some(target)) = (ctx.omega_interest, ctx.period_error_target) {
         lines.push((
             "accuracy step",
-            format!(
-                "dt <= {} s keeps the period error at {w} rad/s within {target}",
-                plain(v.dt_accuracy)
-            ),
+            match v.dt_accuracy {
+                Some(d) => format!(
+                    "dt <= {} s keeps the period error at {w} rad/s within {target}",
+                    plain(Some(d))
+                ),
+                None => "not defined: with xi >= 1 the exact mode does not oscillate (no period \
+                         to keep)"
+                    .to_string(),
+            },
         ));
         if let Some(dt) = ctx.dt {
             lines.push((
                 "period error",
                 format!(
                     "{} at {w} rad/s with dt = {dt} s",
-                    v.period_error_at_interest
-                        .map_or_else(|| "undefined (real roots)".to_string(), |e| e.to_string())
+                    v.period_error_at_interest.map_or_else(
+                        || {
+                            if v.dt_accuracy.is_none() {
+                                "not defined (xi >= 1: no exact oscillation)".to_string()
+                            } else {
+                                "not defined (the scheme's principal roots are real at this \
+                                 step: no discrete oscillation)"
+                                    .to_string()
+                            }
+                        },
+                        |e| e.to_string()
+                    )
                 ),
             ));
         }

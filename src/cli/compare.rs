@@ -64,7 +64,7 @@ pub struct CompareArgs {
         long,
         value_name = "LIST",
         value_delimiter = ',',
-        allow_negative_numbers = true
+        allow_hyphen_values = true
     )]
     pub dt: Option<Vec<f64>>,
     /// Halvings of the default step dt0 = T_min / 20.

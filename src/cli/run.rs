@@ -101,10 +101,10 @@ pub struct RunArgs {
     #[command(flatten)]
     pub scheme: SchemeArgs,
     /// Time step, or `auto` (central difference only: 0.9 times the estimated stable step).
-    #[arg(long, value_name = "DT", allow_negative_numbers = true)]
+    #[arg(long, value_name = "DT", allow_hyphen_values = true)]
     pub dt: String,
     /// End time (absolute, also after --resume).
-    #[arg(long, value_name = "T", allow_negative_numbers = true)]
+    #[arg(long, value_name = "T", allow_hyphen_values = true)]
     pub t_end: f64,
     /// Recorded DOFs, comma-separated, 0-based [default: all].
     #[arg(long, value_name = "LIST")]
@@ -351,9 +351,15 @@ fn build_engine(
                         && dt > lim
                     {
                         return Err(Failure::Usage(format!(
-                            "--dt {dt} exceeds the stable step of the central difference for \
-                             this model ({lim:e}, from its highest frequency and damping): \
-                             the run would go unstable; use --dt {:e} or smaller, or --dt auto",
+                            "--dt {dt} exceeds the step limit of the central difference for \
+                             this model ({lim:e}: from an upper bound on its highest frequency, \
+                             with its damping; the largest step stepgauge can vouch for, which \
+                             may lie a little below the estimated critical step{}); use --dt {:e} \
+                             or smaller, or --dt auto",
+                            cd.stable_step().map_or(String::new(), |s| format!(
+                                " {:e}",
+                                s.dt_critical_damped
+                            )),
                             0.9 * lim
                         )));
                     }

@@ -70,29 +70,29 @@ pub struct SchemeArgs {
     #[arg(long, value_enum, value_name = "NAME")]
     pub scheme: Option<SchemeKind>,
     /// Newmark's beta (newmark: default 1/4; generalized-alpha: raw set).
-    #[arg(long, value_name = "BETA", allow_negative_numbers = true)]
+    #[arg(long, value_name = "BETA", allow_hyphen_values = true)]
     pub beta: Option<f64>,
     /// Newmark's gamma (newmark: default 1/2; generalized-alpha: raw set).
-    #[arg(long, value_name = "GAMMA", allow_negative_numbers = true)]
+    #[arg(long, value_name = "GAMMA", allow_hyphen_values = true)]
     pub gamma: Option<f64>,
     /// HHT's alpha in [-1/3, 0], original sign convention (hht only).
-    #[arg(long, value_name = "ALPHA", allow_negative_numbers = true)]
+    #[arg(long, value_name = "ALPHA", allow_hyphen_values = true)]
     pub alpha: Option<f64>,
     /// alpha_m (wbz: in [-1, 0]; generalized-alpha: raw set).
-    #[arg(long, value_name = "ALPHA_M", allow_negative_numbers = true)]
+    #[arg(long, value_name = "ALPHA_M", allow_hyphen_values = true)]
     pub alpha_m: Option<f64>,
     /// alpha_f (generalized-alpha raw set only).
-    #[arg(long, value_name = "ALPHA_F", allow_negative_numbers = true)]
+    #[arg(long, value_name = "ALPHA_F", allow_hyphen_values = true)]
     pub alpha_f: Option<f64>,
     /// High-frequency spectral radius (hht: [1/2, 1]; wbz, generalized-alpha: [0, 1]).
-    #[arg(long, value_name = "RHO", allow_negative_numbers = true)]
+    #[arg(long, value_name = "RHO", allow_hyphen_values = true)]
     pub rho_inf: Option<f64>,
     /// Physical damping ratio xi of the mode (>= 0).
     #[arg(
         long,
         value_name = "XI",
         default_value_t = 0.0,
-        allow_negative_numbers = true
+        allow_hyphen_values = true
     )]
     pub xi: f64,
     /// Central difference only: velocity of the damping force [default: lagged].

@@ -18,10 +18,17 @@ scheme against Omega = omega dt, from the eigenvalues of its amplification matri
 with physical damping ratio xi.
 
   spectral radius  largest eigenvalue modulus, spurious roots included (> 1: unstable)
-  damping ratio    xi_bar of the principal pair exp(Omega_bar (-xi_bar +/- i)); '-' (null)
-                   where the principal roots are real
-  period error     Omega / Omega_bar - 1 (positive: the computed period is too long); '-'
-                   (null) where the principal roots are real
+  damping ratio    algorithmic damping ratio of the principal pair, net of the physical
+                   damping: with the pair z = exp(-xi Omega) exp(Omega_bar (-xi_bar +/- i)),
+                   xi_bar = -(ln|z| + xi Omega) / Omega_bar, zero for the exact solution (for
+                   xi = 0, the usual -ln|z| / Omega_bar)
+  period error     against the damped exact period: Omega sqrt(1 - xi^2) / Omega_bar - 1
+                   (positive: the computed period is too long)
+
+  Both are '-' (null) where the principal roots are real, and for xi >= 1 (the exact mode
+  does not oscillate). As xi approaches 1 the exact damped frequency goes to zero and both
+  measures grow without bound (they compare with a period that becomes infinite): read them
+  with care above xi = 0.9.
 
 One scheme: choose it with the scheme options (as for `stepgauge check`). Several:
 --standard-sets adds six standard sets, in this order: average acceleration, linear
@@ -64,7 +71,7 @@ pub struct OmegaArgs {
         long,
         value_name = "LIST",
         value_delimiter = ',',
-        allow_negative_numbers = true,
+        allow_hyphen_values = true,
         conflicts_with_all = ["omega_min", "omega_max", "points"]
     )]
     pub omega: Option<Vec<f64>>,
@@ -73,7 +80,7 @@ pub struct OmegaArgs {
         long,
         value_name = "OMEGA",
         default_value_t = 0.01,
-        allow_negative_numbers = true
+        allow_hyphen_values = true
     )]
     pub omega_min: f64,
     /// Largest Omega of the log-spaced range.
@@ -81,7 +88,7 @@ pub struct OmegaArgs {
         long,
         value_name = "OMEGA",
         default_value_t = 10.0,
-        allow_negative_numbers = true
+        allow_hyphen_values = true
     )]
     pub omega_max: f64,
     /// Number of Omega values in the range.
@@ -281,6 +288,17 @@ fn table(schemes: &[Labelled], results: &[Vec<Metrics>], xi: f64) -> String {
             p.beta,
             p.gamma
         ));
+        if xi > 0.9 && xi < 1.0 {
+            out.push_str(
+                "# note: xi is close to 1: the damping ratio and period error compare with a \
+                 damped exact period that grows without bound as xi -> 1; read them with care\n",
+            );
+        } else if xi >= 1.0 {
+            out.push_str(
+                "# note: xi >= 1: the exact mode does not oscillate, so the damping ratio and \
+                 period error are not defined ('-')\n",
+            );
+        }
         out.push_str(&format!(
             "{:>14}  {:>15}  {:>15}  {:>15}\n",
             "Omega", "spectral radius", "damping ratio", "period error"

@@ -46,6 +46,12 @@ matrices (Matrix Market files), with the DOFs of --fix removed:
                          at the lagged half-step velocity (2/omega_max)(sqrt(1 + xi^2) - xi);
                          with --scheme central-difference --damping-velocity predicted
                          (2/omega_max)(sqrt(1 + 4 xi^2) - 2 xi);
+  dt_limit, dt_limit_damped
+                         the step limit the central difference enforces in `stepgauge run`
+                         (undamped, and with --xi as above): 2/omega_upper with omega_upper an
+                         upper bound on omega_max (Gershgorin's, or the Lanczos estimate's with
+                         its convergence margin), so a little below dt_stable; a step between
+                         the two is refused by `run` although it may well be stable.
   dt_accuracy            with --frequency-of-interest (rad/s): the largest step for which the
                          chosen scheme (the scheme options, default average acceleration) keeps
                          the relative period error at that frequency under --period-error.";
@@ -75,7 +81,7 @@ pub struct TimestepArgs {
     #[command(flatten)]
     pub scheme: SchemeArgs,
     /// Circular frequency (rad/s, not Hz) whose period error bounds the accuracy step.
-    #[arg(long, value_name = "OMEGA", allow_negative_numbers = true)]
+    #[arg(long, value_name = "OMEGA", allow_hyphen_values = true)]
     pub frequency_of_interest: Option<f64>,
     /// Largest relative period error at --frequency-of-interest (0.01, i.e. 1 %, is common
     /// practice).
@@ -83,7 +89,7 @@ pub struct TimestepArgs {
         long,
         value_name = "E",
         default_value_t = 0.01,
-        allow_negative_numbers = true
+        allow_hyphen_values = true
     )]
     pub period_error: f64,
     /// Print JSON instead of text.
@@ -266,6 +272,16 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
     };
     let dt_stable_damped =
         (omega_max > 0.0).then(|| force_velocity.critical_omega_dt(xi) / omega_max);
+    // The limit `run` enforces: from the upper bound of the same estimate `run` makes (its
+    // default options).
+    let enforced = estimate(&mut model, &state, &StableStepOptions::default()).map_err(usage)?;
+    let dt_limit = enforced.dt_limit.is_finite().then_some(enforced.dt_limit);
+    let omega_upper = enforced
+        .omega_max_upper
+        .or_else(|| dt_limit.map(|dt| 2.0 / dt));
+    let dt_limit_damped = omega_upper
+        .filter(|w| *w > 0.0 && w.is_finite())
+        .map(|w| force_velocity.critical_omega_dt(xi) / w);
 
     // omega_min on the free DOFs.
     let mut index = vec![None; n];
@@ -290,10 +306,8 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
     let omega_min = low.lambda.max(0.0).sqrt();
 
     let dt_accuracy = match args.frequency_of_interest {
-        Some(w) => Some(
-            largest_step_for_period_error(&scheme.scheme, w, xi, args.period_error)
-                .map_err(Failure::from)?,
-        ),
+        Some(w) => largest_step_for_period_error(&scheme.scheme, w, xi, args.period_error)
+            .map_err(Failure::from)?,
         None => {
             if (args.period_error - 0.01).abs() > 0.0 {
                 return Err(Failure::Usage(
@@ -312,6 +326,9 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
             "f_min_hz": hz(omega_min),
             "dt_stable": dt_stable,
             "dt_stable_damped": dt_stable_damped,
+            "omega_max_upper": omega_upper,
+            "dt_limit": dt_limit,
+            "dt_limit_damped": dt_limit_damped,
             "damping_velocity": force_velocity_name(force_velocity),
             "xi": xi,
             "dt_accuracy": dt_accuracy,
@@ -351,6 +368,17 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
         table_num(dt_stable_damped),
         force_velocity_name(force_velocity)
     ));
+    out.push_str(&format!(
+        "step limit of `run`             dt_limit  = {}  (2/omega_upper, omega_upper = {} rad/s: \
+         an upper bound on omega_max)\n",
+        table_num(dt_limit),
+        table_num(omega_upper)
+    ));
+    out.push_str(&format!(
+        "                                damped    = {}  (xi = {xi} at omega_upper; `run --scheme \
+         central-difference` refuses larger steps)\n",
+        table_num(dt_limit_damped)
+    ));
     match (args.frequency_of_interest, dt_accuracy) {
         (Some(w), Some(dt)) => out.push_str(&format!(
             "accuracy step  dt_accuracy = {}  ({}: period error <= {} at omega = {w} rad/s)\n",
@@ -358,7 +386,11 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
             scheme.label,
             args.period_error
         )),
-        _ => out.push_str(
+        (Some(w), None) => out.push_str(&format!(
+            "accuracy step  dt_accuracy: not defined at omega = {w} rad/s: with xi = {xi} >= 1 the \
+             exact mode does not oscillate (no period to keep)\n"
+        )),
+        (None, _) => out.push_str(
             "accuracy step: give --frequency-of-interest (rad/s) and a scheme for the largest \
              step keeping the period error under --period-error (default 0.01)\n",
         ),

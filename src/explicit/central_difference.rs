@@ -469,8 +469,8 @@ impl CentralDifference {
         {
             s.dt_limit_damped = self.options.force_velocity.critical_omega_dt(xi) / w;
         }
-        // Steps are refused above the guaranteed limit, not above the estimate (which a Lanczos
-        // estimate approaches from the unsafe side).
+        // Steps are refused above the limit from the upper bound, not above the estimate (which a
+        // Lanczos estimate approaches from the unsafe side).
         self.dt_stable = Some(s.dt_limit_damped);
         Ok(self.stable.insert(s))
     }

@@ -51,7 +51,7 @@ use crate::state::{State, check_finite, check_len};
 ///
 /// * the error of the estimate itself: a Lanczos estimate of `omega_max` converges from below, so
 ///   the step derived from it is slightly too large (the recommended step is also capped at the
-///   guaranteed [`StableStep::dt_limit_damped`]), and element formulas `L / c` are only
+///   enforced limit [`StableStep::dt_limit_damped`]), and element formulas `L / c` are only
 ///   approximations of `2 / omega_max` for distorted or higher-order elements;
 /// * stiffening of nonlinear models between two estimates (the limit is recomputed only every so
 ///   many steps, while contact, hardening or large deformation can raise `omega_max` meanwhile);
@@ -376,6 +376,9 @@ pub struct OmegaMaxEstimate {
     /// `lambda_max / (1 - eps)` with the margin `eps` of [`lanczos_margin`] for the products
     /// spent, which a Lanczos process from a random start undershoots `lambda_max` by more than
     /// only with probability [`LANCZOS_FAILURE`], and at least `lambda_max` plus its residual.
+    /// Not a proof: the start vector here is a fixed pseudo-random one and the process restarts,
+    /// while the probability bound is for the plain process from a random start; it is applied
+    /// here as if it held (an assumption, stated in `docs/explicit.md`).
     pub lambda_upper: f64,
     /// Stiffness products used.
     pub products: usize,
@@ -707,8 +710,11 @@ pub struct StableStep {
     /// [`OmegaMaxEstimate::lambda_upper`] (capped by Gershgorin's bound for a linear model)
     /// otherwise, with a margin of `1e-6` for finite-difference products.
     pub omega_max_upper: Option<f64>,
-    /// The largest step this estimate guarantees stable, undamped: `2 / omega_max_upper`, or the
-    /// element step (the model's own bound).
+    /// The step limit this estimate vouches for, undamped: `2 / omega_max_upper`, or the element
+    /// step. As sure as its upper bound: certain for Gershgorin's; for the Lanczos bound, missed
+    /// only with a probability of about `1e-9` under the assumptions stated at
+    /// [`OmegaMaxEstimate::lambda_upper`]; for an element step, a bound for two-node bars with
+    /// lumped mass and as good as the model's element formula otherwise.
     pub dt_limit: f64,
     /// The same with the damping ratio at `omega_max_upper` (lagged damping velocity, as
     /// `dt_critical_damped`): the step above which

@@ -199,40 +199,45 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
     };
     if let Some(w) = ctx.omega_max {
         if let Stability::Conditional { omega_crit } = stability {
-            let dt_stable = omega_crit / w;
+            // The largest step whose Omega = omega_max dt, as computed from it, is within the
+            // limit: the quotient rounded to nearest may give back a product a unit above.
+            let mut dt_stable = omega_crit / w;
+            while dt_stable > 0.0 && w * dt_stable > omega_crit {
+                dt_stable = dt_stable.next_down();
+            }
+            while w * dt_stable.next_up() <= omega_crit {
+                dt_stable = dt_stable.next_up();
+            }
             verdict.dt_stable = Some(dt_stable);
             verdict.reasons.push(format!(
-                "with omega_max = {w} rad/s the largest stable step is {dt_stable:.6e} s{}",
-                if verdict.stable_at_omega_crit == Some(false) {
-                    " (exclusive: Omega_crit itself is unstable)"
-                } else {
-                    ""
-                }
+                "with omega_max = {w} rad/s the largest stable step is {dt_stable} s (every \
+                 omega dt up to omega_max dt within Omega_crit)"
             ));
         }
         if let Some(dt) = ctx.dt {
-            // The criterion at the step's own Omega, in double-double: exact also a few units in
-            // the last place from the limit.
-            let at = region.at(w * dt);
-            verdict.step_stable = Some(at.is_stable());
+            // Every mode up to omega_max must be stable, not only the highest: Omega in
+            // (0, omega_max dt], against the critical Omega (rounded to its stable side, so that
+            // a step a unit in the last place inside the limit is stable and one outside is not).
+            let omega = w * dt;
+            let stable = region.stable_up_to(omega);
+            verdict.step_stable = Some(stable);
             if let Stability::Conditional { .. } = stability {
-                verdict.reasons.push(match at {
-                    StepStability::Stable => {
-                        format!(
-                            "dt = {dt} s (Omega = {}) is within the stable limit",
-                            w * dt
-                        )
-                    }
-                    StepStability::Marginal => format!(
-                        "dt = {dt} s (Omega = {}) is stable, with a root on the unit circle",
-                        w * dt
+                let limit = verdict
+                    .dt_stable
+                    .map_or(String::new(), |d| format!(" {d} s"));
+                verdict.reasons.push(match (stable, region.at(omega)) {
+                    (true, StepStability::Marginal) => format!(
+                        "dt = {dt} s (Omega = {omega}) is stable, with a root on the unit circle"
                     ),
-                    StepStability::Unstable => format!(
-                        "dt = {dt} s (Omega = {}) exceeds the stable limit{}",
-                        w * dt,
-                        verdict
-                            .dt_stable
-                            .map_or(String::new(), |d| format!(" {d:.6e} s"))
+                    (true, _) => format!("dt = {dt} s (Omega = {omega}) is within the stable limit"),
+                    (false, StepStability::Unstable) => {
+                        format!("dt = {dt} s (Omega = {omega}) exceeds the stable limit{limit}")
+                    }
+                    (false, _) => format!(
+                        "dt = {dt} s exceeds the stable limit{limit}: its own Omega = {omega} \
+                         lies in a window where the scheme is stable again, but the modes with \
+                         omega dt between Omega_crit and that window are not, and a model with \
+                         omega_max = {w} rad/s may have modes there"
                     ),
                 });
             }
@@ -243,10 +248,20 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
     if let Some(wi) = ctx.omega_interest {
         let target = ctx.period_error_target.unwrap_or(0.01);
         let dt_acc = largest_step_for_period_error(scheme, wi, xi, target)?;
-        verdict.dt_accuracy = Some(dt_acc);
-        verdict.reasons.push(format!(
-            "the period error at {wi} rad/s stays within {target} for dt <= {dt_acc:.6e} s"
-        ));
+        verdict.dt_accuracy = dt_acc;
+        verdict.reasons.push(match dt_acc {
+            Some(d) if d > 0.0 => format!(
+                "the period error at {wi} rad/s stays within {target} for dt <= {d:.6e} s"
+            ),
+            Some(_) => format!(
+                "no step keeps the period error at {wi} rad/s within {target}: it exceeds the \
+                 target even at Omega = 1e-6"
+            ),
+            None => format!(
+                "no accuracy step: with xi = {xi} >= 1 the exact mode does not oscillate, so there \
+                 is no period at {wi} rad/s to keep (the period error is not defined)"
+            ),
+        });
         if let Some(dt) = ctx.dt {
             let m = metrics(scheme, wi * dt, xi);
             verdict.period_error_at_interest = m.period_error;
@@ -310,21 +325,24 @@ fn stability(
         ));
         return Stability::Unconditional;
     };
-    let omega_crit = b.omega;
+    // The boundary rounded to its stable side: every Omega up to it is stable, so a step pasted
+    // from it is accepted (the boundary rounded to nearest may lie a unit above the limit).
+    let omega_crit = b.stable_side;
+    let boundary = b.omega;
     let how = match b.kind {
         BoundaryKind::RootAtMinusOne => "a real root passes through z = -1 (P(-1) = 0)",
         BoundaryKind::PairOnCircle => "a complex pair crosses the unit circle",
         BoundaryKind::Coefficient => "a root crosses the unit circle",
     };
     reasons.push(format!(
-        "conditionally stable: Omega_crit = {omega_crit:.15}, where {how} ({CRITERION})"
+        "conditionally stable: the stability boundary lies at Omega = {boundary:.15}, where {how} ({CRITERION})"
     ));
     reasons.push(match b.at {
         StepStability::Unstable => format!(
-            "at Omega = Omega_crit exactly: unstable (a double root at -1, or a root beyond the circle: the solution grows linearly or faster), so stable for Omega < {omega_crit:.15}"
+            "at the boundary itself: unstable (a double root at -1, or a root beyond the circle: the solution grows linearly or faster), so stable below it; Omega_crit = {omega_crit}, the largest double below the boundary"
         ),
         _ => format!(
-            "at Omega = Omega_crit exactly: stable (a simple root on the unit circle: bounded, not growing), so stable for Omega <= {omega_crit:.15}"
+            "at the boundary itself: stable (a simple root on the unit circle: bounded, not growing); Omega_crit = {omega_crit}, the largest double at or below the boundary"
         ),
     });
     if !again.is_empty() {

@@ -365,7 +365,9 @@ pub fn order_of_accuracy(scheme: &Scheme, xi: f64) -> u32 {
 
 /// The largest step for which the period error at circular frequency `omega` stays within
 /// `target` (e.g. 0.01 for 1 percent), by bisection on `Omega` (the period error grows with
-/// `Omega` over the range where the roots are complex).
+/// `Omega` over the range where the roots are complex). `None` where the period error is not
+/// defined for small steps: with `xi >= 1` the exact mode does not oscillate, so there is no
+/// period to keep. `Some(0.0)` when even the smallest step (`Omega = 1e-6`) misses the target.
 ///
 /// # Errors
 /// [`Error::InvalidParameter`] for a non-positive or non-finite `omega` or `target`.
@@ -374,24 +376,34 @@ pub fn largest_step_for_period_error(
     omega: f64,
     xi: f64,
     target: f64,
-) -> Result<f64> {
+) -> Result<Option<f64>> {
     largest_step(omega, target, |o| {
         metrics(scheme, o, xi).period_error.map(f64::abs)
     })
 }
 
 /// The largest step for which the algorithmic damping ratio at circular frequency `omega` stays
-/// within `target`.
+/// within `target`; `None` where the damping ratio is not defined for small steps (`xi >= 1`: no
+/// exact oscillation), `Some(0.0)` when even the smallest step misses the target.
 ///
 /// # Errors
 /// [`Error::InvalidParameter`] for a non-positive or non-finite `omega` or `target`.
-pub fn largest_step_for_damping(scheme: &Scheme, omega: f64, xi: f64, target: f64) -> Result<f64> {
+pub fn largest_step_for_damping(
+    scheme: &Scheme,
+    omega: f64,
+    xi: f64,
+    target: f64,
+) -> Result<Option<f64>> {
     largest_step(omega, target, |o| {
         metrics(scheme, o, xi).damping_ratio.map(|d| (d).abs())
     })
 }
 
-fn largest_step(omega: f64, target: f64, measure: impl Fn(f64) -> Option<f64>) -> Result<f64> {
+fn largest_step(
+    omega: f64,
+    target: f64,
+    measure: impl Fn(f64) -> Option<f64>,
+) -> Result<Option<f64>> {
     for (name, v) in [("omega", omega), ("target", target)] {
         if !(v.is_finite() && v > 0.0) {
             return Err(Error::InvalidParameter {
@@ -404,15 +416,17 @@ fn largest_step(omega: f64, target: f64, measure: impl Fn(f64) -> Option<f64>) -
     let ok = |o: f64| measure(o).is_some_and(|m| m <= target);
     // Grow until the measure fails, then bisect.
     let mut lo = 1e-6;
-    if !ok(lo) {
-        return Ok(0.0);
+    match measure(lo) {
+        None => return Ok(None),
+        Some(m) if m.is_nan() || m > target => return Ok(Some(0.0)),
+        Some(_) => {}
     }
     let mut hi = lo;
     while ok(hi) {
         lo = hi;
         hi *= 1.5;
         if hi > 1e6 {
-            return Ok(hi / omega);
+            return Ok(Some(hi / omega));
         }
     }
     for _ in 0..200 {
@@ -426,7 +440,7 @@ fn largest_step(omega: f64, target: f64, measure: impl Fn(f64) -> Option<f64>) -
             hi = mid;
         }
     }
-    Ok(lo / omega)
+    Ok(Some(lo / omega))
 }
 
 #[cfg(test)]

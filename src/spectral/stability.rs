@@ -50,11 +50,23 @@ struct Poly {
     mag: Vec<f64>,
 }
 
-/// A coefficient or value within this fraction of its terms' magnitudes is zero: double-double
+/// A value of a criterion polynomial within this fraction of its terms' magnitudes is zero: double-double
 /// rounding is about `2^-104` of the terms, so this separates cancellation to rounding from any
 /// value a double input can make (one unit in the last place of `Omega` changes a value by about
 /// `2^-53` of its terms).
 const ZERO: f64 = 16384.0 * f64::EPSILON * f64::EPSILON; // 2^-90 (EPSILON = 2^-52)
+
+/// A coefficient of a criterion polynomial within this fraction of its terms' magnitudes is zero:
+/// the rounding of the inputs. A set's parameters are doubles, rounded from what the user meant
+/// (`gamma = 0.6` for HHT with `alpha = -0.1` meets `gamma = 1/2 - alpha` only to half a unit in
+/// the last place), and a coefficient that vanishes for the meant set (the Hurwitz determinant's
+/// `Omega^2` term of a second-order set) is left by that rounding at about `eps` of its terms, a
+/// few `eps` after the products that form it. Kept, it would decide the verdict below
+/// `Omega = 1e-7` (for HHT, a pair outside the circle by `1e-16 Omega^2`, exact for the rounded
+/// doubles and meaningless for the set). 64 `eps` (`2^-46`) covers the rounding of up to four
+/// parameters in a product with a margin of 16; a set that misses a condition by less than that
+/// is taken to meet it.
+const COEFFICIENT_ZERO: f64 = 64.0 * f64::EPSILON;
 
 impl Poly {
     fn new(c: Vec<Dd>) -> Self {
@@ -93,10 +105,14 @@ impl Poly {
     }
 
     /// The polynomial with its cancelled coefficients set to zero and its trailing zeros removed.
+    /// A cancelled coefficient is zero exactly (an identity of the exact polynomial, such as
+    /// `P(1) = 0` at `Omega = 0`), so its terms' magnitude goes with it: kept, it would count as
+    /// rounding in every value and hide a small true value (`q0 = Omega^2` at `Omega = 1e-14`).
     fn cleaned(mut self) -> Poly {
-        for (c, m) in self.c.iter_mut().zip(&self.mag) {
-            if c.hi().abs() <= ZERO * m {
+        for (c, m) in self.c.iter_mut().zip(self.mag.iter_mut()) {
+            if c.hi().abs() <= COEFFICIENT_ZERO * *m {
                 *c = Dd::from(0.0);
+                *m = 0.0;
             }
         }
         while self.c.last().is_some_and(|c| c.hi() == 0.0) {
@@ -271,8 +287,13 @@ pub enum BoundaryKind {
 /// One stability boundary: an `Omega > 0` where the criterion can change.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Boundary {
-    /// `Omega` (rounded to double precision from its double-double value).
+    /// `Omega` (rounded to the nearest double from its double-double value).
     pub omega: f64,
+    /// The double nearest the boundary on its stable side, where the criterion holds: rounded
+    /// down where the scheme is stable below and unstable above (the critical `Omega`), up where
+    /// it is unstable below and stable above (the start of a stable window), to the nearest
+    /// double elsewhere. A step at this `Omega` is stable, whatever the rounding of the boundary.
+    pub stable_side: f64,
     /// What happens there (the first kind found, for a root shared by several conditions).
     pub kind: BoundaryKind,
     /// The criterion at the boundary itself.
@@ -312,8 +333,8 @@ impl StabilityRegion {
         let q1 = comb([-3.0, -1.0, 1.0, 3.0]);
         let q2 = comb([3.0, -1.0, -1.0, 3.0]);
         let q3 = comb([-1.0, 1.0, -1.0, 1.0]);
-        let h = q2.mul(&q1).sub(&q3.mul(&q0)).cleaned();
         let q = [q0.cleaned(), q1.cleaned(), q2.cleaned(), q3.cleaned()];
+        let h = q[2].mul(&q[1]).sub(&q[3].mul(&q[0])).cleaned();
         let mut candidates: Vec<(Dd, BoundaryKind)> = Vec::new();
         for (poly, kind) in [
             (&q[3], BoundaryKind::RootAtMinusOne),
@@ -353,16 +374,43 @@ impl StabilityRegion {
         };
         let first = points.first().map_or(Dd::from(2.0), |p| p.0);
         region.below_first = region.criterion(first * 0.5);
+        let mut below = region.below_first;
         for (i, &(r, kind)) in points.iter().enumerate() {
             let next = points.get(i + 1).map_or(r * 2.0 + 1.0, |p| (r + p.0) * 0.5);
+            let above = region.criterion(next);
+            let stable_side = match (below.is_stable(), above.is_stable()) {
+                (true, false) => region.stable_double(r, false),
+                (false, true) => region.stable_double(r, true),
+                _ => f64::from(r),
+            };
             region.boundaries.push(Boundary {
                 omega: f64::from(r),
+                stable_side,
                 kind,
                 at: region.criterion(r),
-                above: region.criterion(next),
+                above,
             });
+            below = above;
         }
         region
+    }
+
+    /// The double nearest `r` on the side (`up` or down) where the criterion holds: `r` rounded
+    /// that way, then moved on by a unit in the last place while the criterion fails there (at
+    /// most a few times: the criterion fails only at `r` itself or beyond it).
+    fn stable_double(&self, r: Dd, up: bool) -> f64 {
+        let step = |d: f64| if up { d.next_up() } else { d.next_down() };
+        let mut d = f64::from(r);
+        if (up && Dd::from(d) < r) || (!up && Dd::from(d) > r) {
+            d = step(d);
+        }
+        for _ in 0..4 {
+            if self.criterion(Dd::from(d)).is_stable() {
+                break;
+            }
+            d = step(d);
+        }
+        d
     }
 
     /// The scheme.
@@ -409,8 +457,10 @@ impl StabilityRegion {
         self.criterion(Dd::from(omega_dt))
     }
 
-    /// The smallest `Omega` at which (or just above which) the scheme is unstable: `Some(0)` when
-    /// it is unstable for every small step, `None` when it is stable for every step.
+    /// The critical `Omega`: the largest double up to which every `Omega` is stable (the first
+    /// boundary beyond which, or at which, the scheme is unstable, rounded to its stable side:
+    /// see [`Boundary::stable_side`]). `Some(0)` when the scheme is unstable for every small
+    /// step, `None` when it is stable for every step.
     pub fn omega_crit(&self) -> Option<f64> {
         if !self.below_first.is_stable() {
             return Some(0.0);
@@ -418,7 +468,20 @@ impl StabilityRegion {
         self.boundaries
             .iter()
             .find(|b| !b.at.is_stable() || !b.above.is_stable())
-            .map(|b| b.omega)
+            .map(|b| b.stable_side)
+    }
+
+    /// True when every `Omega` in `(0, omega_dt]` is stable: what a model with modes at every
+    /// frequency up to `omega_max` needs of its step `dt = omega_dt / omega_max` (a step whose own
+    /// `Omega` lies in a window that is stable again is not enough: the modes below it are not).
+    pub fn stable_up_to(&self, omega_dt: f64) -> bool {
+        if !(omega_dt.is_finite() && omega_dt > 0.0) {
+            return false;
+        }
+        match self.omega_crit() {
+            None => true,
+            Some(crit) => omega_dt <= crit,
+        }
     }
 
     /// The boundary at [`omega_crit`](Self::omega_crit), when there is one.
@@ -432,7 +495,8 @@ impl StabilityRegion {
     }
 
     /// The intervals of `Omega` above `omega_crit` where the scheme is stable again, as
-    /// `(from, to)` with `to = f64::INFINITY` for the last (empty for most schemes).
+    /// `(from, to)` with `to = f64::INFINITY` for the last (empty for most schemes); each end is
+    /// its boundary rounded to the stable side (see [`Boundary::stable_side`]).
     pub fn stable_again(&self) -> Vec<(f64, f64)> {
         let Some(crit) = self.omega_crit() else {
             return Vec::new();
@@ -447,11 +511,11 @@ impl StabilityRegion {
             let to = self
                 .boundaries
                 .get(i + 1)
-                .map_or(f64::INFINITY, |n| n.omega);
+                .map_or(f64::INFINITY, |n| n.stable_side);
             match out.last_mut() {
                 // Joined across a boundary that is itself stable.
                 Some(last) if last_end == Some(i) && b.at.is_stable() => last.1 = to,
-                _ => out.push((b.omega, to)),
+                _ => out.push((b.stable_side, to)),
             }
             last_end = Some(i + 1);
         }
