@@ -131,3 +131,41 @@ pub(crate) fn check_step_advances(t: f64, dt: f64) -> Result<()> {
         })
     }
 }
+
+/// The internal energy held at the start, for the growth guard's energy budget: the model's
+/// [`stored_energy`](Model::stored_energy) when it gives one; otherwise the work of the internal
+/// forces along the straight path from the undeformed state to `u` (at rest, time `t`),
+/// `W = int_0^1 f_int(s u) . u ds`, by Simpson's rule on `s = 0, 1/2, 1` (exact for forces up to
+/// cubic in `u`; for a path-dependent model an estimate of the right size, which is all a guard
+/// scaled by a factor of 10 needs). Without it a model released from a deformed shape that does
+/// not give its stored energy starts with no energy "put in": the guard then stays off (an
+/// unstable run goes on to overflow), or a tiny load's work becomes the whole budget and a
+/// stable release is stopped as unstable. Falls back to `|f_int(u) . u| / 2` when the model
+/// cannot evaluate the intermediate states, and to 0 when it cannot evaluate `u` either. Called
+/// once per integrator, at its creation.
+pub(crate) fn start_internal_energy<M: Model + ?Sized>(model: &mut M, t: f64, u: &[f64]) -> f64 {
+    if let Some(e) = model.stored_energy(u) {
+        return e;
+    }
+    if u.iter().all(|x| *x == 0.0) {
+        return 0.0;
+    }
+    let n = u.len();
+    let zero = vec![0.0; n];
+    let mut f = vec![0.0; n];
+    let mut us = vec![0.0; n];
+    let mut work_at = |s: f64, model: &mut M| -> Option<f64> {
+        for (a, b) in us.iter_mut().zip(u) {
+            *a = s * b;
+        }
+        model.internal_force(t, &us, &zero, &mut f).ok()?;
+        let w: f64 = f.iter().zip(u).map(|(a, b)| a * b).sum();
+        w.is_finite().then_some(w)
+    };
+    let at_end = work_at(1.0, model);
+    match (work_at(0.0, model), work_at(0.5, model), at_end) {
+        (Some(w0), Some(wh), Some(w1)) => (w0 + 4.0 * wh + w1) / 6.0,
+        (_, _, Some(w1)) => 0.5 * w1.abs(),
+        _ => 0.0,
+    }
+}

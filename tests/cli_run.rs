@@ -411,6 +411,45 @@ fn resume_hht_is_bit_identical() {
     );
 }
 
+/// Resume across an end time off the grid: a run to `--t-end 1.25` with `--dt 0.1` ends with a
+/// shortened step on 1.25 exactly and checkpoints there; resumed to 2.4 it starts at that row,
+/// keeps full steps from it (1.35, 1.45, ...; the library's bit-identity across such a resume is
+/// `tests/resume.rs`) and lands on 2.4 exactly with one more shortened step.
+#[test]
+fn resume_across_an_end_time_off_the_grid() {
+    let s = Scratch::new("offgrid");
+    let (m, k, load) = two_dof(&s);
+    let (a, b, ck) = (s.path("a.csv"), s.path("b.csv"), s.path("run.ckpt"));
+    for scheme in [&["--scheme", "central-difference"][..], &["--scheme", "hht", "--alpha", "-0.1"]] {
+        let run = |more: &[&str]| {
+            let mut args = vec![
+                "run", "--mass", &m, "--stiffness", &k, "--load", &load, "--dt", "0.1", "--quiet",
+            ];
+            args.extend_from_slice(scheme);
+            args.extend_from_slice(more);
+            let r = stepgauge(&args);
+            assert_eq!(r.code, 0, "{args:?}: {}", r.stderr);
+        };
+        run(&["--t-end", "1.25", "--output", &a, "--checkpoint", &ck]);
+        run(&["--t-end", "2.4", "--output", &b, "--resume", &ck]);
+        let (ra, rb) = (rows(&a), rows(&b));
+        assert_eq!(ra.last().unwrap()[0], 1.25, "{scheme:?}: first part ends on its end time");
+        assert_eq!(rb[0], *ra.last().unwrap(), "{scheme:?}: resumed from that row");
+        let times: Vec<f64> = rb.iter().map(|r| r[0]).collect();
+        assert_eq!(*times.last().unwrap(), 2.4, "{scheme:?}: lands on the end time");
+        for (i, w) in times.windows(2).enumerate() {
+            let expected = if i + 2 == times.len() { 2.4 - 2.35 } else { 0.1 };
+            assert!(
+                ((w[1] - w[0]) - expected).abs() <= 1e-12,
+                "{scheme:?}: step {i}: {} to {}",
+                w[0],
+                w[1]
+            );
+        }
+        assert!(rb.iter().flatten().all(|x| x.is_finite()));
+    }
+}
+
 #[test]
 fn resume_with_another_step_or_a_truncated_checkpoint_is_refused() {
     let s = Scratch::new("badresume");

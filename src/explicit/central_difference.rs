@@ -239,7 +239,9 @@ impl CentralDifference {
         let l = &mut cd.ledger;
         l.initial_kinetic = l.kinetic;
         l.initial_internal = model.stored_energy(&cd.u_next).unwrap_or(0.0);
-        l.energy_in = l.initial_kinetic + l.initial_internal.abs();
+        // The guard's budget: the stored energy, or the work of getting to the start's shape.
+        l.energy_in =
+            l.initial_kinetic + crate::setup::start_internal_energy(model, state.t, &cd.u_next).abs();
         // The start state: u and v constrained, a consistent (`a_next` of the start).
         let mut s = State {
             t: state.t,

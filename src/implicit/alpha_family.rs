@@ -353,7 +353,8 @@ impl AlphaIntegrator {
         l.kinetic = ke;
         l.initial_kinetic = ke;
         l.initial_internal = model.stored_energy(&s.u).unwrap_or(0.0);
-        l.energy_in = ke + l.initial_internal.abs();
+        // The guard's budget: the stored energy, or the work of getting to the start's shape.
+        l.energy_in = ke + crate::setup::start_internal_energy(model, s.t, &s.u).abs();
         it.trial.copy_from(&it.ledger);
         *state = s;
         Ok(it)

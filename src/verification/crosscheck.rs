@@ -37,6 +37,8 @@ const SOLUTIONS: &str = include_str!("../../tests/data/scipy_reference_solutions
 const AMPLIFICATION: &str = include_str!("../../tests/data/scipy_amplification.csv");
 /// SciPy's table of the hardening oscillator (checked here for its provenance only).
 const DUFFING: &str = include_str!("../../tests/data/duffing_reference.csv");
+/// The same oscillator from rest (read by the tests; its header is checked here).
+const DUFFING_FROM_REST: &str = include_str!("../../tests/data/duffing_from_rest.csv");
 
 /// The script that makes the two cross-check tables.
 const SCRIPT: &str = "tests/data/crosscheck.py";
@@ -110,6 +112,11 @@ pub(crate) fn checks() -> Vec<Check> {
         (
             "duffing_reference.csv",
             DUFFING,
+            "tests/data/duffing_reference.py",
+        ),
+        (
+            "duffing_from_rest.csv",
+            DUFFING_FROM_REST,
             "tests/data/duffing_reference.py",
         ),
     ]));

@@ -129,6 +129,20 @@ pub fn duffing_reference() -> Vec<(f64, f64, f64)> {
         .collect()
 }
 
+/// The same oscillator from rest (`tests/data/duffing_from_rest.csv`, written by
+/// `tests/data/duffing_reference.py`): rows of `(t, u, v)`.
+#[allow(dead_code)]
+pub fn duffing_from_rest() -> Vec<(f64, f64, f64)> {
+    include_str!("../data/duffing_from_rest.csv")
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.starts_with("t,"))
+        .map(|l| {
+            let f: Vec<f64> = l.split(',').map(|x| x.parse().unwrap()).collect();
+            (f[0], f[1], f[2])
+        })
+        .collect()
+}
+
 /// A left eigenvector of the real 3x3 matrix `a` for its (simple) eigenvalue `z`: a null vector of
 /// `A^T - z I`, the cross product of two of its rows.
 pub fn left_eigenvector(

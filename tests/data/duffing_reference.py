@@ -4,15 +4,17 @@
     m u'' + c u' + k u + k3 u^3 = F0 sin(w t),   u(0) = u0, u'(0) = v0
 
 integrated by SciPy's DOP853 (an 8th-order Runge-Kutta method) at tight tolerances, independently
-of stepgauge. Writes tests/data/duffing_reference.csv with a header that records the command line,
-the parameters and the library versions.
+of stepgauge. Writes two tables with a header that records the command line, the parameters and
+the library versions: tests/data/duffing_reference.csv (released from u0 = 0.5) and
+tests/data/duffing_from_rest.csv (the same oscillator and load from rest, u0 = v0 = 0: the load
+starts at zero, so an implicit run's first Newton steps see almost no force).
 
 Run from the repository root:
 
-    python3 tests/data/duffing_reference.py            # regenerate the table
-    python3 tests/data/duffing_reference.py OUT.csv    # write it elsewhere
+    python3 tests/data/duffing_reference.py            # regenerate the tables
+    python3 tests/data/duffing_reference.py DIR        # write them into another folder
     python3 tests/data/duffing_reference.py --check    # regenerate into a scratch folder and
-                                                       # compare with the committed table
+                                                       # compare with the committed tables
 
 `--check` exits with status 1 and names the differences when a fresh run differs from the
 committed table beyond round-off (same times exactly; u and v within 1e-9 of the run's largest
@@ -34,8 +36,9 @@ from scipy.integrate import solve_ivp
 # Parameters of our own (a scenario for the tests, not a physical system).
 M, C, K, K3 = 1.0, 0.1, 1.0, 5.0
 F0, W = 2.0, 1.2
-U0, V0 = 0.5, 0.0
 T_END, DT_OUT = 10.0, 0.1
+# The tables: file name and start (u0, v0).
+TABLES = [("duffing_reference.csv", 0.5, 0.0), ("duffing_from_rest.csv", 0.0, 0.0)]
 
 
 def rhs(t, y):
@@ -43,11 +46,11 @@ def rhs(t, y):
     return [v, (F0 * np.sin(W * t) - C * v - K * u - K3 * u**3) / M]
 
 
-COMMITTED = "tests/data/duffing_reference.csv"
+COMMITTED_DIR = "tests/data"
 CHECK_TOL = 1e-9
 
 
-def write(out):
+def write(out, U0, V0):
     times = np.round(np.arange(0.0, T_END + 0.5 * DT_OUT, DT_OUT), 12)
     sol = solve_ivp(rhs, (0.0, T_END), [U0, V0], method="DOP853", t_eval=times,
                     rtol=1e-13, atol=1e-15)
@@ -87,11 +90,19 @@ def read(path):
 
 
 def check():
+    status = 0
+    for name, u0, v0 in TABLES:
+        status = max(status, check_one(name, u0, v0))
+    return status
+
+
+def check_one(name, u0, v0):
+    COMMITTED = os.path.join(COMMITTED_DIR, name)
     errors = []
     tmp = tempfile.mkdtemp()
     try:
-        fresh = os.path.join(tmp, "duffing_reference.csv")
-        write(fresh)
+        fresh = os.path.join(tmp, name)
+        write(fresh, u0, v0)
         (h0, c0, r0), (h1, c1, r1) = read(COMMITTED), read(fresh)
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
@@ -125,14 +136,16 @@ def check():
 
 def main():
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("out", nargs="?", default=COMMITTED, help="where to write the table")
+    parser.add_argument("out", nargs="?", default=COMMITTED_DIR,
+                        help="the folder to write the tables into")
     parser.add_argument("--check", action="store_true",
                         help="regenerate into a scratch folder and compare with the committed "
                              "table; exit 1 on a difference beyond round-off")
     args = parser.parse_args()
     if args.check:
         return check()
-    write(args.out)
+    for name, u0, v0 in TABLES:
+        write(os.path.join(args.out, name), u0, v0)
     return 0
 
 
