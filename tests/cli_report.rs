@@ -70,6 +70,76 @@ fn assert_report(html: &str) {
         "an external script in the report"
     );
     assert!(!html.contains("FAILED"), "a failed check in the report");
+    assert_sets_table(html);
+}
+
+/// The cells of the table row whose first cell starts with `label`.
+fn row<'a>(html: &'a str, label: &str) -> Vec<&'a str> {
+    let start = format!("<tr><td>{label}");
+    let line = html
+        .lines()
+        .find(|l| l.starts_with(&start))
+        .unwrap_or_else(|| panic!("no row `{label}` in the report"));
+    line.trim_start_matches("<tr><td>")
+        .trim_end_matches("</td></tr>")
+        .split("</td><td>")
+        .collect()
+}
+
+/// A printed number against its value: within half a unit of its last printed digit (the report
+/// prints seven significant digits), and `-` for none.
+fn printed_near(cell: &str, value: Option<f64>, what: &str) {
+    match value {
+        None => assert_eq!(cell, "-", "{what}"),
+        Some(v) => {
+            let x: f64 = cell.parse().unwrap_or_else(|_| panic!("{what}: `{cell}`"));
+            let mantissa = cell.split(['e', 'E']).next().unwrap();
+            let decimals = mantissa.split_once('.').map_or(0, |(_, d)| d.len()) as i32;
+            let exponent: i32 = cell.split_once(['e', 'E']).map_or(0, |(_, e)| e.parse().unwrap());
+            let half_unit = 0.5 * 10f64.powi(exponent - decimals);
+            assert!((x - v).abs() <= half_unit * (1.0 + 1e-9), "{what}: printed {cell}, value {v}");
+        }
+    }
+}
+
+/// The table of the standard sets shows the values published for them, not only its headings:
+/// columns verdict, Omega_crit, rho_inf, order, dissipative, period error and damping at Omega =
+/// 0.1 and 1 (undamped). Sources: the trapezoidal rule's `omega_bar dt = 2 atan(Omega/2)` and
+/// the central difference's `2 asin(Omega/2)` with `Omega_crit = 2` (Hughes 1987, sec. 9.3, from
+/// memory); linear acceleration's `Omega_crit = 2 sqrt(3)` (Newmark 1959); HHT's `rho_inf = (1 +
+/// alpha)/(1 - alpha)` (Hilber, Hughes & Taylor 1977); WBZ and generalised-alpha made with their
+/// `rho_inf` (Chung & Hulbert 1993). Linear acceleration's `rho_inf = 2 + sqrt(3)` is the larger
+/// root of `z^2 + 4 z + 1`, the limit of Newmark's characteristic polynomial `z^2 - (2 - (gamma
+/// + 1/2)/beta) z + 1 - (gamma - 1/2)/beta` (a re-derivation in the project).
+fn assert_sets_table(html: &str) {
+    let trap = row(html, "average acceleration");
+    assert_eq!(trap[1], "unconditional");
+    printed_near(trap[2], None, "trapezoidal Omega_crit");
+    printed_near(trap[3], Some(1.0), "trapezoidal rho_inf");
+    assert_eq!((trap[4], trap[5]), ("2", "no"));
+    let t = |o: f64| o / (2.0 * (o / 2.0).atan()) - 1.0;
+    printed_near(trap[6], Some(t(0.1)), "trapezoidal period error at 0.1");
+    printed_near(trap[7], Some(0.0), "trapezoidal damping at 0.1");
+    printed_near(trap[8], Some(t(1.0)), "trapezoidal period error at 1");
+    let lin = row(html, "linear acceleration");
+    assert_eq!(lin[1], "conditional");
+    printed_near(lin[2], Some(12f64.sqrt()), "linear acceleration Omega_crit");
+    printed_near(lin[3], Some(2.0 + 3f64.sqrt()), "linear acceleration rho_inf");
+    let hht = row(html, "hht alpha = -0.1");
+    assert_eq!((hht[1], hht[5]), ("unconditional", "yes"));
+    printed_near(hht[3], Some(0.9 / 1.1), "HHT rho_inf");
+    for label in ["wbz rho_inf = 0.8", "generalized-alpha rho_inf = 0.8"] {
+        let r = row(html, label);
+        assert_eq!((r[1], r[4], r[5]), ("unconditional", "2", "yes"), "{label}");
+        printed_near(r[3], Some(0.8), label);
+    }
+    let cd = row(html, "central difference");
+    assert_eq!(cd[1], "conditional");
+    printed_near(cd[2], Some(2.0), "central difference Omega_crit");
+    printed_near(cd[3], None, "central difference rho_inf");
+    let c = |o: f64| o / (2.0 * (o / 2.0).asin()) - 1.0;
+    printed_near(cd[6], Some(c(0.1)), "central difference period error at 0.1");
+    printed_near(cd[8], Some(c(1.0)), "central difference period error at 1");
 }
 
 /// `stepgauge report --output DIR` writes DIR/report.html, prints its path, exits 0.
