@@ -6,8 +6,7 @@ use stepgauge::explicit::{
     CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
 };
 use stepgauge::run::{Flow, RunOptions, StepControl, StopReason, run};
-use stepgauge::model::Model;
-use stepgauge::{Error, ModelError, State};
+use stepgauge::{Error, State};
 
 fn unchecked() -> CentralDifferenceOptions {
     CentralDifferenceOptions {
@@ -198,36 +197,6 @@ fn stepped_decay_equals_the_spectral_radius() {
     }
 }
 
-/// A spring `k u` with a constant load and nothing else: in particular no `stored_energy`, so the
-/// integrators cannot be told the energy of a deformed start.
-struct BareSpring {
-    k: f64,
-    load: f64,
-}
-
-impl Model for BareSpring {
-    fn dofs(&self) -> usize {
-        1
-    }
-    fn lumped_mass(&self, out: &mut [f64]) {
-        out[0] = 1.0;
-    }
-    fn internal_force(
-        &mut self,
-        _t: f64,
-        u: &[f64],
-        _v: &[f64],
-        out: &mut [f64],
-    ) -> Result<(), ModelError> {
-        out[0] = self.k * u[0];
-        Ok(())
-    }
-    fn external_force(&mut self, _t: f64, out: &mut [f64]) -> Result<(), ModelError> {
-        out[0] = self.load;
-        Ok(())
-    }
-}
-
 /// The growth guard for a model released from a deformed shape that does not give its stored
 /// energy: the guard must still stop a run above the stability limit (before: no energy had
 /// been "put in", so the guard stayed off and the run went on to overflow), and a tiny load must
@@ -237,7 +206,7 @@ impl Model for BareSpring {
 fn growth_guard_for_a_deformed_release_without_stored_energy() {
     // Stable (Omega = 1.9) with no load and with a tiny one: 2000 steps, no guard.
     for load in [0.0, 1e-12, 1e-300] {
-        let mut model = BareSpring { k: 1.0, load };
+        let mut model = common::BareSpring::new(1.0, load);
         let mut state = State::new(0.0, vec![1.0], vec![0.0]).unwrap();
         let mut cd = CentralDifference::new(&mut model, &mut state, unchecked()).unwrap();
         for n in 0..2000 {
@@ -250,7 +219,7 @@ fn growth_guard_for_a_deformed_release_without_stored_energy() {
     // Unstable (Omega = 2.5 and 10): the guard stops the run long before an overflow, keeping
     // the last accepted state, with and without the tiny load.
     for (omega_dt, load) in [(2.5, 0.0), (10.0, 0.0), (2.5, 1e-12)] {
-        let mut model = BareSpring { k: 1.0, load };
+        let mut model = common::BareSpring::new(1.0, load);
         let mut state = State::new(0.0, vec![1.0], vec![0.0]).unwrap();
         let mut cd = CentralDifference::new(&mut model, &mut state, unchecked()).unwrap();
         let overflow_steps = 300.0 / (2.0 * f64::log10(omega_dt * omega_dt - 2.0));

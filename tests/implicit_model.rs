@@ -4,7 +4,7 @@
 mod common;
 
 use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
-use stepgauge::model::{Constraints, Damping, LinearModel, Load, Model, TimeFunction};
+use stepgauge::model::{Constraints, Damping, LinearModel, Load, TimeFunction};
 use stepgauge::params::AlphaParams;
 use stepgauge::run::{Flow, RunOptions, StepControl, StopReason, run};
 use stepgauge::{Error, State};
@@ -481,49 +481,6 @@ fn a_damping_force_without_its_matrix_is_not_treated_as_linear() {
     assert!((d1 - d2).abs() <= 1e-7 * d1, "damping work {d1} vs {d2}");
 }
 
-/// A spring `k u` with a constant load and no `stored_energy` (see `tests/explicit_sdof.rs` for
-/// the central difference's side of the same guard).
-struct BareSpring {
-    load: f64,
-    pattern: stepgauge::linalg::CsrMatrix,
-}
-
-impl Model for BareSpring {
-    fn dofs(&self) -> usize {
-        1
-    }
-    fn lumped_mass(&self, out: &mut [f64]) {
-        out[0] = 1.0;
-    }
-    fn internal_force(
-        &mut self,
-        _t: f64,
-        u: &[f64],
-        _v: &[f64],
-        out: &mut [f64],
-    ) -> Result<(), stepgauge::ModelError> {
-        out[0] = u[0];
-        Ok(())
-    }
-    fn external_force(&mut self, _t: f64, out: &mut [f64]) -> Result<(), stepgauge::ModelError> {
-        out[0] = self.load;
-        Ok(())
-    }
-    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-        Some(&self.pattern)
-    }
-    fn tangent_stiffness(
-        &mut self,
-        _t: f64,
-        _u: &[f64],
-        _v: &[f64],
-        out: &mut stepgauge::linalg::CsrMatrix,
-    ) -> Result<(), stepgauge::ModelError> {
-        out.data_mut()[0] = 1.0;
-        Ok(())
-    }
-}
-
 /// The implicit growth guard on a spring released from a deformed shape without
 /// `stored_energy`, with no load and a tiny one: the trapezoidal rule is stable at any step, so
 /// 500 steps at `Omega = 3` must pass the guard (its budget is the work of getting to the start's
@@ -531,10 +488,7 @@ impl Model for BareSpring {
 #[test]
 fn implicit_growth_guard_for_a_deformed_release_without_stored_energy() {
     for load in [0.0, 1e-12] {
-        let mut model = BareSpring {
-            load,
-            pattern: stepgauge::linalg::CsrMatrix::from_diagonal(&[1.0]),
-        };
+        let mut model = common::BareSpring::new(1.0, load);
         let mut state = State::new(0.0, vec![1.0], vec![0.0]).unwrap();
         let mut it = AlphaIntegrator::new(
             &mut model,

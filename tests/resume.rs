@@ -38,104 +38,11 @@ fn bits(s: &State) -> Vec<u64> {
         .collect()
 }
 
-#[test]
-fn explicit_resume_is_bit_identical() {
-    let dt = 0.01;
-    let mut m = model();
-    let mut full = State::at_rest(m.dofs(), 0.0);
-    let mut cd =
-        CentralDifference::new(&mut m, &mut full, CentralDifferenceOptions::default()).unwrap();
-    let mut half = None;
-    for k in 0..200 {
-        if k == 100 {
-            // Through JSON, as a checkpoint would store them (serde_json's `float_roundtrip`
-            // feature makes the doubles read back exactly).
-            let s = serde_json::to_string(&full).unwrap();
-            let l = serde_json::to_string(cd.energy()).unwrap();
-            half = Some((s, l));
-        }
-        cd.step(&mut m, &mut full, dt).unwrap();
-    }
-    let (s, l) = half.unwrap();
-    let mut state: State = serde_json::from_str(&s).unwrap();
-    let ledger = serde_json::from_str(&l).unwrap();
-    let mut m2 = model();
-    let mut cd2 =
-        CentralDifference::resume(&mut m2, &state, ledger, CentralDifferenceOptions::default())
-            .unwrap();
-    for _ in 100..200 {
-        cd2.step(&mut m2, &mut state, dt).unwrap();
-    }
-    assert_eq!(bits(&state), bits(&full));
-    assert_eq!(cd2.energy(), cd.energy());
-}
-
-#[test]
-fn implicit_resume_is_bit_identical() {
-    let dt = 0.05;
-    let p = AlphaParams::generalized_alpha(0.7).unwrap();
-    let opts = || ImplicitOptions {
-        newton: NewtonOptions::default(),
-        ..Default::default()
-    };
-    let mut m = model();
-    let mut full = State::at_rest(m.dofs(), 0.0);
-    let mut it = AlphaIntegrator::new(
-        &mut m,
-        &mut full,
-        p,
-        Box::new(SparseCholesky::new()),
-        opts(),
-    )
-    .unwrap();
-    let mut half = None;
-    for k in 0..60 {
-        if k == 30 {
-            half = Some((
-                serde_json::to_string(&full).unwrap(),
-                serde_json::to_string(it.energy()).unwrap(),
-            ));
-        }
-        it.step(&mut m, &mut full, dt).unwrap();
-    }
-    let (s, l) = half.unwrap();
-    let mut state: State = serde_json::from_str(&s).unwrap();
-    let mut m2 = model();
-    let mut it2 = AlphaIntegrator::resume(
-        &mut m2,
-        &state,
-        serde_json::from_str(&l).unwrap(),
-        p,
-        Box::new(SparseCholesky::new()),
-        opts(),
-    )
-    .unwrap();
-    for _ in 30..60 {
-        it2.step(&mut m2, &mut state, dt).unwrap();
-    }
-    assert_eq!(bits(&state), bits(&full));
-    assert_eq!(it2.energy(), it.energy());
-}
-
-/// Resume across an end time off the grid: a run that ends with a shortened step (`t_end =
-/// 0.995` with `dt = 0.01`: 99 steps and one of 0.005), saved there and resumed with full steps
-/// again, is bit-identical to one integrator taking the same steps without the save, for the
-/// central difference (whose half-step velocity must carry the change of step) and for
-/// generalised-alpha; and the continued run keeps the step it was given (the next times are
-/// `0.995 + k dt`).
-#[test]
-fn resume_after_a_shortened_last_step_is_bit_identical() {
-    let (dt, short) = (0.01, 0.005);
-    let steps = |n_before: usize| {
-        (0..n_before)
-            .map(|_| dt)
-            .chain(std::iter::once(short))
-            .chain((0..50).map(|_| dt))
-            .collect::<Vec<f64>>()
-    };
-    let plan = steps(99);
-    let cut = 100; // after the shortened step
-    // Central difference.
+/// Steps a fresh central-difference run through `plan`, saving state and ledger (through JSON,
+/// as a checkpoint would store them: serde_json's `float_roundtrip` feature makes the doubles read
+/// back exactly) before step `cut`; resumes a second integrator on another copy of the model
+/// from the saved pair through the rest of the plan, and asserts the two end bit-identical.
+fn explicit_resume_matches(plan: &[f64], cut: usize) -> State {
     let mut m = model();
     let mut full = State::at_rest(m.dofs(), 0.0);
     let mut cd =
@@ -152,7 +59,7 @@ fn resume_after_a_shortened_last_step_is_bit_identical() {
     }
     let (s, l) = saved.unwrap();
     let mut state: State = serde_json::from_str(&s).unwrap();
-    assert!((state.t - 0.995).abs() < 1e-12, "{}", state.t);
+    let at_cut = state.clone();
     let mut m2 = model();
     let mut cd2 = CentralDifference::resume(
         &mut m2,
@@ -165,10 +72,17 @@ fn resume_after_a_shortened_last_step_is_bit_identical() {
         cd2.step(&mut m2, &mut state, h).unwrap();
     }
     assert_eq!(bits(&state), bits(&full), "central difference");
-    assert_eq!(cd2.energy(), cd.energy());
     assert_eq!(state.t.to_bits(), full.t.to_bits());
-    // Generalised-alpha.
-    let p = AlphaParams::generalized_alpha(0.7).unwrap();
+    assert_eq!(cd2.energy(), cd.energy());
+    at_cut
+}
+
+/// The same for the alpha integrator with `p`.
+fn implicit_resume_matches(plan: &[f64], cut: usize, p: AlphaParams) -> State {
+    let opts = || ImplicitOptions {
+        newton: NewtonOptions::default(),
+        ..Default::default()
+    };
     let mut m = model();
     let mut full = State::at_rest(m.dofs(), 0.0);
     let mut it = AlphaIntegrator::new(
@@ -176,7 +90,7 @@ fn resume_after_a_shortened_last_step_is_bit_identical() {
         &mut full,
         p,
         Box::new(SparseCholesky::new()),
-        ImplicitOptions::default(),
+        opts(),
     )
     .unwrap();
     let mut saved = None;
@@ -191,6 +105,7 @@ fn resume_after_a_shortened_last_step_is_bit_identical() {
     }
     let (s, l) = saved.unwrap();
     let mut state: State = serde_json::from_str(&s).unwrap();
+    let at_cut = state.clone();
     let mut m2 = model();
     let mut it2 = AlphaIntegrator::resume(
         &mut m2,
@@ -198,12 +113,40 @@ fn resume_after_a_shortened_last_step_is_bit_identical() {
         serde_json::from_str(&l).unwrap(),
         p,
         Box::new(SparseCholesky::new()),
-        ImplicitOptions::default(),
+        opts(),
     )
     .unwrap();
     for &h in &plan[cut..] {
         it2.step(&mut m2, &mut state, h).unwrap();
     }
-    assert_eq!(bits(&state), bits(&full), "generalised-alpha");
+    assert_eq!(bits(&state), bits(&full), "{p:?}");
+    assert_eq!(state.t.to_bits(), full.t.to_bits());
     assert_eq!(it2.energy(), it.energy());
+    at_cut
+}
+
+#[test]
+fn explicit_resume_is_bit_identical() {
+    explicit_resume_matches(&[0.01; 200], 100);
+}
+
+#[test]
+fn implicit_resume_is_bit_identical() {
+    implicit_resume_matches(&[0.05; 60], 30, AlphaParams::generalized_alpha(0.7).unwrap());
+}
+
+/// Resume across an end time off the grid: a run that ends with a shortened step (`t_end =
+/// 0.995` with `dt = 0.01`: 99 steps and one of 0.005), saved there and resumed with full steps
+/// again, is bit-identical to one integrator taking the same steps without the save, for the
+/// central difference (whose half-step velocity must carry the change of step) and for
+/// generalised-alpha.
+#[test]
+fn resume_after_a_shortened_last_step_is_bit_identical() {
+    let plan: Vec<f64> = std::iter::repeat_n(0.01, 99)
+        .chain(std::iter::once(0.005))
+        .chain(std::iter::repeat_n(0.01, 50))
+        .collect();
+    let at_cut = explicit_resume_matches(&plan, 100);
+    assert!((at_cut.t - 0.995).abs() < 1e-12, "{}", at_cut.t);
+    implicit_resume_matches(&plan, 100, AlphaParams::generalized_alpha(0.7).unwrap());
 }

@@ -414,6 +414,29 @@ fn with_file(source: &str, file: &str) -> String {
     format!("{source}; the printed values are in {file}")
 }
 
+/// One of Chopra's printed columns against `run(m)`, the computed `u_i` with mass `m`: the
+/// largest difference, within half a printed unit plus the change of `run` between the printed
+/// and the unrounded mass; a note where rounded values differ (saying `why` they are trusted).
+fn chopra_printed_check(
+    id: &str,
+    what: &str,
+    src: &str,
+    column: std::result::Result<Vec<Printed>, String>,
+    run: impl Fn(f64) -> Result<Vec<f64>>,
+    why: &str,
+) -> Check {
+    match column {
+        Err(e) => Check::failed_to_run(id, KIND, what, src, e),
+        Ok(col) => checked(id, what, src, || {
+            let u = run(CH_M)?;
+            let unrounded = run(chopra_m_unrounded())?;
+            let (diff, tol) = against_printed(&u, &col, max_diff(&u, &unrounded));
+            let c = Check::at_most(id, KIND, what, src, "max |u - u_printed|", diff, tol, "in");
+            Ok(with_optional_note(c, rounding_note(&u, &col, CH_DT, why)))
+        }),
+    }
+}
+
 fn chopra() -> Vec<Check> {
     let src_avg = with_file(
         "Chopra (2012), Dynamics of Structures, 4th ed., Example 5.3 (Newmark average \
@@ -460,25 +483,14 @@ fn chopra() -> Vec<Check> {
     ] {
         let what = what.as_str();
         let src = src.as_str();
-        out.push(match column(name) {
-            Err(e) => Check::failed_to_run(id, KIND, what, src, e),
-            Ok(col) => checked(id, what, src, || {
-                let u = chopra_alpha(params)?;
-                let unrounded = chopra_alpha_with_mass(params, chopra_m_unrounded())?;
-                let (diff, tol) = against_printed(&u, &col, max_diff(&u, &unrounded));
-                let c = Check::at_most(id, KIND, what, src, "max |u - u_printed|", diff, tol, "in");
-                Ok(with_optional_note(
-                    c,
-                    rounding_note(
-                        &u,
-                        &col,
-                        CH_DT,
-                        "the book's recurrence written out in the check agrees with stepgauge \
-                         to round-off",
-                    ),
-                ))
-            }),
-        });
+        out.push(chopra_printed_check(
+            id,
+            what,
+            src,
+            column(name),
+            |m| chopra_alpha_with_mass(params, m),
+            "the book's recurrence written out in the check agrees with stepgauge to round-off",
+        ));
         let rid = recurrence_id(id);
         let rwhat = "the same run against Newmark's incremental recurrence for linear systems, \
                      written out in the check: largest |u - u_recurrence| relative to max |u|";
@@ -509,30 +521,18 @@ fn chopra() -> Vec<Check> {
         CHOPRA_FILE,
     );
     let src = src.as_str();
-    out.push(match column("exact") {
-        Err(e) => Check::failed_to_run(id, KIND, what, src, e),
-        Ok(col) => checked(id, what, src, || {
-            let exact = |m: f64| -> Result<Vec<f64>> {
-                let p = SdofHalfSine::new(m, CH_K, CH_ZETA, CH_P0, CH_TD)?;
-                Ok((1..=CH_STEPS).map(|i| p.exact(i as f64 * CH_DT)).collect())
-            };
-            let u = exact(CH_M)?;
-            let unrounded = exact(chopra_m_unrounded())?;
-            let (diff, tol) = against_printed(&u, &col, max_diff(&u, &unrounded));
-            let c = Check::at_most(id, KIND, what, src, "max |u - u_printed|", diff, tol, "in");
-            Ok(with_optional_note(
-                c,
-                rounding_note(
-                    &u,
-                    &col,
-                    CH_DT,
-                    "an independent numerical solution of the same equation (SciPy solve_ivp, \
-                     rtol 1e-12, run when this check was written, not committed) gave the same \
-                     values to seven digits",
-                ),
-            ))
-        }),
-    });
+    out.push(chopra_printed_check(
+        id,
+        what,
+        src,
+        column("exact"),
+        |m| {
+            let p = SdofHalfSine::new(m, CH_K, CH_ZETA, CH_P0, CH_TD)?;
+            Ok((1..=CH_STEPS).map(|i| p.exact(i as f64 * CH_DT)).collect())
+        },
+        "an independent numerical solution of the same equation (SciPy solve_ivp, rtol 1e-12, \
+         run when this check was written, not committed) gave the same values to seven digits",
+    ));
     // Central difference: the printed column is not recalled; the book's recurrence is.
     let id = "rederived.chopra-e5.2.central-difference.undamped";
     let what = "central difference (half-step form, started from rest) on Chopra's pulse problem without damping against the book's displacement recurrence with u_-1 = u_0 - dt v_0 + dt^2 a_0 / 2, written out in the check: largest difference relative to max |u|";

@@ -188,3 +188,60 @@ pub fn dense_band_mass(n: usize) -> CsMat<f64> {
     }
     t.to_csr()
 }
+
+/// A spring `k u` on a unit mass with a constant load and nothing else: in particular no
+/// `stored_energy`, so the integrators cannot be told the energy of a deformed start (the growth
+/// guard's tests in `tests/explicit_sdof.rs` and `tests/implicit_model.rs`).
+#[allow(dead_code)]
+pub struct BareSpring {
+    pub k: f64,
+    pub load: f64,
+    pattern: stepgauge::linalg::CsrMatrix,
+}
+
+#[allow(dead_code)]
+impl BareSpring {
+    pub fn new(k: f64, load: f64) -> Self {
+        BareSpring {
+            k,
+            load,
+            pattern: stepgauge::linalg::CsrMatrix::from_diagonal(&[k]),
+        }
+    }
+}
+
+impl stepgauge::model::Model for BareSpring {
+    fn dofs(&self) -> usize {
+        1
+    }
+    fn lumped_mass(&self, out: &mut [f64]) {
+        out[0] = 1.0;
+    }
+    fn internal_force(
+        &mut self,
+        _t: f64,
+        u: &[f64],
+        _v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), stepgauge::ModelError> {
+        out[0] = self.k * u[0];
+        Ok(())
+    }
+    fn external_force(&mut self, _t: f64, out: &mut [f64]) -> Result<(), stepgauge::ModelError> {
+        out[0] = self.load;
+        Ok(())
+    }
+    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
+        Some(&self.pattern)
+    }
+    fn tangent_stiffness(
+        &mut self,
+        _t: f64,
+        _u: &[f64],
+        _v: &[f64],
+        out: &mut stepgauge::linalg::CsrMatrix,
+    ) -> Result<(), stepgauge::ModelError> {
+        out.data_mut()[0] = self.k;
+        Ok(())
+    }
+}
