@@ -234,7 +234,11 @@ fn check_exit_3_when_lower_modes_are_unstable() {
     let (v, _) = json(&[&base[..], &["--json"]].concat());
     let dt = format!("{}", f(&v, "dt_stable"));
     let (v, code) = json(&[&base[..], &["--dt", dt.as_str(), "--json"]].concat());
-    assert_eq!((code, &v["step_stable"]), (0, &Value::Bool(true)), "dt {dt}");
+    assert_eq!(
+        (code, &v["step_stable"]),
+        (0, &Value::Bool(true)),
+        "dt {dt}"
+    );
 }
 
 /// gamma < 1/2 is unstable for every step: exit 4.

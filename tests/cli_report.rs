@@ -95,9 +95,14 @@ fn printed_near(cell: &str, value: Option<f64>, what: &str) {
             let x: f64 = cell.parse().unwrap_or_else(|_| panic!("{what}: `{cell}`"));
             let mantissa = cell.split(['e', 'E']).next().unwrap();
             let decimals = mantissa.split_once('.').map_or(0, |(_, d)| d.len()) as i32;
-            let exponent: i32 = cell.split_once(['e', 'E']).map_or(0, |(_, e)| e.parse().unwrap());
+            let exponent: i32 = cell
+                .split_once(['e', 'E'])
+                .map_or(0, |(_, e)| e.parse().unwrap());
             let half_unit = 0.5 * 10f64.powi(exponent - decimals);
-            assert!((x - v).abs() <= half_unit * (1.0 + 1e-9), "{what}: printed {cell}, value {v}");
+            assert!(
+                (x - v).abs() <= half_unit * (1.0 + 1e-9),
+                "{what}: printed {cell}, value {v}"
+            );
         }
     }
 }
@@ -124,7 +129,11 @@ fn assert_sets_table(html: &str) {
     let lin = row(html, "linear acceleration");
     assert_eq!(lin[1], "conditional");
     printed_near(lin[2], Some(12f64.sqrt()), "linear acceleration Omega_crit");
-    printed_near(lin[3], Some(2.0 + 3f64.sqrt()), "linear acceleration rho_inf");
+    printed_near(
+        lin[3],
+        Some(2.0 + 3f64.sqrt()),
+        "linear acceleration rho_inf",
+    );
     let hht = row(html, "hht alpha = -0.1");
     assert_eq!((hht[1], hht[5]), ("unconditional", "yes"));
     printed_near(hht[3], Some(0.9 / 1.1), "HHT rho_inf");
@@ -138,7 +147,11 @@ fn assert_sets_table(html: &str) {
     printed_near(cd[2], Some(2.0), "central difference Omega_crit");
     printed_near(cd[3], None, "central difference rho_inf");
     let c = |o: f64| o / (2.0 * (o / 2.0).asin()) - 1.0;
-    printed_near(cd[6], Some(c(0.1)), "central difference period error at 0.1");
+    printed_near(
+        cd[6],
+        Some(c(0.1)),
+        "central difference period error at 0.1",
+    );
     printed_near(cd[8], Some(c(1.0)), "central difference period error at 1");
 }
 

@@ -237,7 +237,10 @@ fn timestep_prints_the_step_limit_run_enforces() {
     let estimate = v["dt_stable"].as_f64().unwrap();
     let limit = v["dt_limit_damped"].as_f64().unwrap();
     assert_eq!(v["dt_limit"].as_f64().unwrap(), limit, "undamped: the same");
-    assert!(limit < estimate && limit > 0.97 * estimate, "{limit} vs {estimate}");
+    assert!(
+        limit < estimate && limit > 0.97 * estimate,
+        "{limit} vs {estimate}"
+    );
     // Gershgorin on the chain: omega_upper = 2 sqrt(k / m) = 20, the limit 0.1.
     assert!((limit - 0.1).abs() <= 1e-12, "{limit}");
     let out = s.path("limit.csv");
@@ -420,10 +423,22 @@ fn resume_across_an_end_time_off_the_grid() {
     let s = Scratch::new("offgrid");
     let (m, k, load) = two_dof(&s);
     let (a, b, ck) = (s.path("a.csv"), s.path("b.csv"), s.path("run.ckpt"));
-    for scheme in [&["--scheme", "central-difference"][..], &["--scheme", "hht", "--alpha", "-0.1"]] {
+    for scheme in [
+        &["--scheme", "central-difference"][..],
+        &["--scheme", "hht", "--alpha", "-0.1"],
+    ] {
         let run = |more: &[&str]| {
             let mut args = vec![
-                "run", "--mass", &m, "--stiffness", &k, "--load", &load, "--dt", "0.1", "--quiet",
+                "run",
+                "--mass",
+                &m,
+                "--stiffness",
+                &k,
+                "--load",
+                &load,
+                "--dt",
+                "0.1",
+                "--quiet",
             ];
             args.extend_from_slice(scheme);
             args.extend_from_slice(more);
@@ -433,12 +448,28 @@ fn resume_across_an_end_time_off_the_grid() {
         run(&["--t-end", "1.25", "--output", &a, "--checkpoint", &ck]);
         run(&["--t-end", "2.4", "--output", &b, "--resume", &ck]);
         let (ra, rb) = (rows(&a), rows(&b));
-        assert_eq!(ra.last().unwrap()[0], 1.25, "{scheme:?}: first part ends on its end time");
-        assert_eq!(rb[0], *ra.last().unwrap(), "{scheme:?}: resumed from that row");
+        assert_eq!(
+            ra.last().unwrap()[0],
+            1.25,
+            "{scheme:?}: first part ends on its end time"
+        );
+        assert_eq!(
+            rb[0],
+            *ra.last().unwrap(),
+            "{scheme:?}: resumed from that row"
+        );
         let times: Vec<f64> = rb.iter().map(|r| r[0]).collect();
-        assert_eq!(*times.last().unwrap(), 2.4, "{scheme:?}: lands on the end time");
+        assert_eq!(
+            *times.last().unwrap(),
+            2.4,
+            "{scheme:?}: lands on the end time"
+        );
         for (i, w) in times.windows(2).enumerate() {
-            let expected = if i + 2 == times.len() { 2.4 - 2.35 } else { 0.1 };
+            let expected = if i + 2 == times.len() {
+                2.4 - 2.35
+            } else {
+                0.1
+            };
             assert!(
                 ((w[1] - w[0]) - expected).abs() <= 1e-12,
                 "{scheme:?}: step {i}: {} to {}",

@@ -128,7 +128,8 @@ fn energy_balance_of_an_undamped_chain_does_not_drift() {
     // linear force telescopes to 1/2 u K u). So the bound is the energy-weighted sum, plus the
     // rounding of 1e5 steps (about steps x 10 eps relative).
     let modes = [(1.0f64, 1.0f64), (7.0, 0.01)];
-    let omega = |j: f64| 2.0 * k.sqrt() * (j * std::f64::consts::PI / (2.0 * (n as f64 + 1.0))).sin();
+    let omega =
+        |j: f64| 2.0 * k.sqrt() * (j * std::f64::consts::PI / (2.0 * (n as f64 + 1.0))).sin();
     let bound_for = |dt: f64, steps: usize| {
         let energy: f64 = modes.iter().map(|&(j, a)| (omega(j) * a).powi(2)).sum();
         let swing: f64 = modes

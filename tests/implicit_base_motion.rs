@@ -209,7 +209,10 @@ fn base_motion_converges_at_second_order() {
                     sampled(&fine.u, 0) / fine.scale.0,
                     sampled(&fine.r, 1) / fine.scale.1,
                 );
-                assert!(eu <= bu && er <= br, "{label}: errors {eu:e} {er:e}, bounds {bu:e} {br:e}");
+                assert!(
+                    eu <= bu && er <= br,
+                    "{label}: errors {eu:e} {er:e}, bounds {bu:e} {br:e}"
+                );
             }
         }
     }
@@ -259,6 +262,9 @@ fn a_ramp_as_a_function_steps_as_the_same_ramp_as_a_table() {
             TimeFunction::table(vec![0.0, ramp_end, 100.0], vec![0.0, A, A]).unwrap(),
             dt,
         );
-        assert!((f - tab).abs() <= 1e-9, "dt {dt}: function {f}, table {tab}");
+        assert!(
+            (f - tab).abs() <= 1e-9,
+            "dt {dt}: function {f}, table {tab}"
+        );
     }
 }

@@ -106,7 +106,11 @@ fn hardening_oscillator_matches_the_scipy_reference() {
 fn newton_from_rest_matches_the_scipy_reference() {
     let rows = common::duffing_from_rest();
     assert_eq!(rows.len(), 101);
-    assert_eq!((rows[0].1, rows[0].2), (0.0, 0.0), "the table starts from rest");
+    assert_eq!(
+        (rows[0].1, rows[0].2),
+        (0.0, 0.0),
+        "the table starts from rest"
+    );
     for p in [
         AlphaParams::average_acceleration(),
         AlphaParams::generalized_alpha(0.7).unwrap(),
@@ -125,7 +129,10 @@ fn newton_from_rest_matches_the_scipy_reference() {
             .collect();
         for w in errs.windows(2) {
             let slope = (w[0] / w[1]).log2();
-            assert!((slope - 2.0).abs() < 0.15, "{p:?}: slope {slope}, errors {errs:?}");
+            assert!(
+                (slope - 2.0).abs() < 0.15,
+                "{p:?}: slope {slope}, errors {errs:?}"
+            );
         }
         let bound = richardson_bound(&runs[1], &runs[2]);
         assert!(errs[2] <= bound, "{p:?}: {errs:?}, bound {bound:e}");

@@ -438,11 +438,16 @@ fn stepped_matrix(scheme: &Scheme, omega_dt: f64, xi: f64, theta: f64) -> [[f64;
                     ..Default::default()
                 };
                 let mut rest = State::at_rest(1, 0.0);
-                let ledger =
-                    AlphaIntegrator::new(&mut model, &mut rest, *p, common::DenseLu::boxed(), opts())
-                        .unwrap()
-                        .energy()
-                        .clone();
+                let ledger = AlphaIntegrator::new(
+                    &mut model,
+                    &mut rest,
+                    *p,
+                    common::DenseLu::boxed(),
+                    opts(),
+                )
+                .unwrap()
+                .energy()
+                .clone();
                 let mut it = AlphaIntegrator::resume(
                     &mut model,
                     &state,

@@ -132,7 +132,11 @@ fn explicit_resume_is_bit_identical() {
 
 #[test]
 fn implicit_resume_is_bit_identical() {
-    implicit_resume_matches(&[0.05; 60], 30, AlphaParams::generalized_alpha(0.7).unwrap());
+    implicit_resume_matches(
+        &[0.05; 60],
+        30,
+        AlphaParams::generalized_alpha(0.7).unwrap(),
+    );
 }
 
 /// Resume across an end time off the grid: a run that ends with a shortened step (`t_end =

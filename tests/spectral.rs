@@ -281,16 +281,24 @@ fn largest_step_for_a_damping_target() {
     use stepgauge::spectral::largest_step_for_period_error;
     for xi in [1.0, 1.5] {
         assert_eq!(largest_step_for_damping(&s, w, xi, 0.01).unwrap(), None);
-        assert_eq!(largest_step_for_period_error(&s, w, xi, 0.01).unwrap(), None);
+        assert_eq!(
+            largest_step_for_period_error(&s, w, xi, 0.01).unwrap(),
+            None
+        );
         let ctx = stepgauge::spectral::CheckContext {
             omega_interest: Some(w),
             ..Default::default()
         };
         let v = stepgauge::spectral::check(&s, xi, &ctx).unwrap();
         assert_eq!(v.dt_accuracy, None);
-        assert!(v.reasons.iter().any(|r| r.contains("does not oscillate")), "{v:#?}");
+        assert!(
+            v.reasons.iter().any(|r| r.contains("does not oscillate")),
+            "{v:#?}"
+        );
     }
-    let p = largest_step_for_period_error(&s, w, 0.5, 0.01).unwrap().unwrap();
+    let p = largest_step_for_period_error(&s, w, 0.5, 0.01)
+        .unwrap()
+        .unwrap();
     assert!(p > 0.0);
 }
 

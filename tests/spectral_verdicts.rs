@@ -205,7 +205,9 @@ fn the_printed_limit_is_a_stable_step_and_the_next_double_is_not() {
                 check(&r.scheme, r.xi, &ctx).unwrap()
             };
             let v = judge(1.0);
-            let dt = v.dt_stable.unwrap_or_else(|| panic!("line {}: no dt_stable", r.line));
+            let dt = v
+                .dt_stable
+                .unwrap_or_else(|| panic!("line {}: no dt_stable", r.line));
             assert_eq!(judge(dt).step_stable, Some(true), "line {} w {w}", r.line);
             assert_eq!(
                 judge(dt.next_up()).step_stable,
@@ -240,14 +242,23 @@ fn a_step_is_judged_by_every_mode_below_it() {
     assert!(region.at(10.0).is_stable(), "Omega = 10 lies in the window");
     let v = judge(p, 0.02, 1000.0, 0.01);
     assert_eq!(v.step_stable, Some(false), "{v:#?}");
-    assert!(v.reasons.iter().any(|r| r.contains("stable again")), "{v:#?}");
+    assert!(
+        v.reasons.iter().any(|r| r.contains("stable again")),
+        "{v:#?}"
+    );
     // Every row with a window: a step inside the window is refused.
     let mut windows = 0;
     for r in rows() {
-        let Some(from) = r.stable_again_from else { continue };
+        let Some(from) = r.stable_again_from else {
+            continue;
+        };
         let Scheme::Alpha(p) = r.scheme else { continue };
         let v = judge(p, r.xi, 1.0, 2.0 * from);
-        assert!(StabilityRegion::new(&r.scheme, r.xi).at(2.0 * from).is_stable());
+        assert!(
+            StabilityRegion::new(&r.scheme, r.xi)
+                .at(2.0 * from)
+                .is_stable()
+        );
         assert_eq!(v.step_stable, Some(false), "line {}", r.line);
         windows += 1;
     }
@@ -284,7 +295,11 @@ fn tiny_steps_and_extreme_damping_are_judged_as_meant() {
     };
     let cd = Scheme::CentralDifference(ForceVelocity::Lagged);
     for omega in [1e-14, 1e-30, 1e-200] {
-        assert_eq!(judge(cd, 0.0, omega).step_stable, Some(true), "Omega {omega}");
+        assert_eq!(
+            judge(cd, 0.0, omega).step_stable,
+            Some(true),
+            "Omega {omega}"
+        );
     }
     let hht = Scheme::Alpha(AlphaParams::hht(-0.1).unwrap());
     for omega in [1e-17, 1e-12, 1e-8, 1.0] {
@@ -300,11 +315,20 @@ fn tiny_steps_and_extreme_damping_are_judged_as_meant() {
         AlphaParams::wbz_from_rho_inf(0.7).unwrap(),
     ] {
         let region = StabilityRegion::new(&Scheme::Alpha(p), 0.0);
-        assert!(region.below_first.is_stable() && region.omega_crit().is_none(), "{p:?}");
+        assert!(
+            region.below_first.is_stable() && region.omega_crit().is_none(),
+            "{p:?}"
+        );
     }
     let ga = Scheme::Alpha(AlphaParams::generalized_alpha(0.5).unwrap());
     let trap = Scheme::Alpha(AlphaParams::average_acceleration());
-    for (s, xi) in [(ga, 1e-30), (ga, 1e-300), (trap, 1e30), (trap, 1e-30), (ga, 1e12)] {
+    for (s, xi) in [
+        (ga, 1e-30),
+        (ga, 1e-300),
+        (trap, 1e30),
+        (trap, 1e-30),
+        (ga, 1e12),
+    ] {
         let v = judge(s, xi, 1e-10);
         assert_eq!(v.stability, Stability::Unconditional, "{s:?} xi {xi}");
         assert_eq!(v.step_stable, Some(true), "{s:?} xi {xi}");
@@ -314,7 +338,10 @@ fn tiny_steps_and_extreme_damping_are_judged_as_meant() {
     let Stability::Conditional { omega_crit } = v.stability else {
         panic!("{v:#?}")
     };
-    assert!((omega_crit - 2.0).abs() <= 2.0 * f64::EPSILON, "{omega_crit}");
+    assert!(
+        (omega_crit - 2.0).abs() <= 2.0 * f64::EPSILON,
+        "{omega_crit}"
+    );
 }
 
 /// Parameters far beyond every useful set are refused (the analysis cannot resolve them) instead
@@ -332,7 +359,11 @@ fn absurd_parameters_are_refused() {
         &CheckContext::default(),
     )
     .unwrap();
-    assert_eq!(v.stability, Stability::Unconditional, "2 beta >= gamma >= 1/2");
+    assert_eq!(
+        v.stability,
+        Stability::Unconditional,
+        "2 beta >= gamma >= 1/2"
+    );
 }
 
 /// Over every published family (generalised-alpha, HHT-alpha, WBZ-alpha for rho_inf on a grid

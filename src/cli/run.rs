@@ -356,10 +356,8 @@ fn build_engine(
                              with its damping; the largest step stepgauge can vouch for, which \
                              may lie a little below the estimated critical step{}); use --dt {:e} \
                              or smaller, or --dt auto",
-                            cd.stable_step().map_or(String::new(), |s| format!(
-                                " {:e}",
-                                s.dt_critical_damped
-                            )),
+                            cd.stable_step()
+                                .map_or(String::new(), |s| format!(" {:e}", s.dt_critical_damped)),
                             0.9 * lim
                         )));
                     }

@@ -240,8 +240,8 @@ impl CentralDifference {
         l.initial_kinetic = l.kinetic;
         l.initial_internal = model.stored_energy(&cd.u_next).unwrap_or(0.0);
         // The guard's budget: the stored energy, or the work of getting to the start's shape.
-        l.energy_in =
-            l.initial_kinetic + crate::setup::start_internal_energy(model, state.t, &cd.u_next).abs();
+        l.energy_in = l.initial_kinetic
+            + crate::setup::start_internal_energy(model, state.t, &cd.u_next).abs();
         // The start state: u and v constrained, a consistent (`a_next` of the start).
         let mut s = State {
             t: state.t,

@@ -464,7 +464,10 @@ mod tests {
         });
         let (d1, d2) = f.rates(0.0);
         assert_eq!(before.load(Ordering::Relaxed), 0, "sampled before t");
-        assert!(d1.is_finite() && d1.abs() < 1e-3 && d2.is_finite(), "{d1} {d2}");
+        assert!(
+            d1.is_finite() && d1.abs() < 1e-3 && d2.is_finite(),
+            "{d1} {d2}"
+        );
         let (d1, d2) = f.rates(4.0); // 0.015 t^0.5 = 0.03, 0.0075 t^-0.5 = 0.00375
         assert!((d1 - 0.03).abs() <= 1e-8 * 0.03 && (d2 - 0.00375).abs() <= 1e-7 * 0.00375);
         let ramp = TimeFunction::function(|t: f64| 0.01 * t.max(0.0));

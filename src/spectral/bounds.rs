@@ -229,7 +229,9 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
                     (true, StepStability::Marginal) => format!(
                         "dt = {dt} s (Omega = {omega}) is stable, with a root on the unit circle"
                     ),
-                    (true, _) => format!("dt = {dt} s (Omega = {omega}) is within the stable limit"),
+                    (true, _) => {
+                        format!("dt = {dt} s (Omega = {omega}) is within the stable limit")
+                    }
                     (false, StepStability::Unstable) => {
                         format!("dt = {dt} s (Omega = {omega}) exceeds the stable limit{limit}")
                     }
@@ -250,9 +252,9 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
         let dt_acc = largest_step_for_period_error(scheme, wi, xi, target)?;
         verdict.dt_accuracy = dt_acc;
         verdict.reasons.push(match dt_acc {
-            Some(d) if d > 0.0 => format!(
-                "the period error at {wi} rad/s stays within {target} for dt <= {d:.6e} s"
-            ),
+            Some(d) if d > 0.0 => {
+                format!("the period error at {wi} rad/s stays within {target} for dt <= {d:.6e} s")
+            }
             Some(_) => format!(
                 "no step keeps the period error at {wi} rad/s within {target}: it exceeds the \
                  target even at Omega = 1e-6"

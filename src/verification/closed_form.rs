@@ -313,8 +313,7 @@ fn trapezoidal() -> Vec<Check> {
             "relative difference",
             {
                 let lead = SERIES_OMEGA * SERIES_OMEGA / 12.0;
-                (period_error(&s, SERIES_OMEGA)
-                    - lead * (1.0 - SERIES_OMEGA * SERIES_OMEGA / 15.0))
+                (period_error(&s, SERIES_OMEGA) - lead * (1.0 - SERIES_OMEGA * SERIES_OMEGA / 15.0))
                     .abs()
                     / lead
             },

@@ -473,7 +473,10 @@ mod tests {
         // Counts per kind, every kind listed.
         assert!(md.contains("| Published worked examples | 1 | 1 |"), "{md}");
         assert!(md.contains("| Cross-checks with SciPy | 1 | 0 |"), "{md}");
-        assert!(md.contains("| Re-derivations in the project | 0 | 0 |"), "{md}");
+        assert!(
+            md.contains("| Re-derivations in the project | 0 | 0 |"),
+            "{md}"
+        );
         assert!(md.contains("| x.1 [note 1] | a\\|b |"));
         assert!(md.contains("FAIL"));
         assert!(md.contains("1. `x.1`: remembered value differs"));

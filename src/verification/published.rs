@@ -130,7 +130,11 @@ struct Printed {
 /// 1e-4, `12` -> 1). `None` for text that is not a plain decimal number.
 fn printed(field: &str) -> Option<Printed> {
     let f = field.trim();
-    if f.is_empty() || !f.chars().all(|c| c.is_ascii_digit() || c == '.' || c == '-') {
+    if f.is_empty()
+        || !f
+            .chars()
+            .all(|c| c.is_ascii_digit() || c == '.' || c == '-')
+    {
         return None;
     }
     let value: f64 = f.parse().ok()?;
@@ -456,7 +460,10 @@ fn chopra() -> Vec<Check> {
         if col.len() == CH_STEPS {
             Ok(col)
         } else {
-            Err(format!("{CHOPRA_FILE}: {} rows, expected {CH_STEPS}", col.len()))
+            Err(format!(
+                "{CHOPRA_FILE}: {} rows, expected {CH_STEPS}",
+                col.len()
+            ))
         }
     };
     let tolerance_words = "tolerance: half a unit of the fourth printed decimal plus the change \
@@ -466,7 +473,9 @@ fn chopra() -> Vec<Check> {
     for (id, what, src, params, name, beta) in [
         (
             "published.chopra-e5.3.average-acceleration",
-            format!("Newmark average acceleration (AlphaIntegrator) on Chopra's damped SDOF under a half-sine pulse: largest |u - printed u| over 10 steps ({tolerance_words})"),
+            format!(
+                "Newmark average acceleration (AlphaIntegrator) on Chopra's damped SDOF under a half-sine pulse: largest |u - printed u| over 10 steps ({tolerance_words})"
+            ),
             src_avg,
             AlphaParams::average_acceleration(),
             "average_acceleration",
@@ -474,7 +483,9 @@ fn chopra() -> Vec<Check> {
         ),
         (
             "published.chopra-e5.4.linear-acceleration",
-            format!("Newmark linear acceleration (AlphaIntegrator) on Chopra's damped SDOF under a half-sine pulse: largest |u - printed u| over 10 steps ({tolerance_words})"),
+            format!(
+                "Newmark linear acceleration (AlphaIntegrator) on Chopra's damped SDOF under a half-sine pulse: largest |u - printed u| over 10 steps ({tolerance_words})"
+            ),
             src_lin,
             AlphaParams::linear_acceleration(),
             "linear_acceleration",
@@ -513,7 +524,9 @@ fn chopra() -> Vec<Check> {
     }
     // The exact column against stepgauge's closed form.
     let id = "published.chopra-e5.3.exact";
-    let what = format!("stepgauge's exact half-sine pulse solution (reference::SdofHalfSine with Chopra's parameters) against the printed exact column: largest difference ({tolerance_words})");
+    let what = format!(
+        "stepgauge's exact half-sine pulse solution (reference::SdofHalfSine with Chopra's parameters) against the printed exact column: largest difference ({tolerance_words})"
+    );
     let what = what.as_str();
     let src = with_file(
         "Chopra (2012), Dynamics of Structures, 4th ed., Examples 5.3 and 5.4, exact solution \
@@ -625,7 +638,9 @@ fn bathe_columns(prefix: &str) -> std::result::Result<BatheColumns, String> {
         .enumerate()
         .any(|(i, s)| (s.value - (i + 1) as f64).abs() > 0.0)
     {
-        return Err(format!("{BATHE_FILE}: the steps are not 1, 2, ..., {BA_STEPS}"));
+        return Err(format!(
+            "{BATHE_FILE}: the steps are not 1, 2, ..., {BA_STEPS}"
+        ));
     }
     Ok(BatheColumns {
         disputed: [table.disputed(&name(0)), table.disputed(&name(1))],
@@ -645,7 +660,13 @@ struct BatheDeviation {
 }
 
 fn bathe_deviation(u: &[[f64; 2]], cols: &BatheColumns) -> BatheDeviation {
-    let nan_max = |m: f64, x: f64| if x.is_nan() || m.is_nan() { f64::NAN } else { m.max(x) };
+    let nan_max = |m: f64, x: f64| {
+        if x.is_nan() || m.is_nan() {
+            f64::NAN
+        } else {
+            m.max(x)
+        }
+    };
     let mut out = BatheDeviation {
         undisputed: if u.len() == BA_STEPS { 0.0 } else { f64::NAN },
         disputed: 0.0,
@@ -878,10 +899,8 @@ fn bathe() -> Vec<Check> {
                     c.tolerance.push_str(&format!(
                         "; entries the file disputes <= {BA_DISPUTED_TOL_UNITS}"
                     ));
-                    c.result.push_str(&format!(
-                        "; disputed: {}",
-                        dev.disputed_entries.join("; ")
-                    ));
+                    c.result
+                        .push_str(&format!("; disputed: {}", dev.disputed_entries.join("; ")));
                     c.passed &= dev.disputed <= BA_DISPUTED_TOL_UNITS;
                 }
                 Ok(if dev.off.is_empty() {
@@ -987,11 +1006,16 @@ mod tests {
             assert!(col.iter().all(|p| p.unit == 1e-4), "{name}: four decimals");
         }
         let source: Vec<&str> = chopra.header_values("source").collect();
-        assert!(source.len() == 1 && source[0].starts_with("Chopra (2012), Dynamics of Structures, 4th ed."));
+        assert!(
+            source.len() == 1
+                && source[0].starts_with("Chopra (2012), Dynamics of Structures, 4th ed.")
+        );
         assert!(source[0].contains("from memory"));
         let bathe = PrintedTable::parse(BATHE_FILE, BATHE_DATA).unwrap();
         let source: Vec<&str> = bathe.header_values("source").collect();
-        assert!(source.len() == 1 && source[0].starts_with("Bathe (1996), Finite Element Procedures"));
+        assert!(
+            source.len() == 1 && source[0].starts_with("Bathe (1996), Finite Element Procedures")
+        );
         assert!(source[0].contains("from memory"));
         assert_eq!(bathe.disputed("trapezoidal_u1"), vec![2]);
         assert!(bathe.disputed("central_difference_u1").is_empty());
@@ -1003,6 +1027,9 @@ mod tests {
         let nm = bathe_stepgauge_trapezoidal().unwrap();
         let dev = bathe_deviation(&nm, &bathe_columns("trapezoidal").unwrap());
         assert_eq!(dev.disputed_entries.len(), 1, "{dev:?}");
-        assert!(dev.disputed > BA_TOL_UNITS && dev.disputed <= BA_DISPUTED_TOL_UNITS, "{dev:?}");
+        assert!(
+            dev.disputed > BA_TOL_UNITS && dev.disputed <= BA_DISPUTED_TOL_UNITS,
+            "{dev:?}"
+        );
     }
 }
