@@ -13,7 +13,8 @@
 //! With the central-difference scheme `u_{n+1} - u_n = dt v_{n+1/2}`, and each increment is split
 //! in two halves: the half with `f_n` is formed from scalars known at the end of step `n`
 //! (`v_n . f_n` and `a_n . f_n`, since `v_{n+1/2} = v_n + dt/2 a_n`), so no previous force vector is
-//! stored.
+//! stored; only at constrained DOFs, whose half-step velocity comes from the prescribed motion over
+//! the next step, are the forces `f_n` kept and the half finished from the increment.
 //!
 //! The balance is
 //!
@@ -77,6 +78,14 @@ pub(crate) struct Pending {
     pub extra: Vec<[f64; 2]>,
     /// Reaction force at each constrained DOF (in constraint order).
     pub reactions: Vec<f64>,
+    /// The forces at each constrained DOF, `[f_int, f_ext, f_damp, f_0 .. f_{k-1}]` per
+    /// constraint (stride `3 + k` for `k` extra forces): the explicit scheme finishes a constrained
+    /// DOF's trapezoid from these once the step's increment is known, because its half-step
+    /// velocity comes from the prescribed motion, not from `v_n + dt/2 a_n`. Unused (zeros) by the
+    /// implicit family. Missing in a checkpoint written before it existed, which then fails the
+    /// resume's size check.
+    #[serde(default)]
+    pub constrained: Vec<f64>,
 }
 
 impl EnergyLedger {
@@ -98,6 +107,7 @@ impl EnergyLedger {
             pending: Pending {
                 extra: vec![[0.0; 2]; k],
                 reactions: vec![0.0; constraints],
+                constrained: vec![0.0; constraints * (3 + k)],
                 ..Pending::default()
             },
         }
@@ -122,6 +132,9 @@ impl EnergyLedger {
         self.pending
             .reactions
             .copy_from_slice(&other.pending.reactions);
+        self.pending
+            .constrained
+            .copy_from_slice(&other.pending.constrained);
     }
 
     /// Internal energy: stored at the start plus work done against internal forces since.

@@ -180,6 +180,9 @@ pub struct CentralDifference {
     partials3: Vec<[f64; 3]>,
     partials1: Vec<[f64; 1]>,
     reactions: Vec<f64>,
+    /// The forces at the constrained DOFs at the end of this step (layout of
+    /// `Pending::constrained`), moved into the trial ledger once it is formed.
+    con_forces: Vec<f64>,
     ledger: EnergyLedger,
     trial: EnergyLedger,
     stable: Option<StableStep>,
@@ -296,6 +299,11 @@ impl CentralDifference {
             cd.constraints.len(),
             ledger.pending.reactions.len(),
         )?;
+        check_len(
+            "energy ledger constrained forces",
+            cd.con_forces.len(),
+            ledger.pending.constrained.len(),
+        )?;
         cd.ledger = ledger;
         cd.trial = cd.ledger.clone();
         if let StableLimit::Estimate = cd.options.stable_limit {
@@ -357,6 +365,7 @@ impl CentralDifference {
             mass,
             inv_mass,
             reactions: vec![0.0; constraints.len()],
+            con_forces: vec![0.0; constraints.len() * (3 + k)],
             constraints,
             damping,
             u_next: vec![0.0; n],
@@ -398,6 +407,14 @@ impl CentralDifference {
     /// The energy ledger after the last accepted step.
     pub fn energy(&self) -> &EnergyLedger {
         &self.ledger
+    }
+
+    /// Reaction forces at the constrained DOFs (in the order of the model's constraints) at the
+    /// last accepted state: `r = M a_c + C v_c + f_int - f_ext`, with the constrained DOF's
+    /// centred velocity `v_c` and acceleration `a_c` (see docs/explicit.md). Zero before the first
+    /// step. A step that fails leaves these at the last accepted state.
+    pub fn reactions(&self) -> &[f64] {
+        &self.ledger.pending.reactions
     }
 
     /// The lumped mass the integrator uses.
@@ -721,14 +738,20 @@ impl CentralDifference {
                     (0.5 * (vh[d] + ahead), (ahead - vh[d]) / dt)
                 }
             };
-            // The loop computed a = 0 and v = vh here (inverse mass 0); correct the sums.
-            let dv = v_c - vh[d];
-            sums[3] += dv * fi;
-            sums[4] += dv * fe;
-            sums[5] += dv * fdj;
-            sums[6] += a_c * fi;
-            sums[7] += a_c * fe;
-            sums[8] += a_c * fdj;
+            // The loop counted this DOF with a = 0 and v = vh (inverse mass 0). Its half of the
+            // next trapezoid cannot come from `v + dt/2 a`: the next half-step velocity is set
+            // by the prescribed motion over a step not yet known. Take the DOF out of the
+            // pending scalars, keep its forces, and finish its trapezoid of this step from the
+            // forces kept at the last one and this step's increment `dt vh`.
+            sums[3] -= vh[d] * fi;
+            sums[4] -= vh[d] * fe;
+            sums[5] -= vh[d] * fdj;
+            let stride = 3 + self.f_extra.len();
+            let prev = &self.ledger.pending.constrained[j * stride..j * stride + 3];
+            sums[0] += vh[d] * prev[0];
+            sums[1] += vh[d] * prev[1];
+            sums[2] += vh[d] * prev[2];
+            self.con_forces[j * stride..j * stride + 3].copy_from_slice(&[fi, fe, fdj]);
             sums[9] += self.mass[d] * (v_c * v_c - vh[d] * vh[d]);
             self.a_next[d] = a_c;
             self.v_next[d] = v_c;
@@ -774,11 +797,23 @@ impl CentralDifference {
                 *p = s;
             });
             let mut s = sum_partials(&self.partials3);
+            // Constrained DOFs, as for the other forces: out of the pending scalars, their
+            // trapezoid finished from the force kept at the last step.
+            let stride = 3 + self.f_extra.len();
+            for (j, (dof, _)) in self.constraints.iter().enumerate() {
+                let d = *dof;
+                let at = j * stride + 3 + k;
+                s[0] += vh[d] * self.ledger.pending.constrained[at];
+                s[1] -= vn[d] * fx[d];
+                s[2] -= an[d] * fx[d];
+                self.con_forces[at] = fx[d];
+            }
             self.options.reduce.sum_in_place(&mut s);
             let pk = self.ledger.pending.extra[k];
             l.extra_work[k] += half * (pk[0] + half * pk[1] + s[0]);
             l.pending.extra[k] = [s[1], s[2]];
         }
+        l.pending.constrained.copy_from_slice(&self.con_forces);
 
         let all_finite = sums.iter().all(|x| x.is_finite())
             && l.extra_work.iter().all(|x| x.is_finite())

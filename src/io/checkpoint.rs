@@ -163,6 +163,7 @@ fn check_all_finite(c: &Checkpoint) -> Result<()> {
         .chain(&p.extra)
         .flatten()
         .chain(&p.reactions)
+        .chain(&p.constrained)
         .copied()
         .collect();
     check_finite("checkpoint pending energy terms", &scalars)
