@@ -231,6 +231,112 @@ fn hard_steps_are_cut_back_and_regrown() {
     assert!((state.t - 5.0).abs() < 1e-12);
 }
 
+/// The hardening oscillator with its load, recording the time of every accepted sub-step.
+struct Timed(Duffing, Vec<f64>);
+
+impl Model for Timed {
+    fn dofs(&self) -> usize {
+        1
+    }
+    fn lumped_mass(&self, out: &mut [f64]) {
+        self.0.lumped_mass(out)
+    }
+    fn internal_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        self.0.internal_force(t, u, v, out)
+    }
+    fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), ModelError> {
+        self.0.external_force(t, out)
+    }
+    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
+        self.0.tangent_pattern()
+    }
+    fn tangent_stiffness(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut stepgauge::linalg::CsrMatrix,
+    ) -> Result<(), ModelError> {
+        self.0.tangent_stiffness(t, u, v, out)
+    }
+    fn damping(&self) -> stepgauge::model::Damping {
+        self.0.damping()
+    }
+    fn damping_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), ModelError> {
+        self.0.damping_force(t, u, v, out)
+    }
+    fn damping_matrix(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
+        self.0.damping_matrix()
+    }
+    fn accept_step(&mut self, t: f64) {
+        self.1.push(t);
+    }
+}
+
+/// The sub-steps of a cut-back step partition it: every accepted sub-step ends inside the step,
+/// the times increase, the last one is the step's end (to the rounding of `t + (t_end - t)`),
+/// and there are as many as the report counts; after a regrowth the last sub-step is shortened
+/// to land on the end rather than pass it.
+#[test]
+fn cut_back_sub_steps_partition_the_step() {
+    let newton = NewtonOptions {
+        max_iterations: 4,
+        regrow_after: 1,
+        ..Default::default()
+    };
+    let (d, mut state, mut it) = start(AlphaParams::average_acceleration(), newton);
+    let mut model = Timed(d, Vec::new());
+    model.0.f0 = 40.0;
+    let (mut cut, mut shortened) = (0, 0);
+    for n in 0..40 {
+        let t0 = state.t;
+        let t_end = t0 + 0.5;
+        model.1.clear();
+        it.step(&mut model, &mut state, 0.5).unwrap();
+        let r = it.last_report();
+        cut += r.cutbacks;
+        let times = &model.1;
+        assert_eq!(times.len(), r.substeps as usize, "step {n}");
+        let mut prev = t0;
+        for &t in times {
+            assert!(
+                t > prev && t <= t_end + 4.0 * f64::EPSILON * t_end,
+                "step {n}: {times:?}"
+            );
+            prev = t;
+        }
+        let last = *times.last().unwrap();
+        assert!(
+            (last - t_end).abs() <= 4.0 * f64::EPSILON * t_end,
+            "step {n}: {times:?}"
+        );
+        // A last sub-step shorter than the one before it: cut to land on the end.
+        if let [.., a, b, c] = times[..]
+            && c - b < b - a - 1e-12
+        {
+            shortened += 1;
+        }
+        assert_eq!(state.t, t_end);
+    }
+    assert!(cut > 0, "no cut-back happened");
+    assert!(
+        shortened > 0,
+        "no sub-step was shortened to land on the end"
+    );
+}
+
 /// A model that fails beyond a time: the failure persists at the smallest step, the error is the
 /// model's, typed, and the state is the last converged one.
 struct Breaks(Duffing, f64);

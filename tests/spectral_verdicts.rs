@@ -401,3 +401,67 @@ fn published_families_are_unconditional_and_agree_with_their_bounds() {
         }
     }
 }
+
+/// Each published bound is cited only for the family its source states it for (the rule of
+/// `published_bounds`): an HHT set by Hilber, Hughes & Taylor (1977), not by the wider
+/// second-order bound of Chung & Hulbert (1993), which covers it too; a generalised-alpha set by
+/// Chung & Hulbert; an HHT set outside [-1/3, 0] is said to lie outside its source's range. The
+/// critical `Omega` of Newmark's closed form (Hughes 1987, sec. 9.1) is given for
+/// `alpha_m = alpha_f = 0` only, never for a conditionally stable set with `alpha_f != 0`.
+#[test]
+fn each_bound_is_cited_for_its_own_family_only() {
+    let ctx = CheckContext::default();
+    let reasons = |p: AlphaParams| check(&Scheme::Alpha(p), 0.0, &ctx).unwrap().reasons;
+    for alpha in [-0.05, -0.1, -0.3] {
+        let r = reasons(AlphaParams::hht(alpha).unwrap());
+        assert!(
+            r.iter()
+                .any(|x| x.contains("Hilber, Hughes & Taylor 1977") && x.contains("lies in")),
+            "HHT {alpha}: {r:#?}"
+        );
+        assert!(
+            !r.iter().any(|x| x.contains("Chung & Hulbert 1993:")),
+            "{r:#?}"
+        );
+    }
+    let r = reasons(AlphaParams::raw(0.0, 0.5, 0.5625, 1.0).unwrap());
+    assert!(
+        r.iter().any(|x| x.contains("lies outside [-1/3, 0]")),
+        "HHT -0.5: {r:#?}"
+    );
+    let r = reasons(AlphaParams::generalized_alpha(0.8).unwrap());
+    assert!(
+        r.iter().any(|x| x.contains("Chung & Hulbert 1993:")),
+        "{r:#?}"
+    );
+    // Conditionally stable with alpha_f != 0: the numeric scan alone gives Omega_crit.
+    let off = AlphaParams::raw(0.0, 0.1, 0.1, 0.6).unwrap();
+    let v = check(&Scheme::Alpha(off), 0.0, &ctx).unwrap();
+    assert!(
+        matches!(v.stability, Stability::Conditional { .. }),
+        "{v:#?}"
+    );
+    assert_eq!(v.omega_crit_closed_form, None, "{v:#?}");
+    let newmark = AlphaParams::raw(0.0, 0.0, 0.1, 0.6).unwrap();
+    assert!(
+        check(&Scheme::Alpha(newmark), 0.0, &ctx)
+            .unwrap()
+            .omega_crit_closed_form
+            .is_some()
+    );
+}
+
+/// The bracket confirming a critical `Omega`: just below it the spectral radius is at most one,
+/// just above it more than one (the lagged central difference at `xi = 0.1`, whose limit
+/// `2 (sqrt(1 + xi^2) - xi)` is from Belytschko, Liu & Moran 2000, sec. 6.2, from memory); and a
+/// region remembers the damping ratio it was made for.
+#[test]
+fn the_bracket_straddles_the_limit_and_the_region_keeps_its_damping() {
+    let xi: f64 = 0.1;
+    let scheme = Scheme::CentralDifference(ForceVelocity::Lagged);
+    let crit = 2.0 * ((1.0 + xi * xi).sqrt() - xi);
+    let (below, above) = stepgauge::spectral::bracket_check(&scheme, xi, crit, 1e-6);
+    assert!(below <= 1.0 + 1e-12, "{below}");
+    assert!(above > 1.0 + 1e-8, "{above}");
+    assert_eq!(StabilityRegion::new(&scheme, xi).xi(), xi);
+}

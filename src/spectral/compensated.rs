@@ -391,6 +391,110 @@ mod tests {
 }
 
 #[cfg(test)]
+mod property_tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    /// Unit roundoff of double-double.
+    const U_DD: f64 = 1.2325951644078310e-32; // 2^-106
+
+    /// The coefficients of `(z - a)(z - b)(z - c)` for real `a, b, c`, each product of two
+    /// doubles exact in double-double, the sums and the triple product rounded once or twice.
+    fn from_real(a: f64, b: f64, c: f64) -> (Dd, Dd, Dd) {
+        let ab = Dd::new_mul(a, b);
+        let c2 = -(Dd::new_add(a, b) + c);
+        let c1 = ab + Dd::new_mul(a, c) + Dd::new_mul(b, c);
+        let c0 = -(ab * c);
+        (c2, c1, c0)
+    }
+
+    /// The coefficients of `(z - r)((z - p)^2 + q^2)`.
+    fn from_pair(r: f64, p: f64, q: f64) -> (Dd, Dd, Dd) {
+        let prod = Dd::new_mul(p, p) + Dd::new_mul(q, q);
+        let c2 = -(Dd::from(r) + 2.0 * p);
+        let c1 = Dd::new_mul(r, 2.0 * p) + prod;
+        let c0 = -(prod * r);
+        (c2, c1, c0)
+    }
+
+    /// Each exact root is matched by one computed root within its first-order perturbation bound
+    /// (a standard result, e.g. Higham 2002, *Accuracy and Stability of Numerical Algorithms*,
+    /// 2nd ed., sec. 26.3.2: `|dz| <= |dp(z)| / |p'(z)|`) for coefficient errors of a few units of
+    /// double-double rounding, plus the rounding of the root to double.
+    fn assert_roots(z: [Complex<f64>; 3], exact: [Complex<f64>; 3]) {
+        let mut used = [false; 3];
+        for (i, e) in exact.iter().enumerate() {
+            let m = e.norm();
+            let size = m * m * m + 4.0 * m * m + 4.0 * m + 1.0;
+            let slope: f64 = (0..3)
+                .filter(|&j| j != i)
+                .map(|j| (e - exact[j]).norm())
+                .product();
+            let tol = 2.0 * f64::EPSILON * m + 64.0 * U_DD * size / slope;
+            let k = (0..3)
+                .filter(|&k| !used[k])
+                .min_by(|&a, &b| (z[a] - e).norm().total_cmp(&(z[b] - e).norm()))
+                .unwrap();
+            used[k] = true;
+            assert!(
+                (z[k] - e).norm() <= tol,
+                "root {e} found as {} (error {:e}, bound {tol:e}); all {z:?}",
+                z[k],
+                (z[k] - e).norm()
+            );
+        }
+    }
+
+    proptest! {
+        /// Three real roots, two of them as close as `1e-10` of the scale, and a real root with
+        /// a complex pair whose imaginary part goes down to `1e-9`: the compensated roots hold
+        /// the bound of a double-double solve (a derived bound, not a reference value).
+        #[test]
+        fn roots_hold_the_double_double_bound(
+            a in -2.0f64..2.0,
+            b in -2.0f64..2.0,
+            gap in prop_oneof![Just(0.0), -10.0f64..-0.5],
+            sign in prop::bool::ANY,
+            c in -2.0f64..2.0,
+            q_exp in -9.0f64..0.0,
+        ) {
+            // Two roots `b` and `b + d`, `d = 10^gap` (0: an independent third root `c`).
+            let d = if gap == 0.0 { c - b } else { 10f64.powf(gap) * if sign { 1.0 } else { -1.0 } };
+            let b2 = b + d;
+            prop_assume!((a - b).abs() > 1e-3 && (a - b2).abs() > 1e-3 && b != b2);
+            let z = roots(from_real(a, b, b2).0, from_real(a, b, b2).1, from_real(a, b, b2).2)
+                .expect("in range");
+            assert_roots(z, [a, b, b2].map(|x| Complex::new(x, 0.0)));
+            let q = 10f64.powf(q_exp);
+            let (c2, c1, c0) = from_pair(a, c, q);
+            let z = roots(c2, c1, c0).expect("in range");
+            assert_roots(z, [Complex::new(a, 0.0), Complex::new(c, q), Complex::new(c, -q)]);
+            // The layout: the real root first, the pair with the positive imaginary part first.
+            prop_assert!(z[0].im == 0.0 && z[1].im > 0.0 && z[2].im < 0.0, "{z:?}");
+        }
+
+        /// Three real roots in a cluster `a, a + e1, a + e2` (`|e| >= 1e-6`), where the
+        /// double-precision roots cannot tell an isolated one apart and each root is searched
+        /// in its own bracket.
+        #[test]
+        fn clustered_roots_hold_the_double_double_bound(
+            a in -2.0f64..2.0,
+            e1 in -6.0f64..-2.0,
+            e2 in -6.0f64..-2.0,
+            s1 in prop::bool::ANY,
+            s2 in prop::bool::ANY,
+        ) {
+            let b = a + if s1 { 1.0 } else { -1.0 } * 10f64.powf(e1);
+            let c = a + if s2 { 1.0 } else { -1.0 } * 10f64.powf(e2);
+            prop_assume!(b != c && (b - c).abs() > 1e-7);
+            let (c2, c1, c0) = from_real(a, b, c);
+            let z = roots(c2, c1, c0).expect("in range");
+            assert_roots(z, [a, b, c].map(|x| Complex::new(x, 0.0)));
+        }
+    }
+}
+
+#[cfg(test)]
 mod division_tests {
     use super::*;
 
