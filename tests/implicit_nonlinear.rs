@@ -210,6 +210,57 @@ fn modified_newton_and_line_search_reach_the_same_solution() {
     assert!(it_mod > it_full, "modified {it_mod} vs full {it_full}");
 }
 
+/// Newton stops only when every criterion holds (residual, displacement increment and energy;
+/// `NewtonOptions`): with one criterion tight and the others loose, each run ends as tightly
+/// converged as that criterion demands. The residual: the last relative residual of every step
+/// is within its tolerance. The displacement increment: the run agrees with a fully converged
+/// one to 1e-12 (an increment below `1e-13` of the step's change leaves an error of that order;
+/// quadratic convergence puts the next one far below), where the loose run does not.
+#[test]
+fn newton_stops_only_when_every_criterion_holds() {
+    let loose = NewtonOptions {
+        residual_tolerance: 0.5,
+        displacement_tolerance: 0.5,
+        energy_tolerance: 0.5,
+        ..Default::default()
+    };
+    let run = |newton: NewtonOptions, check_residual: bool| {
+        let (mut model, mut state, mut it) = start(AlphaParams::average_acceleration(), newton);
+        for _ in 0..40 {
+            it.step(&mut model, &mut state, 0.25).unwrap();
+            if check_residual {
+                let last = *it.last_report().residuals.last().unwrap();
+                assert!(last <= newton.residual_tolerance, "residual {last:e}");
+            }
+        }
+        state.u[0]
+    };
+    let tight = run(NewtonOptions::default(), false);
+    let sloppy = run(loose, false);
+    assert!(
+        (sloppy - tight).abs() > 1e-9,
+        "the loose run is not distinguishable: {sloppy} vs {tight}"
+    );
+    run(
+        NewtonOptions {
+            residual_tolerance: 1e-13,
+            ..loose
+        },
+        true,
+    );
+    let by_increment = run(
+        NewtonOptions {
+            displacement_tolerance: 1e-13,
+            ..loose
+        },
+        false,
+    );
+    assert!(
+        (by_increment - tight).abs() <= 1e-12,
+        "{by_increment} vs {tight}"
+    );
+}
+
 /// With few iterations allowed, a large step is cut back and regrown, and still reaches its end.
 #[test]
 fn hard_steps_are_cut_back_and_regrown() {
