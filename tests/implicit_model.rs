@@ -505,3 +505,99 @@ fn implicit_growth_guard_for_a_deformed_release_without_stored_energy() {
         assert!(state.u[0].abs() <= 1.0 + 1e-9);
     }
 }
+
+/// A linear model whose load fails after a time (a table read beyond its end, say), on the
+/// implicit linear path with a consistent mass (the model says it is linear and gives its
+/// stiffness): the error is the
+/// model's, names the step and the time being computed, and the state is the last accepted one.
+struct LoadFailsAfter(LinearModel, f64);
+
+impl stepgauge::model::Model for LoadFailsAfter {
+    fn dofs(&self) -> usize {
+        self.0.dofs()
+    }
+    fn lumped_mass(&self, out: &mut [f64]) {
+        self.0.lumped_mass(out)
+    }
+    fn internal_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), stepgauge::ModelError> {
+        self.0.internal_force(t, u, v, out)
+    }
+    fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), stepgauge::ModelError> {
+        if t > self.1 {
+            return Err(stepgauge::ModelError::failed("load table ends"));
+        }
+        self.0.external_force(t, out)
+    }
+    fn mass_matrix(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
+        stepgauge::model::Model::mass_matrix(&self.0)
+    }
+    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
+        stepgauge::model::Model::tangent_pattern(&self.0)
+    }
+    fn tangent_stiffness(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut stepgauge::linalg::CsrMatrix,
+    ) -> Result<(), stepgauge::ModelError> {
+        self.0.tangent_stiffness(t, u, v, out)
+    }
+    fn is_linear(&self) -> bool {
+        true
+    }
+    fn linear_stiffness(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
+        stepgauge::model::Model::linear_stiffness(&self.0)
+    }
+}
+
+#[test]
+fn a_failing_load_on_the_linear_path_names_its_step_and_time() {
+    // A consistent mass (the general linear path) and a lumped one (the fused path).
+    for mass in [
+        common::dense(&[&[2.0, 1.0], &[1.0, 2.0]]),
+        common::diag(&[1.0, 2.0]),
+    ] {
+        failing_load(&mass);
+    }
+}
+
+fn failing_load(mass: &sprs::CsMat<f64>) {
+    let mut model = LoadFailsAfter(
+        LinearModel::new(mass, &common::dense(&[&[3.0, -1.0], &[-1.0, 2.0]]))
+            .unwrap()
+            .with_load(Load::Pattern {
+                pattern: vec![1.0, 0.0],
+                factor: TimeFunction::Constant(1.0),
+            })
+            .unwrap(),
+        0.35,
+    );
+    let mut state = State::at_rest(2, 0.0);
+    let mut it = AlphaIntegrator::new(
+        &mut model,
+        &mut state,
+        AlphaParams::average_acceleration(),
+        common::DenseLu::boxed(),
+        ImplicitOptions::default(),
+    )
+    .unwrap();
+    for _ in 0..3 {
+        it.step(&mut model, &mut state, 0.1).unwrap();
+    }
+    let good = state.clone();
+    // The linear path: one solve a step.
+    assert_eq!(it.last_report().iterations, 1);
+    let e = it.step(&mut model, &mut state, 0.1).unwrap_err();
+    match e {
+        Error::Model { step: 4, t, .. } => assert!((t - 0.4).abs() < 1e-12, "{t}"),
+        other => panic!("{other}"),
+    }
+    assert_eq!(state, good);
+}
