@@ -396,7 +396,7 @@ mod property_tests {
     use proptest::prelude::*;
 
     /// Unit roundoff of double-double.
-    const U_DD: f64 = 1.2325951644078310e-32; // 2^-106
+    const U_DD: f64 = f64::EPSILON * f64::EPSILON / 4.0; // 2^-106
 
     /// The coefficients of `(z - a)(z - b)(z - c)` for real `a, b, c`, each product of two
     /// doubles exact in double-double, the sums and the triple product rounded once or twice.
