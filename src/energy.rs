@@ -70,21 +70,21 @@ pub struct EnergyLedger {
 /// Per-force scalars from the end of the last step, needed to finish the next trapezoid.
 #[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
 pub(crate) struct Pending {
-    /// `[v_n . f, a_n . f]` for internal, external and damping forces.
+    /// `[v_n . f, a_n . f]` for internal, external and damping forces (over the free DOFs only
+    /// for the explicit scheme, which keeps the constrained DOFs' forces in `constrained`).
     pub internal: [f64; 2],
     pub external: [f64; 2],
     pub damping: [f64; 2],
-    /// `[v_n . f, a_n . f]` for each extra force.
+    /// `[v_n . f, a_n . f]` for each extra force (free DOFs only for the explicit scheme).
     pub extra: Vec<[f64; 2]>,
     /// Reaction force at each constrained DOF (in constraint order).
     pub reactions: Vec<f64>,
     /// The forces at each constrained DOF, `[f_int, f_ext, f_damp, f_0 .. f_{k-1}]` per
     /// constraint (stride `3 + k` for `k` extra forces): the explicit scheme finishes a constrained
     /// DOF's trapezoid from these once the step's increment is known, because its half-step
-    /// velocity comes from the prescribed motion, not from `v_n + dt/2 a_n`. Unused (zeros) by the
-    /// implicit family. Missing in a checkpoint written before it existed, which then fails the
-    /// resume's size check.
-    #[serde(default)]
+    /// velocity comes from the prescribed motion, not from `v_n + dt/2 a_n`. The implicit family
+    /// books each work from the increment directly and neither reads nor writes it (a ledger
+    /// carried over from an explicit run keeps its values). Checkpoint format version 2 and later.
     pub constrained: Vec<f64>,
 }
 

@@ -534,7 +534,7 @@ fn resume_with_another_step_or_a_truncated_checkpoint_is_refused() {
         &[
             "run.ckpt",
             "formerly-checkpoint",
-            "expected the header `stepgauge-checkpoint v1 <length> <crc32>`",
+            "expected the header `stepgauge-checkpoint v2 <length> <crc32>`",
         ],
     );
     assert_eq!(std::fs::read(&out).unwrap(), before, "output untouched");

@@ -39,12 +39,39 @@ fn load(t: f64) -> f64 {
     3.0 * (2.0 * t).sin()
 }
 
+/// The base motion `g = 0.02 (1 - cos 1.5 t)`: at rest at the start but accelerating.
 fn base(t: f64) -> f64 {
-    0.02 * (1.5 * t).sin()
+    0.02 * (1.0 - (1.5 * t).cos())
+}
+
+fn base_velocity(t: f64) -> f64 {
+    0.03 * (1.5 * t).sin()
+}
+
+fn base_acceleration(t: f64) -> f64 {
+    0.045 * (1.5 * t).cos()
 }
 
 /// The chain with DOF 0 moved as `base(t)`, DOF 3 fixed, the load on DOF 2, Rayleigh damping.
 fn model() -> LinearModel {
+    model_driven(false)
+}
+
+/// As [`model`], the base given by its displacement or (`by_velocity`) by its velocity.
+fn model_driven(by_velocity: bool) -> LinearModel {
+    let constraints = if by_velocity {
+        Constraints::new().prescribe_velocity(
+            0,
+            TimeFunction::with_derivatives(base_velocity, base_acceleration, |t| {
+                -0.0675 * (1.5 * t).sin()
+            }),
+        )
+    } else {
+        Constraints::new().prescribe_displacement(
+            0,
+            TimeFunction::with_derivatives(base, base_velocity, base_acceleration),
+        )
+    };
     LinearModel::new(
         &common::diag(&MASS),
         &common::chain_stiffness(N, K, true, false),
@@ -57,18 +84,7 @@ fn model() -> LinearModel {
         factor: TimeFunction::function(load),
     })
     .unwrap()
-    .with_constraints(
-        Constraints::new()
-            .prescribe_displacement(
-                0,
-                TimeFunction::with_derivatives(
-                    base,
-                    |t| 0.03 * (1.5 * t).cos(),
-                    |t| -0.045 * (1.5 * t).sin(),
-                ),
-            )
-            .fix(3),
-    )
+    .with_constraints(constraints.fix(3))
     .unwrap()
 }
 
@@ -153,21 +169,26 @@ impl Model for WithCubic {
 
 /// The central difference with the lagged damping velocity: the damping force at the end of a
 /// step is `C v_{n+1/2}`, `v_{n+1/2} = (u_{n+1} - u_n) / dt` (at the start, `C v_0`); the
-/// reactions at constrained DOFs are `m a_c - (f_ext - f_int - f_damp - f_cubic)` with
-/// `a_c = ((g(t + dt) - g(t)) / dt - (g(t) - g(t - dt)) / dt) / dt` of a prescribed displacement
-/// over the step just taken (`a_c = 0` at a fixed DOF). The step changes from step to step, so
-/// that a trapezoid finished with another step's size would be seen.
+/// reactions at constrained DOFs are `m a_c - (f_ext - f_int - f_damp - f_cubic)` with the
+/// centred `a_c = (ahead - v_{n-1/2}) / dt` over the step just taken, `ahead` the velocity of the
+/// next half step of the same size (`(g(t + dt) - g(t)) / dt` for a prescribed displacement,
+/// `h(t + dt/2)` for a prescribed velocity; the motion's own acceleration at the start; `a_c = 0`
+/// at a fixed DOF). The step changes from step to step, so that a trapezoid finished with another
+/// step's size would be seen; halfway the run goes on from a copy of its ledger
+/// (`CentralDifference::resume`, as from a checkpoint).
 #[test]
 fn central_difference_ledger_follows_its_rule_term_by_term() {
     for fused in [true, false] {
-        ledger_term_by_term(fused);
+        for by_velocity in [false, true] {
+            ledger_term_by_term(fused, by_velocity);
+        }
     }
 }
 
-fn ledger_term_by_term(fused: bool) {
+fn ledger_term_by_term(fused: bool, by_velocity: bool) {
     let steps = 300;
     let mut m = WithCubic {
-        inner: model(),
+        inner: model_driven(by_velocity),
         fused,
     };
     let mut state = State::new(0.0, vec![0.0, 0.05, -0.03, 0.0], vec![0.0, 0.4, 0.1, 0.0]).unwrap();
@@ -175,7 +196,7 @@ fn ledger_term_by_term(fused: bool) {
         stable_limit: StableLimit::Unchecked,
         ..Default::default()
     };
-    let mut cd = CentralDifference::new(&mut m, &mut state, opts).unwrap();
+    let mut cd = CentralDifference::new(&mut m, &mut state, opts.clone()).unwrap();
     let c_times = |v: &[f64]| -> Vec<f64> {
         let kv = k_times(v);
         (0..N).map(|i| A0 * MASS[i] * v[i] + A1 * kv[i]).collect()
@@ -188,10 +209,27 @@ fn ledger_term_by_term(fused: bool) {
     let mut f_damp = c_times(&state.v);
     let mut f_cubic = cubic(&state.u);
     let mut reactions = cd.reactions().to_vec();
+    // The start's reactions carry the motion's own acceleration.
+    let r0 = [
+        MASS[0] * base_acceleration(0.0) - (f_ext[0] - f_int[0] - f_damp[0] - f_cubic[0]),
+        -(f_ext[3] - f_int[3] - f_damp[3] - f_cubic[3]),
+    ];
+    for j in 0..2 {
+        assert!(
+            (reactions[j] - r0[j]).abs() <= 1e-12 * (1.0 + r0[j].abs()),
+            "start reaction {j}: {} vs {}",
+            reactions[j],
+            r0[j]
+        );
+    }
     let mut w: [f64; 5] = [0.0; 5];
     let mut scale: f64 = 0.0;
     let mut t = 0.0;
     for n in 1..=steps {
+        if n == steps / 2 {
+            let ledger = cd.energy().clone();
+            cd = CentralDifference::resume(&mut m, &state, ledger, opts.clone()).unwrap();
+        }
         let dt = 0.01 * (1.0 + 0.3 * (n as f64).sin());
         cd.step(&mut m, &mut state, dt).unwrap();
         t += dt;
@@ -199,7 +237,12 @@ fn ledger_term_by_term(fused: bool) {
         let du: Vec<f64> = state.u.iter().zip(&u_prev).map(|(a, b)| a - b).collect();
         let vh: Vec<f64> = du.iter().map(|d| d / dt).collect();
         let (fi, fe, fd, fc) = (k_times(&state.u), ext(t), c_times(&vh), cubic(&state.u));
-        let a_c = ((base(t + dt) - base(t)) / dt - (base(t) - base(t - dt)) / dt) / dt;
+        let ahead = if by_velocity {
+            base_velocity(t + 0.5 * dt)
+        } else {
+            (base(t + dt) - state.u[0]) / dt
+        };
+        let a_c = (ahead - vh[0]) / dt;
         let r = [
             MASS[0] * a_c - (fe[0] - fi[0] - fd[0] - fc[0]),
             -(fe[3] - fi[3] - fd[3] - fc[3]),
@@ -209,7 +252,7 @@ fn ledger_term_by_term(fused: bool) {
             let tol = 1e-12 * (1.0 + fi[0].abs() + fc[0].abs() + MASS[0] * a_c.abs());
             assert!(
                 (got - want).abs() <= tol,
-                "fused {fused}, step {n}: reaction {j} {got} vs {want}"
+                "fused {fused}, by velocity {by_velocity}, step {n}: reaction {j} {got} vs {want}"
             );
         }
         let half = |f0: &[f64], f1: &[f64]| 0.5 * (dot(&du, f0) + dot(&du, f1));
@@ -237,7 +280,7 @@ fn ledger_term_by_term(fused: bool) {
         ] {
             assert!(
                 (got - want).abs() <= tol,
-                "fused {fused}, step {n}: {name} {got} vs {want} (tol {tol:e})"
+                "fused {fused}, by velocity {by_velocity}, step {n}: {name} {got} vs {want} (tol {tol:e})"
             );
         }
         (u_prev, f_int, f_ext, f_damp, f_cubic) = (state.u.clone(), fi, fe, fd, fc);

@@ -671,7 +671,7 @@ fn damaged_checkpoints_are_refused_whole() {
         assert!(matches!(e, Error::CheckpointHeader { .. }), "{e:?}");
         let e = e.to_string();
         assert!(
-            e.contains("expected the header `stepgauge-checkpoint v1 <length> <crc32>`"),
+            e.contains("expected the header `stepgauge-checkpoint v2 <length> <crc32>`"),
             "{e}"
         );
         assert!(!e.contains('\u{1b}'), "control characters are escaped: {e}");

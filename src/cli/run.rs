@@ -525,16 +525,26 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
             (s, None, None)
         }
     };
+    let mismatch = |path: &std::path::Path, found: &str, description: &str| {
+        Failure::Usage(format!(
+            "checkpoint {} was written by a run with `{found}`, this run has `{description}`: \
+             resume with the same scheme and step",
+            path.display()
+        ))
+    };
+    // The scheme first (before the engine reads the checkpoint's ledger, whose shape is the
+    // scheme's), then, once the engine has chosen it, the step.
+    if let Some((path, found)) = &expected_scheme
+        && !found.starts_with(&format!("{}; dt = ", scheme.label))
+    {
+        return Err(mismatch(path, found, &scheme.label));
+    }
     let (mut engine, dt) = build_engine(&scheme, &mut model, &mut state, ledger, step)?;
     let description = checkpoint_scheme(&scheme.label, dt);
     if let Some((path, found)) = &expected_scheme
         && *found != description
     {
-        return Err(Failure::Usage(format!(
-            "checkpoint {} was written by a run with `{found}`, this run has `{description}`: \
-             resume with the same scheme and step",
-            path.display()
-        )));
+        return Err(mismatch(path, found, &description));
     }
 
     // Progress bar: only on a terminal, after about a second.

@@ -410,9 +410,11 @@ impl CentralDifference {
     }
 
     /// Reaction forces at the constrained DOFs (in the order of the model's constraints) at the
-    /// last accepted state: `r = M a_c + C v_c + f_int - f_ext`, with the constrained DOF's
-    /// centred velocity `v_c` and acceleration `a_c` (see docs/explicit.md). Zero before the first
-    /// step. A step that fails leaves these at the last accepted state.
+    /// last accepted state (the start's before the first step):
+    /// `r = m a_c - (f_ext - f_int - f_damp - sum_k f_k)`, with the constrained DOF's centred
+    /// acceleration `a_c` (the motion's own at the start) and the damping force of the velocity
+    /// the forces see (see docs/explicit.md). A step that fails leaves these at the last accepted
+    /// state.
     pub fn reactions(&self) -> &[f64] {
         &self.ledger.pending.reactions
     }
@@ -728,7 +730,9 @@ impl CentralDifference {
             }
             let (v_c, a_c) = match motion {
                 Motion::Fixed => (0.0, 0.0),
-                _ if dt == 0.0 => (vh[d], 0.0),
+                // The start: the motion's own velocity and acceleration.
+                Motion::Displacement(g) if dt == 0.0 => (vh[d], g.rates(t).1),
+                Motion::Velocity(h) if dt == 0.0 => (vh[d], h.rates(t).0),
                 Motion::Displacement(g) => {
                     let ahead = (g.value(t + dt) - self.u_next[d]) / dt;
                     (0.5 * (vh[d] + ahead), (ahead - vh[d]) / dt)

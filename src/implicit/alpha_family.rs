@@ -389,6 +389,11 @@ impl AlphaIntegrator {
             it.constraints.len(),
             ledger.pending.reactions.len(),
         )?;
+        check_len(
+            "energy ledger constrained forces",
+            it.ledger.pending.constrained.len(),
+            ledger.pending.constrained.len(),
+        )?;
         it.forces_at(model, state, state.step)?;
         it.solver.analyze(&it.jac)?;
         it.reactions0.copy_from_slice(&ledger.pending.reactions);

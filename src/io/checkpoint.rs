@@ -4,8 +4,8 @@
 //! A one-line text header, the JSON of the [`Checkpoint`], and a newline:
 //!
 //! ```text
-//! stepgauge-checkpoint v1 <length> <crc32>
-//! {"format_version":1,"scheme":"...","state":{...},"ledger":{...},"extra":...}
+//! stepgauge-checkpoint v2 <length> <crc32>
+//! {"format_version":2,"scheme":"...","state":{...},"ledger":{...},"extra":...}
 //! ```
 //!
 //! `<length>` is the number of bytes of the JSON (decimal) and `<crc32>` its CRC-32 (IEEE, as in
@@ -32,8 +32,10 @@ use crate::energy::EnergyLedger;
 use crate::error::{Error, Result};
 use crate::state::{State, check_finite};
 
-/// The checkpoint format version this build writes and reads.
-pub const CHECKPOINT_FORMAT_VERSION: u32 = 1;
+/// The checkpoint format version this build writes and reads. Version 2 added the forces kept at
+/// constrained DOFs to the energy ledger's pending terms (`Pending::constrained`); version 1 files
+/// are refused with [`Error::CheckpointVersion`].
+pub const CHECKPOINT_FORMAT_VERSION: u32 = 2;
 
 /// The first word of a checkpoint file.
 const MAGIC: &str = "stepgauge-checkpoint";
@@ -368,13 +370,13 @@ mod tests {
     fn other_versions_and_non_finite_values_are_refused() {
         let bytes = encode(&sample(), Path::new("c")).unwrap();
         let text = String::from_utf8(bytes).unwrap();
-        let e = decode(text.replacen(" v1 ", " v2 ", 1).as_bytes(), Path::new("c")).unwrap_err();
+        let e = decode(text.replacen(" v2 ", " v1 ", 1).as_bytes(), Path::new("c")).unwrap_err();
         assert!(
             matches!(
                 e,
                 Error::CheckpointVersion {
-                    found: 2,
-                    supported: 1,
+                    found: 1,
+                    supported: 2,
                     ..
                 }
             ),
@@ -385,7 +387,7 @@ mod tests {
         c.format_version = 7;
         let json = serde_json::to_vec(&c).unwrap();
         let mut b =
-            format!("{MAGIC} v1 {} {:08x}\n", json.len(), crc32fast::hash(&json)).into_bytes();
+            format!("{MAGIC} v2 {} {:08x}\n", json.len(), crc32fast::hash(&json)).into_bytes();
         b.extend_from_slice(&json);
         b.push(b'\n');
         let e = decode(&b, Path::new("c")).unwrap_err();
@@ -405,9 +407,9 @@ mod tests {
             "{e}"
         );
         // Valid checksum over content that is not a checkpoint.
-        let json = br#"{"format_version":1}"#;
+        let json = br#"{"format_version":2}"#;
         let mut b =
-            format!("{MAGIC} v1 {} {:08x}\n", json.len(), crc32fast::hash(json)).into_bytes();
+            format!("{MAGIC} v2 {} {:08x}\n", json.len(), crc32fast::hash(json)).into_bytes();
         b.extend_from_slice(json);
         b.push(b'\n');
         let e = decode(&b, Path::new("c")).unwrap_err();
