@@ -149,8 +149,19 @@ fn run(base: Base, drive: Drive, p: AlphaParams, dt: f64, t_end: f64) -> Run {
     let every = (0.02 / dt).round() as usize;
     let (mut eu, mut er, mut su, mut sr) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
     let (mut us, mut rs) = (Vec::new(), Vec::new());
+    // The constraint work, each step's trapezoid `(g_{n+1} - g_n) (r_n + r_{n+1}) / 2` of the
+    // reported reactions (the ledger's rule, evaluated here: a re-derivation, to rounding).
+    let (mut w_con, mut w_scale) = (0.0f64, 0.0f64);
     for n in 1..=steps {
+        let (g0, r0) = (state.u[0], it.reactions()[0]);
         it.step(&mut model, &mut state, dt).unwrap();
+        w_con += 0.5 * (state.u[0] - g0) * (r0 + it.reactions()[0]);
+        w_scale = w_scale.max(w_con.abs());
+        let got = it.energy().constraint_work;
+        assert!(
+            (got - w_con).abs() <= n as f64 * 10.0 * f64::EPSILON * w_scale,
+            "step {n}: constraint work {got} vs {w_con}"
+        );
         let t = n as f64 * dt;
         let ((g, ag), (u, au)) = exact(base, t);
         let r = M / 3.0 * ag + M / 6.0 * au + K * (g - u);

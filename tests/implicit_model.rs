@@ -509,8 +509,10 @@ fn implicit_growth_guard_for_a_deformed_release_without_stored_energy() {
 /// A linear model whose load fails after a time (a table read beyond its end, say), on the
 /// implicit linear path with a consistent mass (the model says it is linear and gives its
 /// stiffness): the error is the
-/// model's, names the step and the time being computed, and the state is the last accepted one.
-struct LoadFailsAfter(LinearModel, f64);
+/// model's, names the step and the time being computed, and the state is the last accepted one;
+/// a load that turns NaN is reported as a non-finite state at that step and time.
+/// With `nan`, the load turns NaN at DOF 1 instead of failing.
+struct LoadFailsAfter(LinearModel, f64, bool);
 
 impl stepgauge::model::Model for LoadFailsAfter {
     fn dofs(&self) -> usize {
@@ -530,6 +532,11 @@ impl stepgauge::model::Model for LoadFailsAfter {
     }
     fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), stepgauge::ModelError> {
         if t > self.1 {
+            if self.2 {
+                out.fill(0.0);
+                out[1] = f64::NAN;
+                return Ok(());
+            }
             return Err(stepgauge::ModelError::failed("load table ends"));
         }
         self.0.external_force(t, out)
@@ -564,11 +571,13 @@ fn a_failing_load_on_the_linear_path_names_its_step_and_time() {
         common::dense(&[&[2.0, 1.0], &[1.0, 2.0]]),
         common::diag(&[1.0, 2.0]),
     ] {
-        failing_load(&mass);
+        for nan in [false, true] {
+            failing_load(&mass, nan);
+        }
     }
 }
 
-fn failing_load(mass: &sprs::CsMat<f64>) {
+fn failing_load(mass: &sprs::CsMat<f64>, nan: bool) {
     let mut model = LoadFailsAfter(
         LinearModel::new(mass, &common::dense(&[&[3.0, -1.0], &[-1.0, 2.0]]))
             .unwrap()
@@ -578,6 +587,7 @@ fn failing_load(mass: &sprs::CsMat<f64>) {
             })
             .unwrap(),
         0.35,
+        nan,
     );
     let mut state = State::at_rest(2, 0.0);
     let mut it = AlphaIntegrator::new(
@@ -596,8 +606,12 @@ fn failing_load(mass: &sprs::CsMat<f64>) {
     assert_eq!(it.last_report().iterations, 1);
     let e = it.step(&mut model, &mut state, 0.1).unwrap_err();
     match e {
-        Error::Model { step: 4, t, .. } => assert!((t - 0.4).abs() < 1e-12, "{t}"),
-        other => panic!("{other}"),
+        Error::Model { step: 4, t, .. } if !nan => assert!((t - 0.4).abs() < 1e-12, "{t}"),
+        // A NaN load: the non-finite result is reported at once with the step and time.
+        Error::NonFiniteState { step: 4, t, .. } if nan => {
+            assert!((t - 0.4).abs() < 1e-12, "{t}")
+        }
+        other => panic!("nan {nan}: {other}"),
     }
     assert_eq!(state, good);
 }
