@@ -202,6 +202,7 @@ fn an_extra_force_enters_the_residual_and_the_ledger() {
                 let tol = n as f64 * 10.0 * f64::EPSILON * scale.max(f64::MIN_POSITIVE);
                 assert!((got - work).abs() <= tol, "step {n}: {got} vs {work}");
             }
+            assert!((state.t - row.0).abs() < 1e-9, "{} vs {}", state.t, row.0);
             u.push(state.u[0]);
         }
         assert!(scale > 0.1, "the cubic force did work: {scale}");
