@@ -465,3 +465,39 @@ fn the_bracket_straddles_the_limit_and_the_region_keeps_its_damping() {
     assert!(above > 1.0 + 1e-8, "{above}");
     assert_eq!(StabilityRegion::new(&scheme, xi).xi(), xi);
 }
+
+/// Newmark's closed-form critical `Omega` (Hughes 1987, sec. 9.1) exists only for a conditionally
+/// stable set (`gamma >= 1/2`, `beta < gamma / 2`): none for the unconditionally stable average
+/// acceleration (`beta = gamma / 2`, where the formula would divide by zero), for
+/// `beta > gamma / 2`, or for `gamma < 1/2`. With a frequency of interest the reason gives the
+/// accuracy step it found.
+#[test]
+fn the_closed_form_limit_only_where_it_applies_and_the_accuracy_step_stated() {
+    let ctx = CheckContext::default();
+    for (beta, gamma) in [(0.25, 0.5), (0.3, 0.5), (0.36, 0.7), (0.1, 0.4)] {
+        let p = AlphaParams::raw(0.0, 0.0, beta, gamma).unwrap();
+        let v = check(&Scheme::Alpha(p), 0.0, &ctx).unwrap();
+        assert_eq!(
+            v.omega_crit_closed_form, None,
+            "beta {beta}, gamma {gamma}: {v:#?}"
+        );
+    }
+    let ctx = CheckContext {
+        omega_interest: Some(10.0),
+        ..CheckContext::default()
+    };
+    let v = check(
+        &Scheme::Alpha(AlphaParams::average_acceleration()),
+        0.0,
+        &ctx,
+    )
+    .unwrap();
+    let dt = v.dt_accuracy.expect("an accuracy step");
+    assert!(dt > 0.0);
+    assert!(
+        v.reasons
+            .iter()
+            .any(|r| r.contains("stays within 0.01 for dt <=")),
+        "{v:#?}"
+    );
+}
