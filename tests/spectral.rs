@@ -366,3 +366,39 @@ proptest! {
         prop_assert_eq!(format!("{:?}", swept[0][0]), format!("{m:?}"));
     }
 }
+
+/// The independent scan of `omega_crit_numeric` finds the published critical `Omega`: 2 for the
+/// undamped central difference (Hughes 1987, sec. 9.3), `sqrt(12)` and `sqrt(6)` for linear
+/// acceleration and Fox-Goodwin, Newmark's closed form with damping (Hughes 1987, sec. 9.1), and
+/// the lagged central difference's `2 (sqrt(1 + xi^2) - xi)` (Belytschko, Liu & Moran 2000,
+/// sec. 6.2, from memory). Its margin of `1e-12` shifts a crossing by about the margin over the
+/// slope of `rho` (of order one here), so `1e-9` relative is a wide bound.
+#[test]
+fn the_numeric_scan_finds_the_published_limits() {
+    let cases = [
+        (Scheme::CentralDifference(ForceVelocity::Lagged), 0.0, 2.0),
+        (alpha(AlphaParams::linear_acceleration()), 0.0, 12f64.sqrt()),
+        (alpha(AlphaParams::fox_goodwin()), 0.0, 6f64.sqrt()),
+        (
+            Scheme::CentralDifference(ForceVelocity::Lagged),
+            0.2,
+            2.0 * ((1.0f64 + 0.04).sqrt() - 0.2),
+        ),
+    ];
+    for (s, xi, expected) in cases {
+        let o = omega_crit_numeric(&s, xi, 1e4).expect("conditionally stable");
+        assert!(
+            (o - expected).abs() <= 1e-9 * expected,
+            "{s:?} xi {xi}: {o} vs {expected}"
+        );
+    }
+    let s = alpha(AlphaParams::newmark(0.2, 0.6).unwrap());
+    for xi in [0.0, 0.1, 0.3] {
+        let closed = omega_crit_closed_form(&s, xi).unwrap();
+        let o = omega_crit_numeric(&s, xi, 1e4).unwrap();
+        assert!(
+            (o - closed).abs() <= 1e-9 * closed,
+            "xi {xi}: {o} vs {closed}"
+        );
+    }
+}
