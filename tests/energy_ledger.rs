@@ -243,6 +243,20 @@ fn ledger_term_by_term(fused: bool, by_velocity: bool) {
             (base(t + dt) - state.u[0]) / dt
         };
         let a_c = (ahead - vh[0]) / dt;
+        // The constrained DOF's integer-step velocity and acceleration, centred on the look-ahead
+        // (docs/explicit.md, "Constraints").
+        let v_c = 0.5 * (vh[0] + ahead);
+        assert!(
+            (state.v[0] - v_c).abs() <= 1e-12 * v_c.abs().max(1e-3),
+            "step {n}: velocity {} vs {v_c}",
+            state.v[0]
+        );
+        assert!(
+            (state.a[0] - a_c).abs() <= 1e-9 * a_c.abs().max(1e-2),
+            "step {n}: acceleration {} vs {a_c}",
+            state.a[0]
+        );
+        assert_eq!((state.v[3], state.a[3]), (0.0, 0.0), "step {n}: fixed DOF");
         let r = [
             MASS[0] * a_c - (fe[0] - fi[0] - fd[0] - fc[0]),
             -(fe[3] - fi[3] - fd[3] - fc[3]),
