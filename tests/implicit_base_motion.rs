@@ -317,3 +317,47 @@ fn a_ramp_as_a_function_steps_as_the_same_ramp_as_a_table() {
         );
     }
 }
+
+/// Two DOFs driven by two different motions (the two bases of this file, derivatives given): each
+/// prescribed DOF steps with its own motion's velocity and acceleration (the rates of one
+/// function are shared only between DOFs driven by that same function).
+#[test]
+fn two_motions_keep_their_own_rates() {
+    let m = common::dense(&[
+        &[M / 3.0, M / 6.0, 0.0],
+        &[M / 6.0, 2.0 * M / 3.0, M / 6.0],
+        &[0.0, M / 6.0, M / 3.0],
+    ]);
+    let k = common::dense(&[&[K, -K, 0.0], &[-K, 2.0 * K, -K], &[0.0, -K, K]]);
+    let mut model = LinearModel::new(&m, &k)
+        .unwrap()
+        .with_constraints(
+            Constraints::new()
+                .prescribe_displacement(0, motion(Base::Sine, true))
+                .prescribe_displacement(2, motion(Base::OneMinusCosine, true)),
+        )
+        .unwrap();
+    let mut state = State::at_rest(3, 0.0);
+    let mut it = AlphaIntegrator::new(
+        &mut model,
+        &mut state,
+        AlphaParams::average_acceleration(),
+        common::DenseLu::boxed(),
+        ImplicitOptions::default(),
+    )
+    .unwrap();
+    for n in 1..=50 {
+        it.step(&mut model, &mut state, 0.02).unwrap();
+        let t = state.t;
+        let sine = (A * W * (W * t).cos(), -A * W * W * (W * t).sin());
+        let one_minus_cos = (A * W * (W * t).sin(), A * W * W * (W * t).cos());
+        for (d, (v, a)) in [(0, sine), (2, one_minus_cos)] {
+            assert!(
+                (state.v[d] - v).abs() <= 1e-15 && (state.a[d] - a).abs() <= 1e-14,
+                "step {n}, DOF {d}: ({}, {}) vs ({v}, {a})",
+                state.v[d],
+                state.a[d]
+            );
+        }
+    }
+}
