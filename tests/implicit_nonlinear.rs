@@ -167,7 +167,8 @@ impl Model for CubicAsExtra {
 /// The cubic term as an extra force gives the oscillator's solution: against the SciPy reference
 /// (as `hardening_oscillator_matches_the_scipy_reference`, within the Richardson estimate of the
 /// runs' own step error at 0.01 and 0.005), and its work is booked under its name, each step's
-/// trapezoid `(u_{n+1} - u_n) (f_n + f_{n+1}) / 2` of `f = k3 u^3` (the ledger's rule, evaluated
+/// trapezoid `(u_{n+1} - u_n) (f_n + f_{n+1}) / 2` of `f = k3 u^3`, as is the damping work of
+/// `f = c v` (the ledger's rule, evaluated
 /// here from the states: a re-derivation, to rounding: a few operations a step on terms of the
 /// size of the work).
 #[test]
@@ -186,21 +187,28 @@ fn an_extra_force_enters_the_residual_and_the_ledger() {
             ImplicitOptions::default(),
         )
         .unwrap();
-        let k3 = model.0.k3;
+        let (k3, c) = (model.0.k3, model.0.c());
         let per_row = (0.1 / dt).round() as usize;
         let (mut work, mut scale, mut n) = (0.0f64, 0.0f64, 0usize);
+        let (mut damping, mut d_scale) = (0.0f64, 0.0f64);
         let mut u = Vec::new();
         for row in &reference[1..] {
             for _ in 0..per_row {
-                let u0 = state.u[0];
+                let (u0, v0) = (state.u[0], state.v[0]);
                 it.step(&mut model, &mut state, dt).unwrap();
                 let u1 = state.u[0];
                 work += 0.5 * (u1 - u0) * (k3 * u0.powi(3) + k3 * u1.powi(3));
+                // The damping work likewise, of the force `c v`.
+                damping += 0.5 * (u1 - u0) * (c * v0 + c * state.v[0]);
+                d_scale = d_scale.max(damping.abs());
                 scale = scale.max(work.abs());
                 n += 1;
                 let got = it.energy().extra_work[0];
                 let tol = n as f64 * 10.0 * f64::EPSILON * scale.max(f64::MIN_POSITIVE);
                 assert!((got - work).abs() <= tol, "step {n}: {got} vs {work}");
+                let got = it.energy().damping_work;
+                let tol = n as f64 * 10.0 * f64::EPSILON * d_scale.max(f64::MIN_POSITIVE);
+                assert!((got - damping).abs() <= tol, "step {n}: {got} vs {damping}");
             }
             assert!((state.t - row.0).abs() < 1e-9, "{} vs {}", state.t, row.0);
             u.push(state.u[0]);
