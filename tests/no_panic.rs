@@ -33,8 +33,8 @@ use stepgauge::linalg::{
 use stepgauge::model::{Constraints, Damping, LinearModel, Load, LoadTable, Model, TimeFunction};
 use stepgauge::params::{AlphaParams, Family};
 use stepgauge::reference::{
-    BarImpact, Duffing, Hardening, ReferenceProblem, SdofFree, SdofHalfSine, SdofHarmonic,
-    StiffSoft, TwoDofStep,
+    BarImpact, Duffing, ReferenceProblem, SdofFree, SdofHalfSine, SdofHarmonic, StiffSoft,
+    TwoDofStep,
 };
 use stepgauge::run::{Flow, Record, RecordOptions, RunOptions, StepControl, run};
 use stepgauge::spectral::{
@@ -748,7 +748,7 @@ proptest! {
             Box::new(StiffSoft { m1: f[0], m2: f[1], k_soft: f[2], k_stiff: f[3], u0: [f[4], f[5]], v0: [f[5], f[4]] }),
             Box::new(BarImpact { elements, length: f[0], modulus: f[1], density: f[2], v0: f[3] }),
             Box::new(TwoDofStep),
-            Box::new(Hardening::new()),
+            Box::new(stepgauge_cli::problems::hardening()),
         ];
         for p in &problems {
             let input = (p.name(), &f, t, elements);
@@ -779,7 +779,7 @@ proptest! {
             refused("Duffing::set_c", &f[1], &r);
         }
         guard("Duffing::acceleration", &(t, f[0], f[1]), || d.acceleration(t, f[0], f[1]));
-        guard("Hardening::response", &t, || Hardening::new().response(t));
+        guard("Hardening::response", &t, || stepgauge_cli::problems::hardening().response(t));
         let bar = BarImpact { elements, length: f[0], modulus: f[1], density: f[2], v0: f[3] };
         guard("BarImpact::displacement_at/velocity_at", &(bar, f[4], t),
             || (bar.displacement_at(f[4], t), bar.velocity_at(f[4], t), bar.wave_speed(), bar.element_length(), bar.period()));
@@ -924,6 +924,14 @@ proptest! {
         }
         let text = String::from_utf8_lossy(&bytes).to_string();
         let _ = guard("parse_initial", &(&text, n), || parse_initial(&text, "f", n).map(|_| ()));
+        let _ = guard("Hardening::from_table", &text, || stepgauge::reference::Hardening::from_table("f", &text).map(|_| ()));
+        // The committed table (ASCII) cut anywhere.
+        let table = stepgauge_cli::problems::HARDENING_TABLE;
+        let cut = &table[..table.len() * bytes.len() / 64];
+        let r = guard("Hardening::from_table (cut)", &cut.len(), || stepgauge::reference::Hardening::from_table("f", cut).map(|_| ()));
+        if cut.lines().filter(|l| !l.starts_with(['#', 't'])).count() < 2 {
+            refused("Hardening::from_table (cut)", &cut.len(), &r);
+        }
         // A record whose columns do not match its rows.
         let record = Record {
             dofs: (0..w).collect(),
@@ -987,7 +995,7 @@ proptest! {
 
     #[test]
     fn verification_helpers(x in num(), y in num(), z in num()) {
-        use stepgauge::verification::{Check, Kind, fixed, sci};
+        use stepgauge_cli::verification::{Check, Kind, fixed, sci};
         guard("sci/fixed", &x, || (sci(x), fixed(x)));
         let c = guard("Check::at_most", &(x, y), || Check::at_most("a.b", Kind::ClosedForm, "w", "s", "m", x, y, "s"));
         prop_assert!(!c.passed || (x.is_finite() && x <= y));

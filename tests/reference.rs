@@ -2,7 +2,7 @@
 //! order on the half-sine pulses (not smooth) for the central-difference method and the
 //! average-acceleration (trapezoidal) rule, and the struck bar against one-dimensional wave
 //! theory. The orders of every scheme on every smooth problem are verification checks
-//! (`stepgauge::verification`, kind `Convergence`, in `src/verification/convergence.rs`).
+//! (`stepgauge_cli::verification`, kind `Convergence`, in `src/verification/convergence.rs`).
 
 use stepgauge::State;
 use stepgauge::explicit::{
@@ -12,7 +12,7 @@ use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
 use stepgauge::linalg::SparseCholesky;
 use stepgauge::model::Model;
 use stepgauge::params::AlphaParams;
-use stepgauge::reference::{self, BarImpact, ReferenceProblem};
+use stepgauge::reference::{BarImpact, ReferenceProblem};
 use stepgauge::run::Integrator;
 
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -121,7 +121,7 @@ fn study(p: &dyn ReferenceProblem, scheme: Scheme) -> (Grid, Vec<f64>, Vec<f64>)
 /// within 0.1 of 2 (measured 1.98 to 2.04).
 #[test]
 fn half_sine_pulses_keep_second_order() {
-    for p in reference::all()
+    for p in stepgauge_cli::problems::all()
         .into_iter()
         .filter(|p| !p.is_smooth() && p.name().starts_with("sdof-half-sine"))
     {

@@ -1,4 +1,4 @@
-//! The verification suite (`stepgauge::verification`): every check passes, and
+//! The verification suite (`stepgauge_cli::verification`): every check passes, and
 //! `docs/validation.md` lists exactly the checks the suite makes (regenerate it with
 //! `cargo run --release -- verify --markdown docs/validation.md`).
 
@@ -6,7 +6,7 @@ use std::collections::HashSet;
 use std::path::Path;
 use std::process::Command;
 
-use stepgauge::verification::{self, Check, Kind};
+use stepgauge_cli::verification::{self, Check, Kind};
 
 /// The same cell text as the page writes.
 fn cell(text: &str) -> String {

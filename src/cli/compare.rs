@@ -9,8 +9,9 @@ use clap::Args;
 use plotters::prelude::*;
 use serde::Serialize;
 use stepgauge::implicit::NewtonOptions;
-use stepgauge::reference::{self, ReferenceProblem, study};
+use stepgauge::reference::ReferenceProblem;
 use stepgauge::spectral::Scheme;
+use stepgauge_cli::study;
 
 use super::Failure;
 use super::figure_style::{SeriesStyle, draw_series};
@@ -162,7 +163,7 @@ pub fn chosen_schemes(args: &CompareArgs) -> Result<Vec<Labelled>, Failure> {
 
 /// The named problems (all when none is named); an unknown name is a usage failure.
 pub fn chosen_problems(names: &[String]) -> Result<Vec<Box<dyn ReferenceProblem>>, Failure> {
-    let all = reference::all();
+    let all = stepgauge_cli::problems::all();
     if names.is_empty() {
         return Ok(all);
     }
@@ -175,7 +176,7 @@ pub fn chosen_problems(names: &[String]) -> Result<Vec<Box<dyn ReferenceProblem>
             )));
         }
     }
-    Ok(reference::all()
+    Ok(stepgauge_cli::problems::all()
         .into_iter()
         .filter(|p| names.iter().any(|n| n == p.name()))
         .collect())

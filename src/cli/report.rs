@@ -13,7 +13,6 @@ use stepgauge::State;
 use stepgauge::explicit::stable_step::{self, StableStepOptions};
 use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
 use stepgauge::model::LinearModel;
-use stepgauge::reference;
 use stepgauge::spectral::{CheckContext, Stability, check, log_space, metrics, sweep};
 
 use super::compare;
@@ -259,7 +258,7 @@ fn section_reference(body: &mut String, checks: &mut Vec<Check>) -> Result<(), F
         .filter(|(i, _)| [0, 4, 5].contains(i))
         .map(|(_, s)| s)
         .collect();
-    let problems = reference::all();
+    let problems = stepgauge_cli::problems::all();
     let studies = compare::compare(&problems, &chosen, None, REPORT_HALVINGS)?;
     let _ = writeln!(
         body,

@@ -1,10 +1,10 @@
-//! `stepgauge verify`: runs the verification suite ([`stepgauge::verification`]) and prints its
+//! `stepgauge verify`: runs the verification suite ([`stepgauge_cli::verification`]) and prints its
 //! checks, or writes them as `docs/validation.md`.
 
 use std::path::PathBuf;
 
 use clap::{Args, ValueEnum};
-use stepgauge::verification::{self, Check, Kind};
+use stepgauge_cli::verification::{self, Check, Kind};
 
 use super::Failure;
 use super::output::{FormatArgs, csv_field, print_stdout, write_atomically};

@@ -10,10 +10,10 @@
 //! table.
 
 use super::{Check, Kind};
-use crate::explicit::ForceVelocity;
-use crate::params::AlphaParams;
-use crate::reference::{ReferenceProblem, SdofFree, SdofHalfSine, SdofHarmonic, TwoDofStep};
-use crate::spectral::{
+use stepgauge::explicit::ForceVelocity;
+use stepgauge::params::AlphaParams;
+use stepgauge::reference::{ReferenceProblem, SdofFree, SdofHalfSine, SdofHarmonic, TwoDofStep};
+use stepgauge::spectral::{
     CheckContext, Scheme, Stability, check, log_space, metrics, order_of_accuracy, rho_inf,
     spectral_radius,
 };

@@ -47,11 +47,12 @@
 //! Fox-Goodwin is second order (its `order_of_accuracy` with damping is 2).
 
 use super::{Check, Kind};
-use crate::explicit::ForceVelocity;
-use crate::implicit::NewtonOptions;
-use crate::params::AlphaParams;
-use crate::reference::{self, ReferenceProblem, study};
-use crate::spectral::{self, Scheme};
+use crate::study;
+use stepgauge::explicit::ForceVelocity;
+use stepgauge::implicit::NewtonOptions;
+use stepgauge::params::AlphaParams;
+use stepgauge::reference::ReferenceProblem;
+use stepgauge::spectral::{self, Scheme};
 
 /// Coarse steps at most per problem (as `stepgauge compare`).
 pub(crate) const MAX_COARSE_STEPS: usize = 400;
@@ -85,11 +86,11 @@ const NEWMARK_SOURCE: &str = "Newmark 1959, A method of computation for structur
      second order for gamma = 1/2, first order otherwise)";
 
 /// The schemes of the study.
-fn cases() -> crate::Result<Vec<Case>> {
+fn cases() -> stepgauge::Result<Vec<Case>> {
     let ga_source = "Chung & Hulbert 1993, A time integration algorithm for structural dynamics \
          with improved numerical dissipation: the generalized-alpha method, J. Appl. Mech. 60 \
          (second order for gamma = 1/2 - alpha_m + alpha_f)";
-    let ga = |slug, label, rho| -> crate::Result<Case> {
+    let ga = |slug, label, rho| -> stepgauge::Result<Case> {
         Ok(Case {
             slug,
             label,
@@ -373,7 +374,7 @@ fn errors(
     grid: study::Grid,
     last: u32,
     limit: Option<f64>,
-) -> crate::Result<Vec<Option<f64>>> {
+) -> stepgauge::Result<Vec<Option<f64>>> {
     let newton = NewtonOptions {
         residual_tolerance: NEWTON_TOLERANCE,
         displacement_tolerance: NEWTON_TOLERANCE,
@@ -572,7 +573,7 @@ pub(crate) fn checks() -> Vec<Check> {
             )];
         }
     };
-    let problems = reference::smooth();
+    let problems = crate::problems::smooth();
     let mut out = Vec::new();
     for case in &cases {
         for p in &problems {
@@ -593,7 +594,7 @@ mod tests {
         let start = std::time::Instant::now();
         let mut timed = Vec::new();
         for case in &cases().unwrap() {
-            for p in reference::smooth() {
+            for p in crate::problems::smooth() {
                 let t = std::time::Instant::now();
                 let c = check_one(case, p.as_ref());
                 timed.push((t.elapsed().as_secs_f64(), c));
@@ -613,14 +614,14 @@ mod tests {
         }
         let failed: Vec<&Check> = timed.iter().map(|(_, c)| c).filter(|c| !c.passed).collect();
         assert!(failed.is_empty(), "{failed:#?}");
-        assert_eq!(timed.len(), 13 * reference::smooth().len());
+        assert_eq!(timed.len(), 13 * crate::problems::smooth().len());
     }
 
     /// A wrong theoretical order fails the check, and so does a disagreement with
     /// `spectral::order_of_accuracy`: Newmark with gamma = 0.6 claimed second order.
     #[test]
     fn a_wrong_theoretical_order_fails() {
-        let p = reference::SdofFree::standard_undamped();
+        let p = stepgauge::reference::SdofFree::standard_undamped();
         let case = Case {
             slug: "wrong",
             label: "Newmark beta = 0.3025, gamma = 0.6, claimed second order",

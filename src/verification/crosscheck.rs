@@ -3,16 +3,16 @@
 //! `tests/data/MANIFEST.md`).
 //!
 //! - **Reference solutions** (`cross-check.solution.*`): the closed-form
-//!   [`exact`](crate::reference::ReferenceProblem::exact) and
-//!   [`exact_velocity`](crate::reference::ReferenceProblem::exact_velocity) of every reference
+//!   [`exact`](stepgauge::reference::ReferenceProblem::exact) and
+//!   [`exact_velocity`](stepgauge::reference::ReferenceProblem::exact_velocity) of every reference
 //!   problem with a closed form against SciPy's integration of its equations of motion
 //!   (`scipy_reference_solutions.csv`). The bar's closed form is the continuum's, which the
 //!   discrete chain only approaches; for it, stepgauge's central difference on the chain model at two
 //!   fine steps is compared with SciPy's solution of the same semi-discrete chain, and the
 //!   measured order with 2.
 //! - **Amplification eigenvalues** (`cross-check.amplification.*`):
-//!   [`spectral::eigenvalues`](crate::spectral::eigenvalues) and
-//!   [`spectral_radius`](crate::spectral::spectral_radius) of each named scheme against NumPy's
+//!   [`spectral::eigenvalues`](stepgauge::spectral::eigenvalues) and
+//!   [`spectral_radius`](stepgauge::spectral::spectral_radius) of each named scheme against NumPy's
 //!   eigenvalues of the matrix built from the scheme's defining recurrences
 //!   (`scipy_amplification.csv`), and the named constructors' parameters against the published
 //!   formulas evaluated by the script.
@@ -26,10 +26,12 @@ use std::collections::BTreeMap;
 use nalgebra::Complex;
 
 use super::{Check, Kind, sci};
-use crate::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit};
-use crate::params::AlphaParams;
-use crate::reference::{self, BarImpact, ReferenceProblem};
-use crate::spectral::{self, Scheme};
+use stepgauge::explicit::{
+    CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
+};
+use stepgauge::params::AlphaParams;
+use stepgauge::reference::{BarImpact, ReferenceProblem};
+use stepgauge::spectral::{self, Scheme};
 
 /// SciPy's solutions of the reference problems.
 const SOLUTIONS: &str = include_str!("../../tests/data/scipy_reference_solutions.csv");
@@ -229,7 +231,7 @@ fn solution_checks(text: &str) -> Vec<Check> {
             )];
         }
     };
-    let problems = reference::all();
+    let problems = crate::problems::all();
     let mut out = Vec::new();
     for p in &problems {
         let name = p.name();
@@ -392,7 +394,7 @@ fn bar_run(rows: &[(f64, f64, f64)], per_output: usize) -> Result<Vec<f64>, Stri
     if umax == 0.0 {
         return Err("bar-impact: SciPy's displacement is zero throughout".to_string());
     }
-    let fail = |e: crate::Error| format!("bar-impact chain run: {e}");
+    let fail = |e: stepgauge::Error| format!("bar-impact chain run: {e}");
     let mut model = p.model().map_err(fail)?;
     let mut state = p.initial_state();
     let options = CentralDifferenceOptions {
@@ -433,7 +435,7 @@ struct AmpRow {
 
 /// The sets of the file, each with stepgauge's scheme made by its named constructor and the
 /// source of its formulas.
-fn named_scheme(set: &str) -> Option<(crate::Result<Scheme>, &'static str)> {
+fn named_scheme(set: &str) -> Option<(stepgauge::Result<Scheme>, &'static str)> {
     const NEWMARK: &str = "Newmark 1959, J. Eng. Mech. Div. ASCE 85:67-94";
     const HHT: &str = "Hilber, Hughes & Taylor 1977, Earthquake Eng. Struct. Dyn. 5:283-292";
     const WBZ: &str = "Wood, Bossak & Zienkiewicz 1980, Int. J. Numer. Meth. Eng. 15:1562-1566; \
@@ -442,7 +444,7 @@ fn named_scheme(set: &str) -> Option<(crate::Result<Scheme>, &'static str)> {
     const CD: &str = "central difference in half-step form, stepping equations of \
                       docs/explicit.md: stepgauge's own documentation, so a re-derivation in \
                       the project, not an outside reference";
-    let alpha = |p: crate::Result<AlphaParams>| p.map(Scheme::Alpha);
+    let alpha = |p: stepgauge::Result<AlphaParams>| p.map(Scheme::Alpha);
     Some(match set {
         "average-acceleration" => (
             Ok(Scheme::Alpha(AlphaParams::average_acceleration())),
@@ -805,11 +807,11 @@ mod tests {
         assert_eq!(ids.len(), checks.len(), "duplicate ids");
     }
 
-    /// Every problem of `reference::all()` but the hardening one (its own SciPy table) has rows.
+    /// Every problem of `crate::problems::all()` but the hardening one (its own SciPy table) has rows.
     #[test]
     fn the_file_covers_every_problem_with_a_closed_form() {
         let groups = parse_solutions(SOLUTIONS).unwrap();
-        for p in reference::all() {
+        for p in crate::problems::all() {
             let found = groups.iter().any(|(n, _)| n == p.name());
             assert_eq!(found, p.name() != "hardening", "{}", p.name());
         }

@@ -13,7 +13,7 @@
 //! that does not pass, and on a `docs/validation.md` that lists other checks than [`run`] makes.
 //!
 //! ```
-//! let checks = stepgauge::verification::run_kind(stepgauge::verification::Kind::ClosedForm);
+//! let checks = stepgauge_cli::verification::run_kind(stepgauge_cli::verification::Kind::ClosedForm);
 //! assert!(checks.iter().all(|c| c.passed), "{checks:#?}");
 //! ```
 

@@ -28,14 +28,14 @@
 use std::f64::consts::PI;
 
 use super::{Check, Kind};
-use crate::error::Result;
-use crate::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity};
-use crate::implicit::{AlphaIntegrator, ImplicitOptions};
-use crate::linalg::SparseCholesky;
-use crate::model::{LinearModel, Load, TimeFunction};
-use crate::params::AlphaParams;
-use crate::reference::{ReferenceProblem, SdofHalfSine, TwoDofStep};
-use crate::state::State;
+use stepgauge::error::Result;
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, ForceVelocity};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
+use stepgauge::linalg::SparseCholesky;
+use stepgauge::model::{LinearModel, Load, TimeFunction};
+use stepgauge::params::AlphaParams;
+use stepgauge::reference::{ReferenceProblem, SdofHalfSine, TwoDofStep};
+use stepgauge::state::State;
 
 const KIND: Kind = Kind::Published;
 

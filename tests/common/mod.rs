@@ -122,7 +122,7 @@ pub use stepgauge::reference::Duffing;
 /// The committed reference solution: rows of `(t, u, v)` (the table compiled into
 /// `stepgauge::reference::Hardening`).
 pub fn duffing_reference() -> Vec<(f64, f64, f64)> {
-    stepgauge::reference::Hardening::new()
+    stepgauge_cli::problems::hardening()
         .rows()
         .iter()
         .map(|r| (r[0], r[1], r[2]))

@@ -42,13 +42,14 @@
 //! | two DOFs under a step load | [`TwoDofStep`] | modal superposition |
 //! | stiff and soft springs | [`StiffSoft`] | modal superposition |
 //! | bar struck at constant speed | [`BarImpact`] | one-dimensional wave theory (continuum) |
-//! | hardening (Duffing) oscillator | [`Hardening`] | SciPy DOP853 table, interpolated |
+//! | hardening (Duffing) oscillator | [`Hardening`] | SciPy DOP853 table (read by the caller), interpolated |
 //!
 //! [`ReferenceProblem::is_smooth`] is false for the pulse and the bar: a kink in the load or a
 //! travelling front caps the convergence order a scheme can show on them.
 //!
-//! [`study`] runs a scheme on a problem and measures its error and order (the core of
-//! `stepgauge compare` and of the convergence checks of [`verification`](crate::verification)).
+//! The convergence studies on these problems (a scheme's error and order) and the verification
+//! suite live in the repository's command-line package (`stepgauge_cli::study`,
+//! `stepgauge_cli::verification`), beside `stepgauge compare`, which is built on them.
 //!
 //! # Single-DOF solutions
 //!
@@ -132,7 +133,6 @@ mod bar;
 mod hardening;
 mod modal;
 mod sdof;
-pub mod study;
 
 pub use bar::BarImpact;
 pub use hardening::{Duffing, Hardening};
@@ -209,7 +209,10 @@ pub trait ReferenceProblem: fmt::Debug + Send + Sync {
     fn natural_frequencies(&self) -> Vec<f64>;
 }
 
-/// The standard set, with our own parameter values (documented on each constructor used here).
+/// The standard set of problems whose exact solution the library computes, with our own parameter
+/// values (documented on each constructor used here). The [`Hardening`] oscillator is not in it:
+/// its reference is a table that the caller reads ([`Hardening::from_table`]); the command line's
+/// set (`stepgauge_cli::problems::all` in the repository) adds it.
 ///
 /// ```
 /// let names: Vec<&str> = stepgauge::reference::all().iter().map(|p| p.name()).collect();
@@ -226,7 +229,6 @@ pub fn all() -> Vec<Box<dyn ReferenceProblem>> {
         Box::new(TwoDofStep),
         Box::new(StiffSoft::standard()),
         Box::new(BarImpact::standard()),
-        Box::new(Hardening::new()),
     ]
 }
 

@@ -5,7 +5,8 @@
 //!
 //! ```
 //! use stepgauge::explicit::ForceVelocity;
-//! use stepgauge::reference::{self, ReferenceProblem, study};
+//! use stepgauge::reference::{self, ReferenceProblem};
+//! use stepgauge_cli::study;
 //! use stepgauge::spectral::Scheme;
 //!
 //! # fn main() -> stepgauge::Result<()> {
@@ -28,15 +29,15 @@
 //! # }
 //! ```
 
-use super::ReferenceProblem;
-use crate::error::Result;
-use crate::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
-use crate::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions};
-use crate::linalg::SparseCholesky;
-use crate::model::Model;
-use crate::run::Integrator;
-use crate::spectral::{CheckContext, Scheme, Stability, check};
-use crate::state::State;
+use stepgauge::error::Result;
+use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
+use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions};
+use stepgauge::linalg::SparseCholesky;
+use stepgauge::model::Model;
+use stepgauge::reference::ReferenceProblem;
+use stepgauge::run::Integrator;
+use stepgauge::spectral::{CheckContext, Scheme, Stability, check};
+use stepgauge::state::State;
 
 /// The default coarse step of a problem: `T_min / 20`, with `T_min` its shortest natural period,
 /// or 0.02 s when no frequency is known (the hardening oscillator: 0.02 divides its table's
@@ -209,7 +210,7 @@ fn walk<I: Integrator>(
 /// ```
 /// let dts = [0.1, 0.05, 0.025];
 /// let errors = dts.map(|h: f64| 3.0 * h * h);
-/// let order = stepgauge::reference::study::fitted_order(&dts, &errors).unwrap();
+/// let order = stepgauge_cli::study::fitted_order(&dts, &errors).unwrap();
 /// assert!((order - 2.0).abs() < 1e-12);
 /// ```
 pub fn fitted_order(dts: &[f64], errors: &[f64]) -> Option<f64> {
@@ -235,9 +236,9 @@ pub fn fitted_order(dts: &[f64], errors: &[f64]) -> Option<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::explicit::ForceVelocity;
-    use crate::params::AlphaParams;
-    use crate::reference::{Hardening, SdofFree, StiffSoft};
+    use stepgauge::explicit::ForceVelocity;
+    use stepgauge::params::AlphaParams;
+    use stepgauge::reference::{SdofFree, StiffSoft};
 
     #[test]
     fn fitted_order_recovers_a_power_law_and_rejects_bad_data() {
@@ -274,7 +275,7 @@ mod tests {
     /// none within the first 0.09 s, one history point per stride.
     #[test]
     fn run_scheme_checks_only_tabulated_times() {
-        let p = Hardening::new();
+        let p = crate::problems::hardening();
         let aa = Scheme::Alpha(AlphaParams::average_acceleration());
         let short = run_scheme(&p, &aa, 0.01, 9, 1, &NewtonOptions::default()).unwrap();
         assert_eq!(short.max_error, None);

@@ -8,10 +8,6 @@ use crate::linalg::CsrMatrix;
 use crate::model::{Damping, Model, check_buffers};
 use crate::state::State;
 
-/// The committed reference table (`tests/data/duffing_reference.csv`, written by
-/// `tests/data/duffing_reference.py`).
-const TABLE: &str = include_str!("../../tests/data/duffing_reference.csv");
-
 /// A hardening oscillator `m u'' + c u' + k u + k3 u^3 = f0 sin(w t)`: one DOF, a cubic spring,
 /// linear viscous damping (as a [`Damping::Force`] with its constant [damping
 /// matrix](Model::damping_matrix)) and the tangent `k + 3 k3 u^2` for implicit schemes.
@@ -181,9 +177,11 @@ impl Model for Duffing {
 /// The hardening oscillator [`Duffing::reference`] released from `u0 = 0.5`, `v0 = 0`, against a
 /// tabulated reference: SciPy's DOP853 (an eighth-order Runge-Kutta method) at `rtol = 1e-13`,
 /// `atol = 1e-15`, cross-checked by Radau IIA (agreement `3.9e-13`), every 0.1 s up to 10 s
-/// (`tests/data/duffing_reference.py`; the output `tests/data/duffing_reference.csv` is compiled
-/// in). The parameters and the initial state are read from the table's header, so the model always
-/// matches its reference.
+/// (`tests/data/duffing_reference.py` in the repository; its output,
+/// `tests/data/duffing_reference.csv`, is the table that [`from_table`](Hardening::from_table)
+/// reads). The library does not carry the table: the caller reads it (the command line and the
+/// verification suite compile it into their own crate). The parameters and the initial state are
+/// read from the table's header, so the model always matches its reference.
 ///
 /// # Between the rows
 ///
@@ -217,19 +215,22 @@ impl fmt::Debug for Hardening {
     }
 }
 
-impl Default for Hardening {
-    fn default() -> Self {
-        Self::new()
-    }
-}
-
 impl Hardening {
-    /// The problem with its compiled-in table.
+    /// The problem from the text of its reference table (the contents of
+    /// `tests/data/duffing_reference.csv`): comment lines (`#`), one of which holds the parameters
+    /// as `key=value` (`m c k k3 F0 w u0 v0`), a header `t,u,v`, then rows at increasing times.
+    /// `name` names the table in errors.
     ///
-    /// # Panics
-    /// Never for the committed table (a unit test parses it); the table is part of the source.
-    pub fn new() -> Self {
-        parse(TABLE).expect("the committed reference table parses")
+    /// # Errors
+    /// [`Error::Csv`](crate::Error::Csv) with the 1-based line of the first problem: a row that is
+    /// not three numbers, a parameter missing or invalid, fewer than two rows, or times that do
+    /// not increase.
+    pub fn from_table(name: &str, text: &str) -> Result<Self> {
+        parse(text).map_err(|(line, problem)| crate::Error::Csv {
+            file: name.to_string(),
+            line,
+            problem,
+        })
     }
 
     /// The table rows `[t, u, v]`.
@@ -275,8 +276,9 @@ impl Hardening {
 }
 
 /// Parses the reference table: comment lines (`#`), one of which holds `key=value` parameters,
-/// a header `t,u,v`, then rows.
-fn parse(text: &str) -> std::result::Result<Hardening, String> {
+/// a header `t,u,v`, then rows. The error is the 1-based line (one past the end for a problem of
+/// the whole table) and what is wrong.
+fn parse(text: &str) -> std::result::Result<Hardening, (usize, String)> {
     let mut params = std::collections::HashMap::new();
     let mut rows = Vec::new();
     for (n, line) in text.lines().enumerate() {
@@ -296,18 +298,21 @@ fn parse(text: &str) -> std::result::Result<Hardening, String> {
                 .split(',')
                 .map(|x| x.trim().parse::<f64>())
                 .collect::<std::result::Result<_, _>>()
-                .map_err(|e| format!("line {}: {e}", n + 1))?;
+                .map_err(|e| (n + 1, format!("{e}; expected three numbers t,u,v")))?;
             if f.len() != 3 {
-                return Err(format!("line {}: expected t,u,v", n + 1));
+                return Err((n + 1, "expected three numbers t,u,v".into()));
             }
             rows.push([f[0], f[1], f[2]]);
         }
     }
+    let end = text.lines().count() + 1;
     let get = |key: &str| {
-        params
-            .get(key)
-            .copied()
-            .ok_or_else(|| format!("parameter {key} missing"))
+        params.get(key).copied().ok_or_else(|| {
+            (
+                end,
+                format!("parameter {key}=<value> missing from the comments"),
+            )
+        })
     };
     let model = Duffing::new(
         get("m")?,
@@ -317,9 +322,12 @@ fn parse(text: &str) -> std::result::Result<Hardening, String> {
         get("F0")?,
         get("w")?,
     )
-    .map_err(|e| e.to_string())?;
+    .map_err(|e| (end, e.to_string()))?;
     if rows.len() < 2 || rows.windows(2).any(|w| w[1][0] <= w[0][0]) {
-        return Err("the table needs two or more rows at increasing times".into());
+        return Err((
+            end,
+            "the table needs two or more rows at increasing times".into(),
+        ));
     }
     Ok(Hardening {
         model,
@@ -381,11 +389,21 @@ impl ReferenceProblem for Hardening {
 mod tests {
     use super::*;
 
+    /// The committed table, read as a user would.
+    fn committed() -> Hardening {
+        let path = concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/../../tests/data/duffing_reference.csv"
+        );
+        let text = std::fs::read_to_string(path).expect("the committed table is in the repository");
+        Hardening::from_table(path, &text).expect("the committed table parses")
+    }
+
     /// The committed table parses into 101 rows every 0.1 s from the initial state, with the
     /// parameters of `Duffing::reference`.
     #[test]
     fn the_table_parses_with_the_reference_parameters() {
-        let p = Hardening::new();
+        let p = committed();
         assert_eq!(p.rows().len(), 101);
         assert_eq!(p.rows()[0], [0.0, 0.5, 0.0]);
         assert_eq!(p.t_end(), 10.0);
@@ -396,6 +414,8 @@ mod tests {
             (r.m, r.c(), r.k, r.k3, r.f0, r.w)
         );
         assert!(parse("# m=1\nt,u,v\n0,1,2\n").is_err());
+        let e = Hardening::from_table("x.csv", "# m=1\nt,u,v\n0,1,z\n").unwrap_err();
+        assert!(e.to_string().starts_with("x.csv:3: "), "{e}");
         assert!(parse("# m=1 c=0 k=1 k3=0 F0=0 W=1 u0=0 v0=0\nt,u,v\n0,1\n").is_err());
     }
 
@@ -405,7 +425,7 @@ mod tests {
     /// DOP853); the velocity is within 1e-5.
     #[test]
     fn interpolation_is_exact_at_rows_and_accurate_between() {
-        let p = Hardening::new();
+        let p = committed();
         for r in p.rows() {
             assert_eq!(p.exact(r[0]), r[1]);
             assert!((p.exact_velocity(r[0]) - r[2]).abs() < 1e-14);

@@ -268,7 +268,7 @@ pub(crate) fn deflated_roots(c2: f64, c1: f64, c0: f64, r: f64) -> Option<[Compl
 /// and a complex pair sharing a real part to round-off, such as generalised-alpha's with
 /// `rho_inf = 0` at `Omega = 1`, `xi = 1`: `1/2` and `1/2 +/- i/(2 sqrt 3)`), and the result does
 /// not depend on how the ties were broken. Used to compare two sets of eigenvalues.
-pub(crate) fn pairing_distance(a: &[Complex<f64>; 3], b: &[Complex<f64>; 3]) -> f64 {
+pub fn pairing_distance(a: &[Complex<f64>; 3], b: &[Complex<f64>; 3]) -> f64 {
     const PERMUTATIONS: [[usize; 3]; 6] = [
         [0, 1, 2],
         [0, 2, 1],

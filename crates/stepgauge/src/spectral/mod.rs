@@ -26,7 +26,7 @@ pub use metrics::{
     spectral_radius,
 };
 pub use prepared::{Prepared, RootPath};
-pub(crate) use roots::pairing_distance;
+pub use roots::pairing_distance;
 pub use roots::{CONDITION_LIMIT, eigenvalues_fast};
 pub use scheme::{Parameters, Scheme, cd_amplification};
 pub use stability::{Boundary, BoundaryKind, StabilityRegion, StepStability};
