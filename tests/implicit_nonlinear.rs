@@ -571,8 +571,7 @@ fn assert_converged(d: &mut Duffing, state: &State, it: &AlphaIntegrator) {
 }
 
 /// A model whose internal force is NaN beyond a time (a material law that breaks down without
-/// reporting it): Newton's residual is not finite there at any sub-step, so the step fails after
-/// its cut-backs with a Newton error, and the state is the last converged sub-step's.
+/// reporting it).
 struct GoesNan(Duffing, f64);
 
 impl Model for GoesNan {
@@ -609,11 +608,11 @@ impl Model for GoesNan {
     }
 }
 
-/// Newton failure at the smallest step after some sub-steps converged: the error is Newton's,
-/// reports the smallest step (`dt / 2^max_cutbacks`) and the time of the state kept, which is
-/// the last converged sub-step (before the breakdown time, after the step's start).
+/// A non-finite internal force is reported at once, as the model's failure at a DOF, not after
+/// the cut-backs (they cannot make a model's NaN go away; before, it cost every cut-back and the
+/// error named no DOF). The state is the last accepted one.
 #[test]
-fn newton_failure_at_the_smallest_step_returns_the_last_converged_state() {
+fn a_non_finite_force_fails_the_step_at_once_with_its_dof() {
     let mut model = GoesNan(Duffing::reference(), 0.33);
     let mut state = State::new(0.0, vec![0.5], vec![0.0]).unwrap();
     let newton = NewtonOptions {
@@ -635,24 +634,19 @@ fn newton_failure_at_the_smallest_step_returns_the_last_converged_state() {
     it.step(&mut model, &mut state, 0.2).unwrap();
     let e = it.step(&mut model, &mut state, 0.2).unwrap_err();
     match e {
-        Error::NewtonDiverged {
-            t, dt, cutbacks, ..
-        }
-        | Error::NewtonNotConverged {
-            t, dt, cutbacks, ..
+        Error::NonFiniteState {
+            quantity,
+            dof,
+            t,
+            step,
         } => {
-            assert_eq!(cutbacks, 4);
-            // dt / 2^4, up to the rounding of a remainder `t_end - t` taken as a sub-step.
-            assert!((dt - 0.2 / 16.0).abs() < 1e-12, "{dt}");
-            assert_eq!(
-                t.to_bits(),
-                state.t.to_bits(),
-                "the error names the kept state's time"
-            );
+            assert_eq!((quantity, dof, step), ("internal force", 0, 2));
+            assert!((t - 0.4).abs() < 1e-15, "{t}");
         }
-        other => panic!("expected a Newton failure, got {other}"),
+        other => panic!("expected a non-finite force, got {other}"),
     }
-    assert!(state.t > 0.2 && state.t <= 0.33, "t = {}", state.t);
+    assert_eq!(it.last_report().cutbacks, 0);
+    assert_eq!(state.t, 0.2);
     assert_converged(&mut model.0, &state, &it);
 }
 

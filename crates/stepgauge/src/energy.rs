@@ -28,10 +28,34 @@
 //! (see `docs/implicit.md`).
 //!
 //! where `W_int` is the work done against the internal forces since the start, so the internal
-//! (stored plus dissipated) energy is `E_int = E_int,0 + W_int`. The relative error divides by the
-//! largest magnitude among the terms. For a stable linear elastic run the error stays of the order
-//! `(omega_max dt)^2 / 4` of the energy in the highest modes and does not drift; an unstable run
-//! makes it grow without bound.
+//! (stored plus dissipated) energy is `E_int = E_int,0 + W_int`. For a stable linear elastic run the
+//! error stays of the order `(omega_max dt)^2 / 4` of the energy in the highest modes and does not
+//! drift; an unstable run makes it grow without bound.
+//!
+//! # The relative error's reference
+//!
+//! The relative error divides by [`reference`](EnergyLedger::reference): the largest value seen so
+//! far in the run of (a) the largest magnitude among the terms and (b) the energy put in plus the
+//! work in flight. (b) matters at the start. The central-difference scheme's kinetic energy at
+//! step `n` uses `v_n = v_{n-1/2} + dt/2 a_n`, half a step ahead of the displacement on which the
+//! works are booked. For that scheme (free DOFs) the error is exactly
+//!
+//! ```text
+//! error_n = dt^2/8 (a_n . M a_n - a_0 . M a_0)  + rounding
+//! ```
+//!
+//! (re-derived in this project, not an outside reference: with `v_n = (v_{n-1/2} + v_{n+1/2}) / 2`,
+//! `T_n - 1/2 v_{n-1/2} . M v_{n+1/2} = dt^2/8 a_n . M a_n`, and the trapezoid works telescope to
+//! `1/2 v_{n-1/2} . M v_{n+1/2} - 1/2 v_{-1/2} . M v_{1/2}`). From rest under a load that starts
+//! at zero (a ramp), step 1 has kinetic energy `dt^2/8 a_1 . M a_1` and no booked work yet, so a
+//! reference made of the terms alone is the error itself: a relative error of 1 for a healthy
+//! run. The work in flight is the half of the next trapezoid that the forces of step `n` already
+//! determine, `dt/2 (v_n + dt/2 a_n) . f_n` for the external forces (and the reactions' power at
+//! the constrained DOFs likewise); with it the first step of a ramp from rest reads 1/4 (the
+//! in-flight work is `dt^2/2 a_1 . M a_1` when the ramp's force dominates) and later steps
+//! `O((omega dt)^2)`.
+//! Keeping the largest value so far means that a run whose energy decays (damping) is still judged
+//! against the energy it had.
 
 use serde::{Deserialize, Serialize};
 
@@ -65,6 +89,17 @@ pub struct EnergyLedger {
     pub energy_in: f64,
     /// Scheme-internal bookkeeping of the half-finished step (see the module documentation).
     pub(crate) pending: Pending,
+    /// The largest reference seen so far (see the module documentation, "The relative error's
+    /// reference"). Absent from checkpoints written before it existed: read as 0, and the
+    /// reference then restarts from the resumed ledger's terms.
+    #[serde(default)]
+    pub(crate) reference_peak: f64,
+    /// The largest force norm seen so far in the run by the implicit scheme's Newton iterations
+    /// (the floor of their residual reference, see
+    /// [`NewtonOptions`](crate::implicit::NewtonOptions)); kept here so that a resumed run judges
+    /// convergence as the uninterrupted one. Read as 0 from older checkpoints.
+    #[serde(default)]
+    pub(crate) force_peak: f64,
 }
 
 /// Per-force scalars from the end of the last step, needed to finish the next trapezoid.
@@ -104,6 +139,8 @@ impl EnergyLedger {
             extra_names,
             extra_work: vec![0.0; k],
             energy_in: 0.0,
+            reference_peak: 0.0,
+            force_peak: 0.0,
             pending: Pending {
                 extra: vec![[0.0; 2]; k],
                 reactions: vec![0.0; constraints],
@@ -125,6 +162,8 @@ impl EnergyLedger {
         self.numerical_dissipation = other.numerical_dissipation;
         self.extra_work.copy_from_slice(&other.extra_work);
         self.energy_in = other.energy_in;
+        self.reference_peak = other.reference_peak;
+        self.force_peak = other.force_peak;
         self.pending.internal = other.pending.internal;
         self.pending.external = other.pending.external;
         self.pending.damping = other.pending.damping;
@@ -186,9 +225,27 @@ impl EnergyLedger {
         s
     }
 
-    /// `|balance_error| / scale`, or 0 when every term is zero.
+    /// Records the end of an accepted or trial step: the reference becomes the largest of its
+    /// value so far, [`scale`](Self::scale) and `energy_in + in_flight` (the work in flight, see
+    /// the module documentation; 0 for schemes that book each step's work in full).
+    pub(crate) fn update_reference(&mut self, in_flight: f64) {
+        let candidate = self.scale().max(self.energy_in + in_flight.abs());
+        // NaN never lowers the peak; a non-finite ledger is reported by the schemes.
+        if candidate > self.reference_peak {
+            self.reference_peak = candidate;
+        }
+    }
+
+    /// The reference of the relative balance error: the largest seen so far in the run of the
+    /// terms' largest magnitude and the energy put in plus the work in flight, and at least the
+    /// current [`scale`](Self::scale) (see the module documentation).
+    pub fn reference(&self) -> f64 {
+        self.reference_peak.max(self.scale())
+    }
+
+    /// `|balance_error| / reference`, or 0 when the reference is zero (nothing has happened).
     pub fn relative_balance_error(&self) -> f64 {
-        let s = self.scale();
+        let s = self.reference();
         if s > 0.0 {
             self.balance_error().abs() / s
         } else {
@@ -215,5 +272,19 @@ mod tests {
         assert_eq!(l.extra("contact"), None);
         l.kinetic = 5.0;
         assert_eq!(l.relative_balance_error(), 0.1);
+        // The reference keeps its largest value: the same error after the energy has gone down
+        // is judged against the energy the run had.
+        l.update_reference(0.0);
+        assert_eq!(l.reference(), 10.0);
+        l.kinetic = 1.0;
+        l.initial_kinetic = 2.0; // the scale of the terms falls to 5 (internal work)
+        assert_eq!(l.balance_error(), 1.0 + 5.0 + 1.5 + 0.5 - 1.0 - 2.0);
+        assert_eq!(l.scale(), 5.0);
+        assert_eq!(l.reference(), 10.0);
+        assert_eq!(l.relative_balance_error(), 0.5);
+        // Work in flight counts with the energy put in.
+        l.energy_in = 3.0;
+        l.update_reference(-9.5);
+        assert_eq!(l.reference(), 12.5);
     }
 }

@@ -183,7 +183,9 @@ pub enum Error {
         t: f64,
         /// Kinetic energy after the rejected step.
         kinetic: f64,
-        /// Energy input so far (initial energy plus absolute work of external and constraint forces).
+        /// Energy input so far (initial energy plus absolute work of external and constraint
+        /// forces; for the explicit scheme also the work in flight, see
+        /// [`EnergyLedger::reference`](crate::energy::EnergyLedger::reference)).
         energy_in: f64,
         /// The growth factor that was exceeded.
         limit: f64,
@@ -220,9 +222,11 @@ pub enum Error {
     /// Newton's iterations did not reach the tolerances within the iteration limit, even at the
     /// smallest step the cut-back allows.
     #[error(
-        "Newton iterations did not converge at t = {t} with step {dt} after {cutbacks} cut-backs \
-         ({iterations} iterations, relative residual {residual}); the state of t = {t} is kept. \
-         Reduce the step, raise the iteration limit or the cut-back count, or loosen the tolerances"
+        "Newton iterations did not converge at t = {t} with step {dt} after {cutbacks} cut-backs: \
+         after {iterations} iterations the {criterion} criterion still failed (relative residuals \
+         of the last attempt: {}; the largest residual is at DOF {dof}); the state of t = {t} is \
+         kept. {}",
+        crate::implicit::format_history(history), criterion.advice()
     )]
     NewtonNotConverged {
         /// Time of the last converged state (the state kept).
@@ -235,13 +239,23 @@ pub enum Error {
         residual: f64,
         /// Step halvings tried.
         cutbacks: u32,
+        /// The first criterion that the last iterate did not meet.
+        criterion: crate::implicit::Criterion,
+        /// The relative residuals of the last attempt, one per evaluation (the predictor first;
+        /// at most the first 64).
+        history: Vec<f64>,
+        /// The free DOF (0-based) with the largest residual at the last iterate.
+        dof: usize,
     },
     /// Newton's iterations diverged (the residual grew without bound or became non-finite) even at
     /// the smallest step the cut-back allows.
     #[error(
         "Newton iterations diverged at t = {t} with step {dt} after {cutbacks} cut-backs \
-         ({iterations} iterations, relative residual {residual}); the state of t = {t} is kept. \
-         Check the tangent stiffness, reduce the step or enable the line search"
+         ({iterations} iterations, relative residual {residual}, largest at DOF {dof}; relative \
+         residuals of the last attempt: {}); the state of t = {t} is kept. Check the tangent \
+         stiffness against the internal force (a finite-difference check), enable the line \
+         search, or reduce the step if the model's response changes abruptly within one",
+        crate::implicit::format_history(history)
     )]
     NewtonDiverged {
         /// Time of the last converged state (the state kept).
@@ -254,6 +268,10 @@ pub enum Error {
         residual: f64,
         /// Step halvings tried.
         cutbacks: u32,
+        /// The relative residuals of the last attempt (at most the first 64).
+        history: Vec<f64>,
+        /// The free DOF (0-based) with the largest residual at the last iterate.
+        dof: usize,
     },
     /// The operation needs a non-empty model.
     #[error("the model has no DOFs")]

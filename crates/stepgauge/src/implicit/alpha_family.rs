@@ -3,7 +3,7 @@
 use std::fmt;
 use std::sync::Arc;
 
-use super::newton::{NewtonOptions, NewtonReport, NewtonVariant};
+use super::newton::{Criterion, NewtonOptions, NewtonReport, NewtonVariant};
 use crate::energy::EnergyLedger;
 use crate::error::{Error, ModelError, Result};
 use crate::linalg::{
@@ -250,6 +250,10 @@ pub struct AlphaIntegrator {
     ledger: EnergyLedger,
     trial: EnergyLedger,
     report: NewtonReport,
+    /// The free DOF with the largest residual at the last evaluation.
+    worst_dof: usize,
+    /// The largest force norm of the last evaluation (before the run's floor).
+    f_step: f64,
     /// New highs of the kinetic energy while above the growth limit, and the current high.
     over_limit: (u32, f64),
 }
@@ -527,6 +531,8 @@ impl AlphaIntegrator {
                 ..NewtonReport::default()
             },
             over_limit: (0, 0.0),
+            worst_dof: 0,
+            f_step: 0.0,
         })
     }
 
@@ -675,40 +681,58 @@ impl AlphaIntegrator {
                     }
                 }
                 Attempt::Failed(e) => {
-                    let recoverable = !matches!(
+                    // A cut-back cannot help an instability, a wrong size or parameter, or a
+                    // non-finite force (reported at once with its DOF).
+                    let non_finite_force = matches!(
                         e,
-                        Error::Unstable { .. }
-                            | Error::DimensionMismatch { .. }
-                            | Error::InvalidParameter { .. }
+                        Error::NonFiniteState { quantity, .. } if quantity.ends_with("force")
                     );
+                    let recoverable = !non_finite_force
+                        && !matches!(
+                            e,
+                            Error::Unstable { .. }
+                                | Error::DimensionMismatch { .. }
+                                | Error::InvalidParameter { .. }
+                        );
                     if recoverable && !self.linear && self.report.cutbacks < nopt.max_cutbacks {
                         self.report.cutbacks += 1;
                         h *= 0.5;
                         easy = 0;
                         continue;
                     }
+                    let cutbacks = self.report.cutbacks;
                     return Err(match e {
                         Error::NewtonNotConverged {
                             iterations,
                             residual,
+                            criterion,
+                            history,
+                            dof,
                             ..
                         } => Error::NewtonNotConverged {
                             t: state.t,
                             dt: h,
                             iterations,
                             residual,
-                            cutbacks: self.report.cutbacks,
+                            cutbacks,
+                            criterion,
+                            history,
+                            dof,
                         },
                         Error::NewtonDiverged {
                             iterations,
                             residual,
+                            history,
+                            dof,
                             ..
                         } => Error::NewtonDiverged {
                             t: state.t,
                             dt: h,
                             iterations,
                             residual,
-                            cutbacks: self.report.cutbacks,
+                            cutbacks,
+                            history,
+                            dof,
                         },
                         other => other,
                     });
@@ -797,23 +821,40 @@ impl AlphaIntegrator {
                 self.report.residuals.push(rel);
             }
             if !rel.is_finite() {
-                return Err(Error::NewtonDiverged {
-                    t: t0,
-                    dt: h,
-                    iterations,
-                    residual: rel,
-                    cutbacks: 0,
-                });
+                return Err(self.diverged(t0, h, iterations, rel));
             }
-            let converged = if iterations == 0 {
-                r_norm == 0.0 || rel <= 1e-14
+            let (converged, failing) = if iterations == 0 {
+                (r_norm == 0.0 || rel <= 1e-14, Criterion::Residual)
             } else if self.linear {
-                iterations > usize::from(self.options.refine_linear)
+                (
+                    iterations > usize::from(self.options.refine_linear),
+                    Criterion::Residual,
+                )
             } else {
+                // The floors of the criteria (see NewtonOptions).
                 let step_norm = self.diff_norm(state);
-                rel <= nopt.residual_tolerance
-                    && du_norm <= nopt.displacement_tolerance * step_norm.max(f64::MIN_POSITIVE)
-                    && last_energy <= nopt.energy_tolerance * e_first
+                let u_norm = self.sum_dot(&self.u1, &self.u1).sqrt();
+                let u_ref = step_norm.max(u_norm).max(f64::MIN_POSITIVE);
+                let e_ref = e_first.max(u_norm * f_ref);
+                let residual_ok = rel <= nopt.residual_tolerance;
+                let displacement_ok = du_norm <= nopt.displacement_tolerance * u_ref;
+                let energy_ok = last_energy <= nopt.energy_tolerance * e_ref;
+                // A stall at round-off (see NewtonOptions): the last three residuals within a
+                // factor 2 of each other and below the square root of the tolerance.
+                let stalled = iterations >= 3
+                    && rel <= nopt.residual_tolerance.sqrt()
+                    && plateau(&self.report.residuals);
+                let failing = if !residual_ok {
+                    Criterion::Residual
+                } else if !displacement_ok {
+                    Criterion::Displacement
+                } else {
+                    Criterion::Energy
+                };
+                (
+                    (residual_ok && displacement_ok && energy_ok) || stalled,
+                    failing,
+                )
             };
             if converged {
                 break;
@@ -825,16 +866,13 @@ impl AlphaIntegrator {
                     iterations,
                     residual: rel,
                     cutbacks: 0,
+                    criterion: failing,
+                    history: self.history(),
+                    dof: self.worst_dof,
                 });
             }
             if iterations >= 1 && r_norm > nopt.divergence_factor * r_first {
-                return Err(Error::NewtonDiverged {
-                    t: t0,
-                    dt: h,
-                    iterations,
-                    residual: rel,
-                    cutbacks: 0,
-                });
+                return Err(self.diverged(t0, h, iterations, rel));
             }
             // Iteration matrix.
             let rebuild = if self.linear {
@@ -877,7 +915,7 @@ impl AlphaIntegrator {
             if nopt.line_search && !self.linear {
                 self.usave.copy_from_slice(&self.u1);
                 self.dsave.copy_from_slice(&self.dtot);
-                let r_prev = r_norm;
+                let r_start = r_norm;
                 for attempt in 0..5 {
                     for i in 0..self.n {
                         self.u1[i] = self.usave[i] + s * self.du[i];
@@ -886,7 +924,7 @@ impl AlphaIntegrator {
                     let (r, f) = self.evaluate(model, state, t1, h, step)?;
                     r_norm = r;
                     f_ref = f;
-                    if r <= (1.0 - 1e-4 * s) * r_prev || attempt == 4 {
+                    if r <= (1.0 - 1e-4 * s) * r_start || attempt == 4 {
                         break;
                     }
                     s *= 0.5;
@@ -1404,6 +1442,24 @@ impl AlphaIntegrator {
         self.options.reduce.sum(s).sqrt()
     }
 
+    /// The relative residuals of the last attempt, for an error (at most the first 64).
+    fn history(&self) -> Vec<f64> {
+        self.report.residuals.iter().take(64).copied().collect()
+    }
+
+    /// A divergence of the attempt at `t0` with sub-step `h`.
+    fn diverged(&self, t0: f64, h: f64, iterations: usize, rel: f64) -> Error {
+        Error::NewtonDiverged {
+            t: t0,
+            dt: h,
+            iterations,
+            residual: rel,
+            cutbacks: 0,
+            history: self.history(),
+            dof: self.worst_dof,
+        }
+    }
+
     /// Kinematics, forces and residual at the trial `u1`; returns `(||R||, F_ref)` on free DOFs.
     fn evaluate<M: Model + ?Sized>(
         &mut self,
@@ -1460,7 +1516,8 @@ impl AlphaIntegrator {
         self.mass
             .mul(&self.tmp, &mut self.mw, self.options.parallel);
         let (af, bf) = (1.0 - p.alpha_f, p.alpha_f);
-        let mut sums = [0.0; 4];
+        let mut sums = [0.0; 5];
+        let (mut worst, mut worst_dof) = (-1.0, 0usize);
         for i in 0..self.n {
             let mut g1 = self.f_int1[i] + self.f_d1[i];
             let mut g0 = self.f_int0[i] + self.f_d0[i];
@@ -1472,18 +1529,56 @@ impl AlphaIntegrator {
             let g = af * g1 + bf * g0;
             let r = self.mw[i] + g - fe;
             if self.mask[i] {
+                // The residual at a constrained DOF is its reaction.
                 self.res[i] = 0.0;
+                sums[4] += r * r;
             } else {
                 self.res[i] = r;
                 sums[0] += r * r;
                 sums[1] += self.mw[i] * self.mw[i];
                 sums[2] += g * g;
                 sums[3] += fe * fe;
+                // NaN compares false: the first non-finite residual is caught below.
+                if r.abs() > worst {
+                    (worst, worst_dof) = (r.abs(), i);
+                }
             }
         }
         self.options.reduce.sum_in_place(&mut sums);
-        let f_ref = sums[1].sqrt().max(sums[2].sqrt()).max(sums[3].sqrt());
+        if !sums.iter().all(|x| x.is_finite()) {
+            return Err(self.non_finite_force(step, t1));
+        }
+        self.worst_dof = worst_dof;
+        let f_step = sums[1]
+            .sqrt()
+            .max(sums[2].sqrt())
+            .max(sums[3].sqrt())
+            .max(sums[4].sqrt());
+        self.f_step = f_step;
+        let f_ref = f_step.max(self.ledger.force_peak);
         Ok((sums[0].sqrt(), f_ref))
+    }
+
+    /// The error for a non-finite force or residual found by [`evaluate`](Self::evaluate): the
+    /// first force that is not finite and its DOF (a cut-back does not make a model's NaN go away,
+    /// so it is reported at once).
+    fn non_finite_force(&self, step: u64, t: f64) -> Error {
+        let (quantity, dof) = [
+            ("external force", &self.f_ext1),
+            ("internal force", &self.f_int1),
+            ("damping force", &self.f_d1),
+            ("inertia force", &self.mw),
+        ]
+        .into_iter()
+        .chain(self.f_x1.iter().map(|f| ("extra force", f)))
+        .find_map(|(q, x)| x.iter().position(|v| !v.is_finite()).map(|d| (q, d)))
+        .unwrap_or(("residual", self.worst_dof));
+        Error::NonFiniteState {
+            quantity,
+            dof,
+            step,
+            t,
+        }
     }
 
     /// Fills the iteration matrix `J` for coefficients `cm = (1-alpha_m)/(beta h^2)` and
@@ -1592,6 +1687,10 @@ impl AlphaIntegrator {
         l.numerical_dissipation -= d_kin + d_int + d_damp + d_extra - d_ext - d_con;
         l.kinetic = ke;
         l.energy_in += d_ext.abs() + d_con.abs();
+        // Each step's work is booked in full (no work in flight).
+        l.update_reference(0.0);
+        // The floor of the Newton residual's reference for the rest of the run.
+        l.force_peak = l.force_peak.max(self.f_step);
         l.pending.reactions.copy_from_slice(&self.reactions1);
         let over = l.energy_in > 0.0 && ke > self.options.growth_limit * l.energy_in;
         let (mut highs, mut high) = self.over_limit;
@@ -1627,6 +1726,18 @@ impl AlphaIntegrator {
         state.step = step;
         model.accept_step(t1);
         Ok(())
+    }
+}
+
+/// True when the last three values of `history` are finite and within a factor 2 of each other:
+/// a residual that no longer falls (nor grows).
+fn plateau(history: &[f64]) -> bool {
+    match history {
+        [.., a, b, c] => {
+            let (lo, hi) = (a.min(*b).min(*c), a.max(*b).max(*c));
+            hi.is_finite() && hi <= 2.0 * lo
+        }
+        _ => false,
     }
 }
 

@@ -5,4 +5,5 @@ mod alpha_family;
 mod newton;
 
 pub use alpha_family::{AlphaIntegrator, ImplicitOptions};
-pub use newton::{NewtonOptions, NewtonReport, NewtonVariant};
+pub(crate) use newton::format_history;
+pub use newton::{Criterion, NewtonOptions, NewtonReport, NewtonVariant};

@@ -22,10 +22,25 @@ pub enum NewtonVariant {
 /// A step has converged when every enabled criterion holds (set a tolerance to `f64::INFINITY`
 /// to disable it):
 ///
-/// - residual: `||R|| <= residual_tolerance * F_ref`, with `F_ref` the largest of the norms of the
-///   inertia, internal and external force terms of the balance (free DOFs);
-/// - displacement: `||du|| <= displacement_tolerance * ||u_{n+1} - u_n||`;
-/// - energy: `|du . R| <= energy_tolerance * |du_1 . R_0|` (relative to the first iteration).
+/// - residual: `||R|| <= residual_tolerance * F_ref`, with `F_ref` the largest norm seen so far in
+///   the run (this iterate included) of the inertia, internal and external force terms of the
+///   balance on the free DOFs and of the reactions at the constrained ones. A model at rest has
+///   forces near zero (a round-off residual of its internal force may be all there is); the
+///   run's largest forces keep the test meaningful there and after the forces have decayed;
+/// - displacement: `||du|| <= displacement_tolerance * max(||u_{n+1} - u_n||, ||u_{n+1}||)`: a
+///   model settled under a dead load takes steps of almost no increment, where a test on the
+///   increment alone would ask a correction far below the rounding of `u`;
+/// - energy: `|du . R| <= energy_tolerance * max(|du_1 . R_0|, ||u_{n+1}|| F_ref)` (relative to
+///   the first iteration, with the floor of the forces' work on the displacement).
+///
+/// A stall at round-off also counts as converged: from the third iteration on, when the last three
+/// relative residuals lie within a factor 2 of each other (no trend) and below
+/// `sqrt(residual_tolerance)` (1e-4 by default), the residual is at the rounding level of the
+/// model's forces and further iterations or a smaller step cannot lower it (a Green-strain bar at
+/// rest computes its strain by cancellation; at the start of a slow ramp its force round-off is
+/// large against the small loads). A linearly converging iteration with a wrong tangent falls by
+/// more than a factor 2 over two iterations, or does not reach the `sqrt` bound within the
+/// iteration limit. The bound and the factor are this project's choice (not from a source).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct NewtonOptions {
     /// Full or modified Newton. Default: full.
@@ -103,6 +118,57 @@ impl NewtonOptions {
         }
         Ok(())
     }
+}
+
+/// A convergence criterion of the Newton iterations (see [`NewtonOptions`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub enum Criterion {
+    /// `||R|| <= residual_tolerance * F_ref`.
+    Residual,
+    /// `||du|| <= displacement_tolerance * max(||u_{n+1} - u_n||, ||u_{n+1}||)`.
+    Displacement,
+    /// `|du . R| <= energy_tolerance * max(|du_1 . R_0|, ||u_{n+1}|| F_ref)`.
+    Energy,
+}
+
+impl Criterion {
+    /// What to do when this criterion is the one that fails.
+    pub fn advice(self) -> &'static str {
+        match self {
+            Criterion::Residual => {
+                "A residual that falls slowly points to a tangent stiffness that does not match \
+                 the internal force (check it with finite differences); one that stays flat \
+                 is at the rounding level of the model's forces: loosen residual_tolerance"
+            }
+            Criterion::Displacement => {
+                "The corrections do not shrink: check the tangent stiffness against the internal \
+                 force, enable the line search, or loosen displacement_tolerance"
+            }
+            Criterion::Energy => {
+                "The energy product du . R does not shrink: check the tangent stiffness against \
+                 the internal force, or loosen energy_tolerance"
+            }
+        }
+    }
+}
+
+impl std::fmt::Display for Criterion {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Criterion::Residual => "residual",
+            Criterion::Displacement => "displacement",
+            Criterion::Energy => "energy",
+        })
+    }
+}
+
+/// The relative residuals of an attempt for a message: `1.0e0, 3.2e-5, ...`, `none` when empty.
+pub(crate) fn format_history(history: &[f64]) -> String {
+    if history.is_empty() {
+        return "none".into();
+    }
+    let parts: Vec<String> = history.iter().map(|r| format!("{r:.1e}")).collect();
+    parts.join(", ")
 }
 
 /// What the iterations of the last step did.
