@@ -207,3 +207,17 @@ fn a_non_finite_force_is_reported_at_once_with_its_dof() {
     assert!((s.t - 5e-3).abs() < 1e-12 && s.u.iter().all(|x| x.is_finite()));
     assert_eq!(it.last_report().cutbacks, 0);
 }
+
+/// The bars' tangent against central differences of their forces
+/// (`stepgauge::linalg::check_tangent`, h = 1e-6 m) at a deformed state (every DOF moved by up to
+/// 5 cm): the truncation `h^2 |f'''| / 6` with `|f'''| ~ E A / L^3 ~ 3e8 N/m^3` is 5e-5 N/m and the
+/// rounding `eps |f| / h` with `|f| ~ 1e6 N` is 2e-4 N/m, against entries of `E A / L ~ 2e8 N/m`:
+/// both near 1e-12 relative, so 1e-9 leaves room and still catches any wrong term.
+#[test]
+fn the_bars_tangent_matches_their_forces() {
+    let mut m = Truss::new(4, -2e4, 0.05);
+    let n = m.dofs();
+    let u: Vec<f64> = (0..n).map(|i| 0.05 * ((i as f64) * 0.7).sin()).collect();
+    let c = stepgauge::linalg::check_tangent(&mut m, 0.0, &u, &vec![0.0; n], 1e-6).unwrap();
+    assert!(c.rel_error < 1e-9 && c.outside_pattern.is_none(), "{c:?}");
+}

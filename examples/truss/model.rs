@@ -19,7 +19,7 @@
 //! residual force of some 1e-8 N. Users' element loops look like this; the integrators must cope.
 
 use stepgauge::ModelError;
-use stepgauge::linalg::CsrMatrix;
+use stepgauge::linalg::{CsrMatrix, ElementScatter};
 use stepgauge::model::{Constraints, Model};
 
 /// The invented truss and its ramped load.
@@ -41,6 +41,7 @@ pub struct Truss {
     pub ramp: f64,
     constraints: Constraints,
     pattern: CsrMatrix,
+    scatter: ElementScatter,
 }
 
 impl Truss {
@@ -60,20 +61,18 @@ impl Truss {
             .map(|b| (nodes[b[1]][0] - nodes[b[0]][0]).hypot(nodes[b[1]][1] - nodes[b[0]][1]))
             .collect();
         let mut mass = vec![0.0; 2 * nodes.len()];
-        let mut triplets = sprs::TriMat::new((mass.len(), mass.len()));
         for (b, l) in bars.iter().zip(&lengths) {
             for &i in b {
                 mass[2 * i] += rho * a * l / 2.0;
                 mass[2 * i + 1] += rho * a * l / 2.0;
-                for &j in b {
-                    for (p, q) in [(0, 0), (0, 1), (1, 0), (1, 1)] {
-                        triplets.add_triplet(2 * i + p, 2 * j + q, 1.0);
-                    }
-                }
             }
         }
-        let pattern = CsrMatrix::from_sprs("truss tangent pattern", &triplets.to_csr())
-            .expect("the pattern is square and finite");
+        let dofs: Vec<[usize; 4]> = bars
+            .iter()
+            .map(|&[i, j]| [2 * i, 2 * i + 1, 2 * j, 2 * j + 1])
+            .collect();
+        let pattern = CsrMatrix::pattern_from_elements(mass.len(), &dofs).expect("DOFs in range");
+        let scatter = ElementScatter::new(&pattern, &dofs).expect("the pattern holds every bar");
         let constraints = Constraints::new().fix(0).fix(1).fix(2 * panels + 1);
         Truss {
             nodes,
@@ -85,6 +84,7 @@ impl Truss {
             ramp,
             constraints,
             pattern,
+            scatter,
         }
     }
 
@@ -156,17 +156,17 @@ impl Model for Truss {
     ) -> Result<(), ModelError> {
         out.data_mut().fill(0.0);
         for k in 0..self.bars.len() {
-            let ([i, j], (d, e, l0)) = (self.bars[k], self.bar(k, u));
+            let (d, e, l0) = self.bar(k, u);
             let c = self.ea / l0;
-            for (p, q) in [(0, 0), (0, 1), (1, 0), (1, 1)] {
-                let kpq = c * (d[p] * d[q] / (l0 * l0) + if p == q { e } else { 0.0 });
-                for (a, sa) in [(i, 1.0), (j, -1.0)] {
-                    for (b, sb) in [(i, 1.0), (j, -1.0)] {
-                        let at = out.position(2 * a + p, 2 * b + q).expect("in the pattern");
-                        out.data_mut()[at] += sa * sb * kpq;
-                    }
-                }
-            }
+            // The 2x2 block g and the bar's 4x4 matrix [[g, -g], [-g, g]], row-major.
+            let g =
+                |p: usize, q: usize| c * (d[p] * d[q] / (l0 * l0) + if p == q { e } else { 0.0 });
+            let block: [f64; 16] = std::array::from_fn(|r| {
+                let (row, col) = (r / 4, r % 4);
+                let sign = if (row < 2) == (col < 2) { 1.0 } else { -1.0 };
+                sign * g(row % 2, col % 2)
+            });
+            self.scatter.add(k, &block, out);
         }
         Ok(())
     }

@@ -5,20 +5,19 @@
 //!   difference steps (Lanczos on `M_lumped^-1 K` over the free DOFs). For a diagonal mass it is
 //!   the model's highest frequency.
 //! * `omega_min` is the smallest eigenvalue of `M^-1 K` on the free DOFs with the mass matrix as
-//!   given: up to [`DENSE_LIMIT`] free DOFs by a dense symmetric eigen-solve (`L^-1 K L^-T` with
-//!   `M = L L^T`, nalgebra); above it by inverse iteration with a sparse Cholesky factor of `K`.
-//!   A singular `K` (rigid-body motion, a free-free model) gives `omega_min = 0` with a note.
+//!   given, from the library's [`stepgauge::linalg::eigen::lowest_eigenvalue`] (a dense solve up
+//!   to its `DENSE_LIMIT` free DOFs, inverse iteration above). A singular `K` (rigid-body motion,
+//!   a free-free model) gives `omega_min = 0` with a note.
 
 use std::path::PathBuf;
 
 use clap::Args;
-use nalgebra::DMatrix;
 use serde_json::json;
-use sprs::{CsMat, TriMat};
 use stepgauge::State;
 use stepgauge::explicit::ForceVelocity;
 use stepgauge::explicit::stable_step::{StableStepOptions, critical_step, estimate};
-use stepgauge::linalg::{CsrMatrix, LinearSolver, SparseCholesky};
+use stepgauge::linalg::CsrMatrix;
+use stepgauge::linalg::eigen::{LowestStatus, lowest_eigenvalue};
 use stepgauge::model::{Constraints, LinearModel};
 use stepgauge::spectral::{Scheme, largest_step_for_period_error};
 
@@ -26,9 +25,6 @@ use super::Failure;
 use super::output::{print_stdout, table_num};
 use super::run::{parse_dofs, read_mk};
 use super::scheme_args::SchemeArgs;
-
-/// Largest number of free DOFs for the dense eigen-solve of `omega_min`.
-pub const DENSE_LIMIT: usize = 300;
 
 /// Long help of `stepgauge timestep`.
 pub const LONG_ABOUT: &str = "\
@@ -103,135 +99,34 @@ fn usage(e: stepgauge::Error) -> Failure {
     }
 }
 
-/// The submatrix of `a` on the rows and columns with `index[i] = Some(new)`.
-fn restrict(a: &CsMat<f64>, index: &[Option<usize>], nf: usize) -> CsMat<f64> {
-    let mut t = TriMat::new((nf, nf));
-    for (&v, (i, j)) in a.iter() {
-        if let (Some(p), Some(q)) = (index[i], index[j]) {
-            t.add_triplet(p, q, v);
-        }
-    }
-    t.to_csr()
-}
-
-fn matvec(a: &CsMat<f64>, x: &[f64], y: &mut [f64]) {
-    y.fill(0.0);
-    for (i, row) in a.outer_iterator().enumerate() {
-        y[i] = row.iter().map(|(j, v)| v * x[j]).sum();
-    }
-}
-
-/// The smallest eigenvalue of `M^-1 K`, with how it was found and notes.
-struct LambdaMin {
-    lambda: f64,
-    method: &'static str,
-    note: Option<String>,
-}
-
-fn lambda_min_dense(m: &CsMat<f64>, k: &CsMat<f64>) -> Result<LambdaMin, Failure> {
-    let n = m.rows();
-    let dense = |a: &CsMat<f64>| {
-        let mut d = DMatrix::<f64>::zeros(n, n);
-        for (&v, (i, j)) in a.iter() {
-            d[(i, j)] += v;
-        }
-        d
-    };
-    let (md, kd) = (dense(m), dense(k));
-    let chol = md.clone().cholesky().ok_or_else(|| {
-        Failure::Usage(
-            "the mass matrix (on the free DOFs) is not positive definite: every free DOF needs \
-             mass"
-                .to_string(),
-        )
-    })?;
-    let l = chol.l();
-    let linv = l
-        .clone()
-        .try_inverse()
-        .ok_or_else(|| Failure::Runtime("the mass factor is singular".to_string()))?;
-    let a = &linv * kd * linv.transpose();
-    let a = (&a + a.transpose()) * 0.5;
-    let eig = a.symmetric_eigenvalues();
-    let (lo, hi) = eig.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), &x| {
-        (lo.min(x), hi.max(x.abs()))
-    });
-    finish(
-        lo,
-        hi,
-        "dense symmetric eigensolver on L^-1 K L^-T, M = L L^T",
-    )
-}
-
-fn finish(lo: f64, hi: f64, method: &'static str) -> Result<LambdaMin, Failure> {
-    if lo <= 1e-10 * hi {
-        let note = if lo < -1e-8 * hi {
-            format!(
-                "K has a negative eigenvalue ({lo:e}): the model is not stable statically; \
-                 omega_min is reported as 0"
-            )
-        } else {
+/// The note that goes with a lowest eigenvalue that is not a plain positive one.
+fn lowest_note(status: LowestStatus) -> Option<String> {
+    match status {
+        LowestStatus::Positive => None,
+        LowestStatus::Singular => Some(
             "K is singular on the free DOFs (rigid-body motion, a free-free model): omega_min \
              is 0; fix DOFs with --fix to remove it"
-                .to_string()
-        };
-        return Ok(LambdaMin {
-            lambda: 0.0,
-            method,
-            note: Some(note),
-        });
-    }
-    Ok(LambdaMin {
-        lambda: lo,
-        method,
-        note: None,
-    })
-}
-
-fn lambda_min_inverse_iteration(m: &CsMat<f64>, k: &CsMat<f64>) -> Result<LambdaMin, Failure> {
-    const METHOD: &str = "inverse iteration with a sparse Cholesky factor of K";
-    let n = m.rows();
-    let kc = CsrMatrix::from_sprs("stiffness", k).map_err(usage)?;
-    let mut chol = SparseCholesky::new();
-    chol.analyze(&kc).map_err(usage)?;
-    if let Err(e) = chol.factor(&kc) {
-        return match e {
-            stepgauge::Error::NotPositiveDefinite { .. } => finish(0.0, 1.0, METHOD),
-            other => Err(usage(other)),
-        };
-    }
-    let mut x: Vec<f64> = (0..n).map(|i| 1.0 + 0.3 * (i as f64 * 0.7).sin()).collect();
-    let mut mx = vec![0.0; n];
-    let mut my = vec![0.0; n];
-    let mut prev = f64::INFINITY;
-    for it in 0..10_000 {
-        matvec(m, &x, &mut mx);
-        let mut y = mx.clone();
-        chol.solve_in_place(&mut y)
-            .map_err(|e| Failure::Runtime(e.to_string()))?;
-        matvec(m, &y, &mut my);
-        // Rayleigh quotient y^T K y / y^T M y with K y = M x.
-        let ymx: f64 = y.iter().zip(&mx).map(|(a, b)| a * b).sum();
-        let ymy: f64 = y.iter().zip(&my).map(|(a, b)| a * b).sum();
-        let rq = ymx / ymy;
-        let norm = ymy.sqrt();
-        for (xi, yi) in x.iter_mut().zip(&y) {
-            *xi = yi / norm;
-        }
-        if it > 2 && (rq - prev).abs() <= 1e-13 * rq {
-            return finish(rq, rq, METHOD);
-        }
-        prev = rq;
-    }
-    Ok(LambdaMin {
-        lambda: prev,
-        method: METHOD,
-        note: Some(
+                .to_string(),
+        ),
+        LowestStatus::Negative { lowest } => Some(format!(
+            "K has a negative eigenvalue ({lowest:e}): the model is not stable statically; \
+             omega_min is reported as 0"
+        )),
+        LowestStatus::SingularOrIndefinite => Some(
+            "K is singular or indefinite on the free DOFs (its sparse Cholesky factor met a \
+             pivot that is not positive): omega_min is reported as 0; fix DOFs with --fix if the \
+             model has rigid-body motion"
+                .to_string(),
+        ),
+        LowestStatus::NotConverged => Some(
             "inverse iteration did not converge to 1e-13 in 10000 iterations (close lowest \
              frequencies): omega_min is approximate"
                 .to_string(),
         ),
-    })
+        // A status added to the library later: say what it is.
+        #[allow(unreachable_patterns)]
+        other => Some(format!("{other:?}")),
+    }
 }
 
 /// Runs `stepgauge timestep`.
@@ -284,25 +179,19 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
         .map(|w| force_velocity.critical_omega_dt(xi) / w);
 
     // omega_min on the free DOFs.
-    let mut index = vec![None; n];
-    let mut nf = 0;
-    for (i, slot) in index.iter_mut().enumerate() {
-        if !fixed.contains(&i) {
-            *slot = Some(nf);
-            nf += 1;
-        }
-    }
+    let free: Vec<bool> = (0..n).map(|i| !fixed.contains(&i)).collect();
+    let nf = free.iter().filter(|f| **f).count();
     if nf == 0 {
         return Err(Failure::Usage(
             "--fix fixes every DOF: no free DOF is left".to_string(),
         ));
     }
-    let (mf, kf) = (restrict(&m, &index, nf), restrict(&k, &index, nf));
-    let low = if nf <= DENSE_LIMIT {
-        lambda_min_dense(&mf, &kf)?
-    } else {
-        lambda_min_inverse_iteration(&mf, &kf)?
-    };
+    let (mc, kc) = (
+        CsrMatrix::from_sprs("mass", &m).map_err(usage)?,
+        CsrMatrix::from_sprs("stiffness", &k).map_err(usage)?,
+    );
+    let low = lowest_eigenvalue(&mc, &kc, &free).map_err(usage)?;
+    let low_note = lowest_note(low.status);
     let omega_min = low.lambda.max(0.0).sqrt();
 
     let dt_accuracy = match args.frequency_of_interest {
@@ -336,8 +225,8 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
             "frequency_of_interest": args.frequency_of_interest,
             "period_error": args.frequency_of_interest.map(|_| args.period_error),
             "free_dofs": nf,
-            "omega_min_method": low.method,
-            "note": low.note,
+            "omega_min_method": low.method.description(),
+            "note": low_note,
         });
         let text = serde_json::to_string_pretty(&v)
             .map_err(|e| Failure::Runtime(format!("cannot encode JSON: {e}")))?;
@@ -354,9 +243,9 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
         "lowest frequency   omega_min = {} rad/s  ({} Hz)  [{}]\n",
         table_num(Some(omega_min)),
         table_num(Some(hz(omega_min))),
-        low.method
+        low.method.description()
     ));
-    if let Some(note) = &low.note {
+    if let Some(note) = &low_note {
         out.push_str(&format!("  note: {note}\n"));
     }
     out.push_str(&format!(

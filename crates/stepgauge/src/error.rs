@@ -6,8 +6,6 @@
 
 use std::path::PathBuf;
 
-use crate::state::State;
-
 /// Convenient alias: `Result<T, stepgauge::Error>`.
 pub type Result<T> = std::result::Result<T, Error>;
 
@@ -68,6 +66,20 @@ pub enum Error {
         dof: usize,
         /// The model's DOF count.
         n: usize,
+    },
+    /// An element couples two DOFs whose entry the matrix's pattern does not hold.
+    #[error(
+        "element {element} couples DOFs {row} and {col}, but the pattern has no entry ({row}, \
+         {col}); build the pattern from the same element DOF lists \
+         (CsrMatrix::pattern_from_elements)"
+    )]
+    PatternMissing {
+        /// The element (0-based, in the order given).
+        element: usize,
+        /// The entry's row.
+        row: usize,
+        /// The entry's column.
+        col: usize,
     },
     /// The same DOF is constrained twice.
     #[error("DOF {dof} is constrained twice; give each DOF at most one constraint")]
@@ -201,12 +213,11 @@ pub enum Error {
         step: u64,
         /// The time reached by the rejected step.
         t: f64,
-        /// The balance error relative to the largest energy term.
+        /// The balance error relative to the ledger's reference
+        /// ([`EnergyLedger::reference`](crate::energy::EnergyLedger::reference)).
         relative_error: f64,
         /// The user threshold.
         threshold: f64,
-        /// The last good state (before the rejected step).
-        last_good: Box<State>,
     },
     /// An iterative eigenvalue estimate did not converge.
     #[error(
@@ -226,7 +237,7 @@ pub enum Error {
          after {iterations} iterations the {criterion} criterion still failed (relative residuals \
          of the last attempt: {}; the largest residual is at DOF {dof}); the state of t = {t} is \
          kept. {}",
-        crate::implicit::format_history(history), criterion.advice()
+        format_history(history), criterion.advice()
     )]
     NewtonNotConverged {
         /// Time of the last converged state (the state kept).
@@ -240,7 +251,7 @@ pub enum Error {
         /// Step halvings tried.
         cutbacks: u32,
         /// The first criterion that the last iterate did not meet.
-        criterion: crate::implicit::Criterion,
+        criterion: Criterion,
         /// The relative residuals of the last attempt, one per evaluation (the predictor first;
         /// at most the first 64).
         history: Vec<f64>,
@@ -255,7 +266,7 @@ pub enum Error {
          residuals of the last attempt: {}); the state of t = {t} is kept. Check the tangent \
          stiffness against the internal force (a finite-difference check), enable the line \
          search, or reduce the step if the model's response changes abruptly within one",
-        crate::implicit::format_history(history)
+        format_history(history)
     )]
     NewtonDiverged {
         /// Time of the last converged state (the state kept).
@@ -501,4 +512,57 @@ pub enum Singularity {
         /// The limit that was exceeded.
         limit: f64,
     },
+}
+
+/// A convergence criterion of the Newton iterations (see
+/// [`NewtonOptions`](crate::implicit::NewtonOptions)); named by
+/// [`Error::NewtonNotConverged`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub enum Criterion {
+    /// `||R|| <= residual_tolerance * F_ref`.
+    Residual,
+    /// `||du|| <= displacement_tolerance * max(||u_{n+1} - u_n||, ||u_{n+1}||)`.
+    Displacement,
+    /// `|du . R| <= energy_tolerance * max(|du_1 . R_0|, ||u_{n+1}|| F_ref)`.
+    Energy,
+}
+
+impl Criterion {
+    /// What to do when this criterion is the one that fails.
+    pub fn advice(self) -> &'static str {
+        match self {
+            Criterion::Residual => {
+                "A residual that falls slowly points to a tangent stiffness that does not match \
+                 the internal force (check it with finite differences); one that stays flat \
+                 is at the rounding level of the model's forces: loosen residual_tolerance"
+            }
+            Criterion::Displacement => {
+                "The corrections do not shrink: check the tangent stiffness against the internal \
+                 force, enable the line search, or loosen displacement_tolerance"
+            }
+            Criterion::Energy => {
+                "The energy product du . R does not shrink: check the tangent stiffness against \
+                 the internal force, or loosen energy_tolerance"
+            }
+        }
+    }
+}
+
+impl std::fmt::Display for Criterion {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Criterion::Residual => "residual",
+            Criterion::Displacement => "displacement",
+            Criterion::Energy => "energy",
+        })
+    }
+}
+
+/// The relative residuals of an attempt for a message: `1.0e0, 3.2e-5, ...`, `none` when empty.
+pub(crate) fn format_history(history: &[f64]) -> String {
+    if history.is_empty() {
+        return "none".into();
+    }
+    let parts: Vec<String> = history.iter().map(|r| format!("{r:.1e}")).collect();
+    parts.join(", ")
 }

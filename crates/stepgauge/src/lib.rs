@@ -72,4 +72,8 @@ pub mod spectral;
 pub mod state;
 
 pub use error::{Error, ModelError, Result};
+/// The `sprs` crate at the version the library uses (its matrices are accepted by
+/// [`LinearModel`](model::LinearModel), [`linalg::CsrMatrix::from_sprs`] and the Matrix Market
+/// functions), so that users need not match its version by hand.
+pub use sprs;
 pub use state::State;

@@ -1,4 +1,6 @@
-//! The one parameter type of the implicit family, shared by stepping and spectral analysis.
+//! The parameter types of the schemes, shared by stepping and spectral analysis: [`AlphaParams`]
+//! (the implicit family), [`ForceVelocity`] (the central difference's treatment of
+//! velocity-dependent forces) and [`Scheme`], either of them.
 //!
 //! Newmark-beta, HHT-alpha, WBZ-alpha and generalised-alpha are all members of one family
 //! (Chung & Hulbert 1993): with `x_{n+1-alpha} = (1 - alpha) x_{n+1} + alpha x_n`,
@@ -15,6 +17,96 @@
 use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
+
+/// Which velocity the velocity-dependent forces (damping, rate-dependent internal and extra
+/// forces) at `t_{n+1}` receive.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ForceVelocity {
+    /// The lagged half-step velocity `v_{n+1/2}`: the classical explicit treatment. The damping
+    /// term is then only first-order accurate (the error of a damped run falls like `dt`), and a
+    /// mode of damping ratio `xi` is stable for `omega dt <= 2 (sqrt(1 + xi^2) - xi)`
+    /// (Belytschko, Liu & Moran 2000, sec. 6.2).
+    #[default]
+    Lagged,
+    /// The predicted integer-step velocity `v* = v_{n+1/2} + (dt/2) a_n`, a second-order estimate
+    /// of `v_{n+1}`: the scheme stays second-order accurate with damping, at the price of a smaller
+    /// stable step, `omega dt <= 2 (sqrt(1 + 4 xi^2) - 2 xi)` (derived for stepgauge from the
+    /// amplification matrix; see `docs/explicit.md`).
+    Predicted,
+}
+
+impl ForceVelocity {
+    /// The critical `omega dt` of a single mode of damping ratio `xi` under this treatment.
+    pub fn critical_omega_dt(self, xi: f64) -> f64 {
+        let x = match self {
+            ForceVelocity::Lagged => xi,
+            ForceVelocity::Predicted => 2.0 * xi,
+        };
+        // 2 (sqrt(1 + x^2) - x), written without cancellation.
+        2.0 / ((1.0 + x * x).sqrt() + x)
+    }
+}
+
+/// A time-integration scheme: the central difference with its treatment of velocity-dependent
+/// forces, or a member of the generalised-alpha family. The spectral analysis
+/// ([`spectral`](crate::spectral)) analyses it; the integrators step the same values.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Scheme {
+    /// The central difference in half-step velocity form on a lumped mass, exactly as
+    /// [`CentralDifference`](crate::explicit::CentralDifference) steps it, with its treatment of
+    /// velocity-dependent forces.
+    CentralDifference(ForceVelocity),
+    /// A member of the generalised-alpha family (also `beta = 0`: explicit Newmark, with the
+    /// damping force centred at `v_{n+1}`).
+    Alpha(AlphaParams),
+}
+
+/// The four family parameters as reported (the central difference is shown as the
+/// `beta = 0, gamma = 1/2` member it resembles, with its own amplification matrix).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Parameters {
+    /// `alpha_m`.
+    pub alpha_m: f64,
+    /// `alpha_f`.
+    pub alpha_f: f64,
+    /// `beta`.
+    pub beta: f64,
+    /// `gamma`.
+    pub gamma: f64,
+}
+
+impl Scheme {
+    /// The scheme's name, as on the command line.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Scheme::CentralDifference(_) => "central-difference",
+            Scheme::Alpha(p) => match p.family {
+                Family::Newmark | Family::Custom if p.alpha_m == 0.0 && p.alpha_f == 0.0 => {
+                    "newmark"
+                }
+                f => f.name(),
+            },
+        }
+    }
+
+    /// The parameters as reported.
+    pub fn parameters(&self) -> Parameters {
+        match self {
+            Scheme::CentralDifference(_) => Parameters {
+                alpha_m: 0.0,
+                alpha_f: 0.0,
+                beta: 0.0,
+                gamma: 0.5,
+            },
+            Scheme::Alpha(p) => Parameters {
+                alpha_m: p.alpha_m,
+                alpha_f: p.alpha_f,
+                beta: p.beta,
+                gamma: p.gamma,
+            },
+        }
+    }
+}
 
 /// Which named member of the family a parameter set was made as (for reports).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]

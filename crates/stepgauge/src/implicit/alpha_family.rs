@@ -3,8 +3,9 @@
 use std::fmt;
 use std::sync::Arc;
 
-use super::newton::{Criterion, NewtonOptions, NewtonReport, NewtonVariant};
+use super::newton::{NewtonOptions, NewtonReport, NewtonVariant};
 use crate::energy::EnergyLedger;
+use crate::error::Criterion;
 use crate::error::{Error, ModelError, Result};
 use crate::linalg::{
     CsrMatrix, GlobalReduce, LinearSolver, Parallelism, Serial, SimplicialFactor, SparseCholesky,

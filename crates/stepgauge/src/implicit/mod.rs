@@ -4,6 +4,6 @@
 mod alpha_family;
 mod newton;
 
+pub use crate::error::Criterion;
 pub use alpha_family::{AlphaIntegrator, ImplicitOptions};
-pub(crate) use newton::format_history;
-pub use newton::{Criterion, NewtonOptions, NewtonReport, NewtonVariant};
+pub use newton::{NewtonOptions, NewtonReport, NewtonVariant};

@@ -120,57 +120,6 @@ impl NewtonOptions {
     }
 }
 
-/// A convergence criterion of the Newton iterations (see [`NewtonOptions`]).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
-pub enum Criterion {
-    /// `||R|| <= residual_tolerance * F_ref`.
-    Residual,
-    /// `||du|| <= displacement_tolerance * max(||u_{n+1} - u_n||, ||u_{n+1}||)`.
-    Displacement,
-    /// `|du . R| <= energy_tolerance * max(|du_1 . R_0|, ||u_{n+1}|| F_ref)`.
-    Energy,
-}
-
-impl Criterion {
-    /// What to do when this criterion is the one that fails.
-    pub fn advice(self) -> &'static str {
-        match self {
-            Criterion::Residual => {
-                "A residual that falls slowly points to a tangent stiffness that does not match \
-                 the internal force (check it with finite differences); one that stays flat \
-                 is at the rounding level of the model's forces: loosen residual_tolerance"
-            }
-            Criterion::Displacement => {
-                "The corrections do not shrink: check the tangent stiffness against the internal \
-                 force, enable the line search, or loosen displacement_tolerance"
-            }
-            Criterion::Energy => {
-                "The energy product du . R does not shrink: check the tangent stiffness against \
-                 the internal force, or loosen energy_tolerance"
-            }
-        }
-    }
-}
-
-impl std::fmt::Display for Criterion {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(match self {
-            Criterion::Residual => "residual",
-            Criterion::Displacement => "displacement",
-            Criterion::Energy => "energy",
-        })
-    }
-}
-
-/// The relative residuals of an attempt for a message: `1.0e0, 3.2e-5, ...`, `none` when empty.
-pub(crate) fn format_history(history: &[f64]) -> String {
-    if history.is_empty() {
-        return "none".into();
-    }
-    let parts: Vec<String> = history.iter().map(|r| format!("{r:.1e}")).collect();
-    parts.join(", ")
-}
-
 /// What the iterations of the last step did.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 pub struct NewtonReport {

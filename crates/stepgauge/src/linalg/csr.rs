@@ -18,7 +18,8 @@ const ROW_CHUNK: usize = 2048;
 ///
 /// Every constructor establishes, and no method breaks, the structure the unchecked row products
 /// rely on: `indptr` has `nrows + 1` entries, starts at 0, never decreases and ends at
-/// `indices.len() == data.len()`, and every column index is below `ncols`. (Only the values
+/// `indices.len() == data.len()`, every column index is below `ncols`, and the columns of each
+/// row are strictly increasing (so [`position`](Self::position) is a binary search). (Only the values
 /// can be changed after construction, through [`data_mut`](Self::data_mut).)
 #[derive(Debug, Clone, PartialEq)]
 pub struct CsrMatrix {
@@ -67,6 +68,13 @@ impl CsrMatrix {
                     return Err(Error::InvalidMatrix {
                         what,
                         problem: format!("entry ({row}, {col}) is {val}"),
+                    });
+                }
+                // sprs keeps each row's indices sorted and unique; checked for the same reason.
+                if indices.len() > indptr[row] && indices[indices.len() - 1] >= col as u32 {
+                    return Err(Error::InvalidMatrix {
+                        what,
+                        problem: format!("columns not strictly increasing in row {row}"),
                     });
                 }
                 indices.push(col as u32);
@@ -133,10 +141,9 @@ impl CsrMatrix {
             return None;
         }
         let (lo, hi) = (self.indptr[i], self.indptr[i + 1]);
-        self.indices[lo..hi]
-            .iter()
-            .position(|&c| c as usize == j)
-            .map(|k| lo + k)
+        let j = u32::try_from(j).ok()?;
+        // Columns are strictly increasing within a row (the type's invariant).
+        self.indices[lo..hi].binary_search(&j).ok().map(|k| lo + k)
     }
 
     /// A matrix with the union of the patterns of `mats` (all of the same shape), rows sorted by

@@ -7,13 +7,17 @@
 //! product, norm and energy is bit-identical for 1, 2 or any number of threads, and for the serial
 //! and the parallel path alike.
 
+mod assembly;
 mod cg;
 mod cholesky;
 mod csr;
+pub mod eigen;
+pub mod lanczos;
 mod lu;
 mod reduce;
 mod solver;
 
+pub use assembly::{ElementScatter, TangentCheck, check_tangent};
 pub use cg::{CgOptions, ConjugateGradient};
 pub(crate) use cholesky::SimplicialFactor;
 pub use cholesky::{PIVOT_LOSS_FACTOR, SparseCholesky};

@@ -147,7 +147,7 @@ pub trait Model {
     /// Internal force `f_int(t, u, v)`, written into `out`.
     ///
     /// For the explicit scheme `v` is the lagged half-step velocity `v_{n-1/2}`, or a predicted
-    /// integer-step velocity (see [`ForceVelocity`](crate::explicit::ForceVelocity)).
+    /// integer-step velocity (see [`ForceVelocity`](crate::params::ForceVelocity)).
     ///
     /// # Errors
     /// Whatever the model cannot evaluate (for example an inverted element).

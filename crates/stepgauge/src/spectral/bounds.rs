@@ -6,10 +6,10 @@ use super::metrics::{
     INSTABILITY_MARGIN, largest_step_for_period_error, metrics, order_of_accuracy, rho_inf,
     spectral_radius,
 };
-use super::scheme::Scheme;
 use super::stability::{BoundaryKind, StabilityRegion, StepStability};
 use crate::error::{Error, Result};
-use crate::explicit::ForceVelocity;
+use crate::params::ForceVelocity;
+use crate::params::Scheme;
 
 /// Largest `Omega` of the numerical scans ([`omega_crit_numeric`](super::omega_crit_numeric),
 /// an independent cross-check; the verdicts rest on [`StabilityRegion`], which covers every

@@ -29,8 +29,8 @@ use nalgebra::Complex;
 use twofloat::TwoFloat as Dd;
 
 use super::roots::{deflated_pair, in_range, polish, real_root};
-use super::scheme::Scheme;
-use crate::explicit::ForceVelocity;
+use crate::params::ForceVelocity;
+use crate::params::Scheme;
 
 /// The constants `[a_k, b_k, g_k]` of `P_k = a_k + b_k (2 xi Omega) + g_k Omega^2`, `k = 0..=3`,
 /// in double-double (the same table as [`Prepared`](super::Prepared)'s, see there).

@@ -5,8 +5,8 @@ use nalgebra::Complex;
 use serde::{Deserialize, Serialize};
 
 use super::prepared::Prepared;
-use super::scheme::Scheme;
 use crate::error::{Error, Result};
+use crate::params::Scheme;
 
 /// What the amplification matrix says at one `Omega = omega dt`.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]

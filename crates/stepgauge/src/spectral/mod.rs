@@ -3,7 +3,7 @@
 //! accuracy, verdicts with their reasons, inverse design and sweeps.
 //!
 //! Depends only on the parameter types ([`AlphaParams`](crate::params::AlphaParams) and
-//! [`ForceVelocity`](crate::explicit::ForceVelocity)) that the integrators step with, so the
+//! [`ForceVelocity`](crate::params::ForceVelocity)) that the integrators step with, so the
 //! coefficients analysed are the coefficients stepped. Derivations are in `docs/spectral.md`.
 
 mod amplification;
@@ -16,6 +16,7 @@ mod scheme;
 mod stability;
 mod sweep;
 
+pub use crate::params::{Parameters, Scheme};
 pub use amplification::{alpha_amplification, eigenvalues3};
 pub use bounds::{
     CheckContext, SCAN_LIMIT, Stability, Verdict, bracket_check, check, omega_crit_closed_form,
@@ -28,6 +29,6 @@ pub use metrics::{
 pub use prepared::{Prepared, RootPath};
 pub use roots::pairing_distance;
 pub use roots::{CONDITION_LIMIT, eigenvalues_fast};
-pub use scheme::{Parameters, Scheme, cd_amplification};
+pub use scheme::cd_amplification;
 pub use stability::{Boundary, BoundaryKind, StabilityRegion, StepStability};
 pub use sweep::{log_space, newmark_stability_map, sweep};

@@ -59,8 +59,8 @@ use super::metrics::{ExactMode, Metrics, largest_modulus, metrics_from, metrics_
 use super::roots::{
     closed_form_roots, deflated_roots, estimate_real_root, in_range, polish_real_root,
 };
-use super::scheme::Scheme;
-use crate::explicit::ForceVelocity;
+use crate::params::ForceVelocity;
+use crate::params::Scheme;
 
 /// A scheme with its characteristic polynomial's constants computed once: evaluate it at many
 /// `(Omega, xi)` points. Every method gives what the free function of the same name gives for

@@ -303,8 +303,8 @@ pub fn eigenvalues_fast(a: &[[f64; 3]; 3]) -> [Complex<f64>; 3] {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::explicit::ForceVelocity;
     use crate::params::AlphaParams;
+    use crate::params::ForceVelocity;
     use crate::spectral::{Scheme, log_space};
 
     pub(crate) fn schemes() -> Vec<Scheme> {

@@ -1,70 +1,11 @@
-//! The schemes the spectral analysis knows: the central difference as stepgauge steps it, and any
-//! member of the generalised-alpha family.
-
-use serde::{Deserialize, Serialize};
+//! The amplification matrices of the schemes the spectral analysis knows ([`Scheme`], defined in
+//! [`params`](crate::params) with the other parameter types): the central difference as stepgauge
+//! steps it, and any member of the generalised-alpha family.
 
 use super::amplification::alpha_amplification;
-use crate::explicit::ForceVelocity;
-use crate::params::{AlphaParams, Family};
-
-/// A time-integration scheme to analyse.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Scheme {
-    /// The central difference in half-step velocity form on a lumped mass, exactly as
-    /// [`CentralDifference`](crate::explicit::CentralDifference) steps it, with its treatment of
-    /// velocity-dependent forces.
-    CentralDifference(ForceVelocity),
-    /// A member of the generalised-alpha family (also `beta = 0`: explicit Newmark, with the
-    /// damping force centred at `v_{n+1}`).
-    Alpha(AlphaParams),
-}
-
-/// The four family parameters as reported (the central difference is shown as the
-/// `beta = 0, gamma = 1/2` member it resembles, with its own amplification matrix).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-pub struct Parameters {
-    /// `alpha_m`.
-    pub alpha_m: f64,
-    /// `alpha_f`.
-    pub alpha_f: f64,
-    /// `beta`.
-    pub beta: f64,
-    /// `gamma`.
-    pub gamma: f64,
-}
+use crate::params::{ForceVelocity, Scheme};
 
 impl Scheme {
-    /// The scheme's name, as on the command line.
-    pub fn name(&self) -> &'static str {
-        match self {
-            Scheme::CentralDifference(_) => "central-difference",
-            Scheme::Alpha(p) => match p.family {
-                Family::Newmark | Family::Custom if p.alpha_m == 0.0 && p.alpha_f == 0.0 => {
-                    "newmark"
-                }
-                f => f.name(),
-            },
-        }
-    }
-
-    /// The parameters as reported.
-    pub fn parameters(&self) -> Parameters {
-        match self {
-            Scheme::CentralDifference(_) => Parameters {
-                alpha_m: 0.0,
-                alpha_f: 0.0,
-                beta: 0.0,
-                gamma: 0.5,
-            },
-            Scheme::Alpha(p) => Parameters {
-                alpha_m: p.alpha_m,
-                alpha_f: p.alpha_f,
-                beta: p.beta,
-                gamma: p.gamma,
-            },
-        }
-    }
-
     /// The amplification matrix on `(u, dt v, dt^2 a)` at `omega_dt`, `xi`.
     pub fn amplification(&self, omega_dt: f64, xi: f64) -> [[f64; 3]; 3] {
         match self {

@@ -39,7 +39,7 @@
 use twofloat::TwoFloat as Dd;
 
 use super::compensated::{Constants, div};
-use super::scheme::Scheme;
+use crate::params::Scheme;
 
 /// A polynomial in `Omega` with double-double coefficients, lowest degree first, and for each
 /// coefficient a bound on the magnitudes of the terms it was summed from (to tell a coefficient
@@ -526,8 +526,8 @@ impl StabilityRegion {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::explicit::ForceVelocity;
     use crate::params::AlphaParams;
+    use crate::params::ForceVelocity;
 
     fn poly(c: &[f64]) -> Poly {
         Poly::new(c.iter().map(|&x| Dd::from(x)).collect()).cleaned()

@@ -5,9 +5,9 @@ use rayon::prelude::*;
 use super::bounds::{CheckContext, Stability, check};
 use super::metrics::Metrics;
 use super::prepared::{BLOCK, Prepared};
-use super::scheme::Scheme;
 use crate::error::Result;
 use crate::params::AlphaParams;
+use crate::params::Scheme;
 
 /// Points per parallel work item of [`sweep`]: a point takes tens of nanoseconds, so smaller
 /// items would cost more in hand-offs than they save.
