@@ -3,7 +3,9 @@
 
 mod alpha_family;
 mod newton;
+mod options;
 
-pub use alpha_family::{AlphaIntegrator, ImplicitOptions};
+pub use alpha_family::AlphaIntegrator;
 pub(crate) use newton::format_history;
 pub use newton::{Criterion, NewtonOptions, NewtonReport, NewtonVariant};
+pub use options::ImplicitOptions;
