@@ -70,6 +70,7 @@ pub mod run;
 mod setup;
 pub mod spectral;
 pub mod state;
+mod validate;
 
 pub use error::{Error, ModelError, Result};
 /// The `sprs` crate at the version the library uses (its matrices are accepted by

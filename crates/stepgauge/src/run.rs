@@ -328,7 +328,7 @@ where
 {
     let n = state.dofs();
     // The state's fields are public: a NaN or infinite time would never reach the end time.
-    crate::state::check_finite("state time", &[state.t])?;
+    crate::validate::check_finite("state time", &[state.t])?;
     if !options.t_end.is_finite() {
         return Err(Error::InvalidParameter {
             name: "t_end",

@@ -3,7 +3,8 @@
 
 use crate::error::{Error, ModelError, Result};
 use crate::model::{Damping, Model, Motion};
-use crate::state::{State, check_finite, check_len};
+use crate::state::State;
+use crate::validate::{check_finite, check_len};
 
 /// What every integrator needs to know about a model before its first step.
 pub(crate) struct Setup {
@@ -59,30 +60,6 @@ pub(crate) fn setup<M: Model + ?Sized>(model: &M, state: &State) -> Result<Setup
     })
 }
 
-/// Checks a lumped mass: positive and finite on free DOFs, non-negative and finite on
-/// constrained ones.
-pub(crate) fn check_lumped_mass(mass: &[f64], mask: &[bool]) -> Result<()> {
-    for (i, (&m, &fixed)) in mass.iter().zip(mask).enumerate() {
-        let ok = m.is_finite() && if fixed { m >= 0.0 } else { m > 0.0 };
-        if !ok {
-            return Err(Error::NonPositiveMass { dof: i, value: m });
-        }
-    }
-    Ok(())
-}
-
-/// Checks the growth-guard factor of the options.
-pub(crate) fn check_growth_limit(limit: f64) -> Result<()> {
-    if limit.is_nan() || limit <= 0.0 {
-        return Err(Error::InvalidParameter {
-            name: "growth_limit",
-            value: limit,
-            expected: "a positive factor (infinity disables the guard)",
-        });
-    }
-    Ok(())
-}
-
 /// A copy of `state` with the constraints applied at its time: `v = a = 0` at fixed DOFs,
 /// `u = g(t)`, `v = g'(t)`, `a = g''(t)` at prescribed-displacement DOFs, and `v = h(t)`,
 /// `a = h'(t)` at prescribed-velocity DOFs (the rates of [`TimeFunction::rates`]).
@@ -113,23 +90,6 @@ pub(crate) fn constrained_start(constraints: &[(usize, Motion)], state: &State) 
 /// Wraps a model failure with the step and time at which it happened.
 pub(crate) fn model_err(step: u64, t: f64) -> impl Fn(ModelError) -> Error {
     move |source| Error::Model { step, t, source }
-}
-
-/// Checks that a step of size `dt` (already known positive and finite) from time `t` can be
-/// taken: `t` finite (the state's fields are public, so it may have been set to NaN or infinity
-/// since the start) and `t + dt > t` in floating point. A step below the rounding of `t` would
-/// move the state without advancing its time, and a loop stepping to an end time would never end.
-pub(crate) fn check_step_advances(t: f64, dt: f64) -> Result<()> {
-    check_finite("state time", &[t])?;
-    if t + dt > t {
-        Ok(())
-    } else {
-        Err(Error::InvalidParameter {
-            name: "dt",
-            value: dt,
-            expected: "a step above the rounding of the state's time (t + dt must differ from t)",
-        })
-    }
 }
 
 /// The internal energy held at the start, for the growth guard's energy budget: the model's

@@ -3,6 +3,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
+use crate::validate::check_finite;
 
 /// Displacement, velocity and acceleration of every DOF at time `t`, after `step` steps.
 ///
@@ -69,30 +70,5 @@ impl State {
     /// Number of DOFs.
     pub fn dofs(&self) -> usize {
         self.u.len()
-    }
-}
-
-/// Returns an error naming the first non-finite entry of `x`.
-pub(crate) fn check_finite(what: &'static str, x: &[f64]) -> Result<()> {
-    match x.iter().position(|v| !v.is_finite()) {
-        Some(index) => Err(Error::NonFiniteInput {
-            what,
-            index,
-            value: x[index],
-        }),
-        None => Ok(()),
-    }
-}
-
-/// Returns an error when `found != expected`.
-pub(crate) fn check_len(what: &'static str, expected: usize, found: usize) -> Result<()> {
-    if expected == found {
-        Ok(())
-    } else {
-        Err(Error::DimensionMismatch {
-            what,
-            expected,
-            found,
-        })
     }
 }

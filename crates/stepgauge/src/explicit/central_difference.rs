@@ -9,10 +9,11 @@ use crate::linalg::{chunk_count, for_chunks_read, for_chunks2, sum_partials};
 use crate::model::{Damping, Model, Motion};
 use crate::params::ForceVelocity;
 use crate::run::{Integrator, StepReport};
-use crate::setup::{
-    Setup, check_growth_limit, check_lumped_mass, check_step_advances, model_err, setup,
+use crate::setup::{Setup, model_err, setup};
+use crate::state::State;
+use crate::validate::{
+    check_finite, check_growth_limit, check_len, check_lumped_mass, check_step_advances,
 };
-use crate::state::{State, check_finite, check_len};
 
 use super::kernels::{EndLoop, EndSums, first_non_finite, fused_stiffness, loop_a_chunk};
 use super::options::{CentralDifferenceOptions, StableLimit};

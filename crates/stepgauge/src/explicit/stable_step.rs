@@ -44,7 +44,8 @@ pub use crate::linalg::lanczos::{
 };
 use crate::linalg::lanczos::{inverse_sqrt_mass, lanczos};
 use crate::model::Model;
-use crate::state::{State, check_finite, check_len};
+use crate::state::State;
+use crate::validate::{check_finite, check_len};
 
 /// The default fraction of the estimated critical step that a run uses: `0.9`.
 ///

@@ -3,7 +3,9 @@
 
 mod alpha_family;
 mod newton;
+mod options;
 
 pub use crate::error::Criterion;
-pub use alpha_family::{AlphaIntegrator, ImplicitOptions};
+pub use alpha_family::AlphaIntegrator;
 pub use newton::{NewtonOptions, NewtonReport, NewtonVariant};
+pub use options::ImplicitOptions;

@@ -30,7 +30,8 @@ use serde::{Deserialize, Serialize};
 use super::write_atomically;
 use crate::energy::EnergyLedger;
 use crate::error::{Error, Result};
-use crate::state::{State, check_finite};
+use crate::state::State;
+use crate::validate::check_finite;
 
 /// The checkpoint format version this build writes and reads. Version 2 added the forces kept at
 /// constrained DOFs to the energy ledger's pending terms (`Pending::constrained`); version 1 files

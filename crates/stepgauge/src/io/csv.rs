@@ -363,7 +363,7 @@ pub fn write_record_csv(
             "v" => "recorded velocities (record them with RecordOptions::velocity)",
             _ => "recorded accelerations (record them with RecordOptions::acceleration)",
         };
-        crate::state::check_len(what, rows * w, data.len())?;
+        crate::validate::check_len(what, rows * w, data.len())?;
     }
     write_atomically(path, |out| {
         write!(out, "time")?;

@@ -208,14 +208,7 @@ impl LinearSolver for ConjugateGradient {
     }
 
     fn solve_in_place(&mut self, rhs: &mut [f64]) -> Result<SolveInfo> {
-        let not_ready = |missing| Error::SolverNotReady {
-            solver: NAME,
-            missing,
-        };
-        let a = self.a.as_ref().ok_or(not_ready("analyze"))?;
-        if !self.factored {
-            return Err(not_ready("factor"));
-        }
+        let a = super::solver::ready(NAME, self.a.as_ref(), self.factored)?;
         let n = a.nrows();
         check_rhs(rhs, n)?;
         let par = self.opts.parallel;

@@ -355,14 +355,7 @@ impl LinearSolver for SparseCholesky {
     }
 
     fn solve_in_place(&mut self, rhs: &mut [f64]) -> Result<SolveInfo> {
-        let not_ready = |missing| Error::SolverNotReady {
-            solver: NAME,
-            missing,
-        };
-        let an = self.analysed.as_mut().ok_or(not_ready("analyze"))?;
-        if !self.factored {
-            return Err(not_ready("factor"));
-        }
+        let an = super::solver::ready(NAME, self.analysed.as_mut(), self.factored)?;
         let n = an.pattern.nrows();
         check_rhs(rhs, n)?;
         let llt = LltRef::new(&an.symbolic, &self.values);

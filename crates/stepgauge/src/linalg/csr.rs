@@ -161,8 +161,8 @@ impl CsrMatrix {
         };
         let (nrows, ncols) = (first.nrows, first.ncols);
         for m in mats {
-            crate::state::check_len("pattern union: matrix rows", nrows, m.nrows)?;
-            crate::state::check_len("pattern union: matrix columns", ncols, m.ncols)?;
+            crate::validate::check_len("pattern union: matrix rows", nrows, m.nrows)?;
+            crate::validate::check_len("pattern union: matrix columns", ncols, m.ncols)?;
         }
         let mut indptr = Vec::with_capacity(nrows + 1);
         let mut indices = Vec::new();

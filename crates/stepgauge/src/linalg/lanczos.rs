@@ -9,7 +9,7 @@ use rayon::prelude::*;
 
 use crate::error::{Error, Result};
 use crate::linalg::{CHUNK, Parallelism, dot, norm2};
-use crate::state::check_len;
+use crate::validate::check_len;
 
 /// Threshold on `beta / ||A v||` below which the Krylov subspace is taken to be invariant.
 const INVARIANT_TOL: f64 = 64.0 * f64::EPSILON;

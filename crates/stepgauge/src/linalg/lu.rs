@@ -188,14 +188,7 @@ impl LinearSolver for SparseLu {
     }
 
     fn solve_in_place(&mut self, rhs: &mut [f64]) -> Result<SolveInfo> {
-        let not_ready = |missing| Error::SolverNotReady {
-            solver: NAME,
-            missing,
-        };
-        let an = self.analysed.as_mut().ok_or(not_ready("analyze"))?;
-        if !self.factored {
-            return Err(not_ready("factor"));
-        }
+        let an = super::solver::ready(NAME, self.analysed.as_mut(), self.factored)?;
         let n = an.a.nrows();
         check_rhs(rhs, n)?;
         an.b.copy_from_slice(rhs);

@@ -206,6 +206,20 @@ impl SymmetryMap {
     }
 }
 
+/// The analysed data of a solver that is ready to solve: `analysed` when it is there and the
+/// values have been factored.
+///
+/// # Errors
+/// [`Error::SolverNotReady`] naming the call that is missing (`analyze`, then `factor`).
+pub(crate) fn ready<T>(solver: &'static str, analysed: Option<T>, factored: bool) -> Result<T> {
+    let missing = |missing| Error::SolverNotReady { solver, missing };
+    let a = analysed.ok_or(missing("analyze"))?;
+    if !factored {
+        return Err(missing("factor"));
+    }
+    Ok(a)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

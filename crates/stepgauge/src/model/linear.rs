@@ -210,8 +210,8 @@ impl LinearModel {
                 }
             }
             Load::Pattern { pattern, .. } => {
-                crate::state::check_len("load pattern", n, pattern.len())?;
-                crate::state::check_finite("load pattern", pattern)?;
+                crate::validate::check_len("load pattern", n, pattern.len())?;
+                crate::validate::check_finite("load pattern", pattern)?;
             }
             Load::None | Load::Function(_) => {}
         }
@@ -243,7 +243,7 @@ impl LinearModel {
     /// As for [`LinearModel::new`].
     pub fn with_damping_matrix(mut self, c: &CsMat<f64>) -> Result<Self> {
         let c = square("damping", c)?;
-        crate::state::check_len("damping matrix", self.dofs(), c.nrows())?;
+        crate::validate::check_len("damping matrix", self.dofs(), c.nrows())?;
         self.damping = LinearDamping::Matrix(c);
         Ok(self)
     }

@@ -1,0 +1,395 @@
+//! The Newton-Raphson iterations of one sub-step: the predictor, the constrained DOFs' motion,
+//! the convergence criteria, the evaluation of the residual and the iteration matrix.
+
+use super::{AlphaIntegrator, damping_force};
+use crate::error::{Error, Result};
+use crate::implicit::{Criterion, NewtonVariant};
+use crate::model::{Damping, Model, Motion, TimeFunction};
+use crate::setup::model_err;
+use crate::state::State;
+use crate::validate::check_finite;
+
+impl AlphaIntegrator {
+    pub(super) fn try_substep<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &mut State,
+        h: f64,
+    ) -> Result<usize> {
+        if self.fast_linear {
+            return self.linear_substep(model, state, h);
+        }
+        let (t0, t1) = (state.t, state.t + h);
+        let step = state.step + 1;
+        let p = self.params;
+        let cm = (1.0 - p.alpha_m) / (p.beta * h * h);
+        let cc = p.gamma / (p.beta * h);
+        let nopt = self.options.newton;
+        // Predictor: constant acceleration; constrained DOFs from their motion.
+        for i in 0..self.n {
+            self.u1[i] = state.u[i] + h * state.v[i] + 0.5 * h * h * state.a[i];
+        }
+        self.dtot.fill(0.0);
+        // Rates of a prescribed displacement cost 61 evaluations of a plain function: DOFs that
+        // share the function (a base motion on many nodes) reuse the rates of the one before.
+        let mut shared: Option<(&TimeFunction, (f64, f64))> = None;
+        for ((dof, motion), rates) in self.constraints.iter().zip(&mut self.con_rates) {
+            let d = *dof;
+            // The displacement at t1, and the velocity and acceleration there from the motion
+            // itself (not from the scheme's relations, whose acceleration of a prescribed
+            // displacement is only first order and, for the trapezoidal rule, drifts: its
+            // error mode at z = -1 is marginal and driven at its own frequency).
+            let target = match motion {
+                Motion::Fixed => {
+                    *rates = (0.0, 0.0);
+                    state.u[d]
+                }
+                Motion::Displacement(g) => {
+                    *rates = match shared {
+                        Some((f, r)) if f.same_as(g) => r,
+                        _ => g.rates(t1),
+                    };
+                    shared = Some((g, *rates));
+                    g.value(t1)
+                }
+                Motion::Velocity(hv) => {
+                    *rates = (hv.value(t1), hv.rates(t1).0);
+                    state.u[d] + h * hv.value(t0 + 0.5 * h)
+                }
+            };
+            self.dtot[d] = target - self.u1[d];
+            self.u1[d] = target;
+        }
+        self.report.residuals.clear();
+        let (mut r_norm, mut f_ref) = self.evaluate(model, state, t1, h, step)?;
+        let mut r_first = r_norm;
+        let mut e_first = f64::NAN;
+        let mut du_norm = f64::INFINITY;
+        let mut last_energy = f64::INFINITY;
+        let mut iterations = 0usize;
+        loop {
+            let rel = r_norm / f_ref.max(f64::MIN_POSITIVE);
+            if self.report.residuals.len() < self.report.residuals.capacity() {
+                self.report.residuals.push(rel);
+            }
+            if !rel.is_finite() {
+                return Err(self.diverged(t0, h, iterations, rel));
+            }
+            let (converged, failing) = if iterations == 0 {
+                (r_norm == 0.0 || rel <= 1e-14, Criterion::Residual)
+            } else if self.linear {
+                (
+                    iterations > usize::from(self.options.refine_linear),
+                    Criterion::Residual,
+                )
+            } else {
+                // The floors of the criteria (see NewtonOptions).
+                let step_norm = self.diff_norm(state);
+                let u_norm = self.sum_dot(&self.u1, &self.u1).sqrt();
+                let u_ref = step_norm.max(u_norm).max(f64::MIN_POSITIVE);
+                let e_ref = e_first.max(u_norm * f_ref);
+                let residual_ok = rel <= nopt.residual_tolerance;
+                let displacement_ok = du_norm <= nopt.displacement_tolerance * u_ref;
+                let energy_ok = last_energy <= nopt.energy_tolerance * e_ref;
+                // A stall at round-off (see NewtonOptions): the last three residuals within a
+                // factor 2 of each other and below the square root of the tolerance.
+                let stalled = iterations >= 3
+                    && rel <= nopt.residual_tolerance.sqrt()
+                    && plateau(&self.report.residuals);
+                let failing = if !residual_ok {
+                    Criterion::Residual
+                } else if !displacement_ok {
+                    Criterion::Displacement
+                } else {
+                    Criterion::Energy
+                };
+                (
+                    (residual_ok && displacement_ok && energy_ok) || stalled,
+                    failing,
+                )
+            };
+            if converged {
+                break;
+            }
+            if iterations >= nopt.max_iterations {
+                return Err(Error::NewtonNotConverged {
+                    t: t0,
+                    dt: h,
+                    iterations,
+                    residual: rel,
+                    cutbacks: 0,
+                    criterion: failing,
+                    history: self.history(),
+                    dof: self.worst_dof,
+                });
+            }
+            if iterations >= 1 && r_norm > nopt.divergence_factor * r_first {
+                return Err(self.diverged(t0, h, iterations, rel));
+            }
+            // Iteration matrix.
+            let rebuild = if self.linear {
+                self.factored_for != Some(h)
+            } else {
+                match nopt.variant {
+                    NewtonVariant::Full => true,
+                    NewtonVariant::Modified { refresh_every } => {
+                        iterations == 0
+                            || (refresh_every > 0 && iterations.is_multiple_of(refresh_every))
+                    }
+                }
+            };
+            if rebuild {
+                model
+                    .tangent_stiffness(t1, &self.u1, &self.v1, &mut self.k_t)
+                    .map_err(model_err(step, t1))?;
+                check_finite("tangent stiffness", self.k_t.data())?;
+                self.assemble(cm, cc);
+                self.factored_for = None;
+                self.solver.factor(&self.jac)?;
+                if self.linear {
+                    self.factored_for = Some(h);
+                }
+            }
+            // Correction: J du = -R (zero at constrained DOFs).
+            for i in 0..self.n {
+                self.du[i] = -self.res[i];
+            }
+            self.solver.solve_in_place(&mut self.du)?;
+            for (dof, _) in &self.constraints {
+                self.du[*dof] = 0.0;
+            }
+            let energy = self.sum_dot(&self.du, &self.res).abs();
+            if iterations == 0 {
+                e_first = energy;
+            }
+            last_energy = energy;
+            let mut s = 1.0;
+            if nopt.line_search && !self.linear {
+                self.usave.copy_from_slice(&self.u1);
+                self.dsave.copy_from_slice(&self.dtot);
+                let r_start = r_norm;
+                for attempt in 0..5 {
+                    for i in 0..self.n {
+                        self.u1[i] = self.usave[i] + s * self.du[i];
+                        self.dtot[i] = self.dsave[i] + s * self.du[i];
+                    }
+                    let (r, f) = self.evaluate(model, state, t1, h, step)?;
+                    r_norm = r;
+                    f_ref = f;
+                    if r <= (1.0 - 1e-4 * s) * r_start || attempt == 4 {
+                        break;
+                    }
+                    s *= 0.5;
+                }
+            } else {
+                for i in 0..self.n {
+                    self.u1[i] += self.du[i];
+                    self.dtot[i] += self.du[i];
+                }
+                let (r, f) = self.evaluate(model, state, t1, h, step)?;
+                r_norm = r;
+                f_ref = f;
+            }
+            du_norm = s * self.sum_dot(&self.du, &self.du).sqrt();
+            if iterations == 0 {
+                r_first = r_first.max(r_norm);
+            }
+            iterations += 1;
+        }
+        self.accept(model, state, t1, step)?;
+        Ok(iterations)
+    }
+
+    /// `||u1 - u||` over all DOFs.
+    fn diff_norm(&self, state: &State) -> f64 {
+        let s: f64 = self
+            .u1
+            .iter()
+            .zip(&state.u)
+            .map(|(a, b)| (a - b) * (a - b))
+            .sum();
+        self.options.reduce.sum(s).sqrt()
+    }
+
+    /// The relative residuals of the last attempt, for an error (at most the first 64).
+    fn history(&self) -> Vec<f64> {
+        self.report.residuals.iter().take(64).copied().collect()
+    }
+
+    /// A divergence of the attempt at `t0` with sub-step `h`.
+    fn diverged(&self, t0: f64, h: f64, iterations: usize, rel: f64) -> Error {
+        Error::NewtonDiverged {
+            t: t0,
+            dt: h,
+            iterations,
+            residual: rel,
+            cutbacks: 0,
+            history: self.history(),
+            dof: self.worst_dof,
+        }
+    }
+
+    /// Kinematics, forces and residual at the trial `u1`; returns `(||R||, F_ref)` on free DOFs.
+    fn evaluate<M: Model + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &State,
+        t1: f64,
+        h: f64,
+        step: u64,
+    ) -> Result<(f64, f64)> {
+        let p = self.params;
+        let (v0, a0) = (&state.v, &state.a);
+        // With the predictor u_pred = u_n + h v_n + h^2/2 a_n and the correction d = u1 - u_pred,
+        // a1 = a_n + d/(beta h^2) and v1 = v_n + h a_n + gamma d/(beta h): the Newmark relations
+        // written on the correction, which rounds far less than forming them from u1.
+        // Divide rather than multiply by rounded reciprocals: a reciprocal's rounding is the same
+        // every step and biases the energy of the trapezoidal rule steadily (a drift of about one
+        // ulp per step), while the rounding of a division varies and averages out.
+        let bh = p.beta * h;
+        let bh2 = bh * h;
+        for i in 0..self.n {
+            let d = self.dtot[i];
+            self.a1[i] = a0[i] + d / bh2;
+            self.v1[i] = v0[i] + h * a0[i] + (p.gamma * d) / bh;
+        }
+        for ((dof, _), &(v, a)) in self.constraints.iter().zip(&self.con_rates) {
+            (self.v1[*dof], self.a1[*dof]) = (v, a);
+        }
+        let err = model_err(step, t1);
+        model.external_force(t1, &mut self.f_ext1).map_err(&err)?;
+        model
+            .internal_force(t1, &self.u1, &self.v1, &mut self.f_int1)
+            .map_err(&err)?;
+        damping_force(
+            model,
+            self.damping,
+            &self.mass,
+            t1,
+            &self.u1,
+            &self.v1,
+            &mut self.f_d1,
+            &mut self.tmp,
+            self.options.parallel,
+        )
+        .map_err(&err)?;
+        for (k, f) in self.f_x1.iter_mut().enumerate() {
+            model
+                .extra_force(k, t1, &self.u1, &self.v1, f)
+                .map_err(&err)?;
+        }
+        // M w with w = (1 - alpha_m) a1 + alpha_m a0.
+        for i in 0..self.n {
+            self.tmp[i] = (1.0 - p.alpha_m) * self.a1[i] + p.alpha_m * a0[i];
+        }
+        self.mass
+            .mul(&self.tmp, &mut self.mw, self.options.parallel);
+        let (af, bf) = (1.0 - p.alpha_f, p.alpha_f);
+        let mut sums = [0.0; 5];
+        let (mut worst, mut worst_dof) = (-1.0, 0usize);
+        for i in 0..self.n {
+            let mut g1 = self.f_int1[i] + self.f_d1[i];
+            let mut g0 = self.f_int0[i] + self.f_d0[i];
+            for (x1, x0) in self.f_x1.iter().zip(&self.f_x0) {
+                g1 += x1[i];
+                g0 += x0[i];
+            }
+            let fe = af * self.f_ext1[i] + bf * self.f_ext0[i];
+            let g = af * g1 + bf * g0;
+            let r = self.mw[i] + g - fe;
+            if self.mask[i] {
+                // The residual at a constrained DOF is its reaction.
+                self.res[i] = 0.0;
+                sums[4] += r * r;
+            } else {
+                self.res[i] = r;
+                sums[0] += r * r;
+                sums[1] += self.mw[i] * self.mw[i];
+                sums[2] += g * g;
+                sums[3] += fe * fe;
+                // NaN compares false: the first non-finite residual is caught below.
+                if r.abs() > worst {
+                    (worst, worst_dof) = (r.abs(), i);
+                }
+            }
+        }
+        self.options.reduce.sum_in_place(&mut sums);
+        if !sums.iter().all(|x| x.is_finite()) {
+            return Err(self.non_finite_force(step, t1));
+        }
+        self.worst_dof = worst_dof;
+        let f_step = sums[1]
+            .sqrt()
+            .max(sums[2].sqrt())
+            .max(sums[3].sqrt())
+            .max(sums[4].sqrt());
+        self.f_step = f_step;
+        let f_ref = f_step.max(self.ledger.force_peak);
+        Ok((sums[0].sqrt(), f_ref))
+    }
+
+    /// The error for a non-finite force or residual found by [`evaluate`](Self::evaluate): the
+    /// first force that is not finite and its DOF (a cut-back does not make a model's NaN go away,
+    /// so it is reported at once).
+    fn non_finite_force(&self, step: u64, t: f64) -> Error {
+        let (quantity, dof) = [
+            ("external force", &self.f_ext1),
+            ("internal force", &self.f_int1),
+            ("damping force", &self.f_d1),
+            ("inertia force", &self.mw),
+        ]
+        .into_iter()
+        .chain(self.f_x1.iter().map(|f| ("extra force", f)))
+        .find_map(|(q, x)| x.iter().position(|v| !v.is_finite()).map(|d| (q, d)))
+        .unwrap_or(("residual", self.worst_dof));
+        Error::NonFiniteState {
+            quantity,
+            dof,
+            step,
+            t,
+        }
+    }
+
+    /// Fills the iteration matrix `J` for coefficients `cm = (1-alpha_m)/(beta h^2)` and
+    /// `cc = gamma/(beta h)`.
+    pub(super) fn assemble(&mut self, cm: f64, cc: f64) {
+        let af = 1.0 - self.params.alpha_f;
+        let (mut s_m, mut s_k) = (cm, af);
+        if let Damping::Rayleigh { a0, a1 } = self.damping {
+            s_m += af * cc * a0;
+            s_k += af * cc * a1;
+        }
+        let data = self.jac.data_mut();
+        data.fill(0.0);
+        let m_vals = self.mass.values();
+        for (k, pos) in self.mass_map.iter().enumerate() {
+            data[*pos] += s_m * m_vals[k];
+        }
+        for (k, pos) in self.k_map.iter().enumerate() {
+            data[*pos] += s_k * self.k_t.data()[k];
+        }
+        if let Some(c) = &self.c_matrix {
+            for (k, pos) in self.c_map.iter().enumerate() {
+                data[*pos] += af * cc * c.data()[k];
+            }
+        }
+        for p in &self.con_zero {
+            data[*p] = 0.0;
+        }
+        for p in &self.con_diag {
+            data[*p] = 1.0;
+        }
+    }
+}
+
+/// True when the last three values of `history` are finite and within a factor 2 of each other:
+/// a residual that no longer falls (nor grows).
+fn plateau(history: &[f64]) -> bool {
+    match history {
+        [.., a, b, c] => {
+            let (lo, hi) = (a.min(*b).min(*c), a.max(*b).max(*c));
+            hi.is_finite() && hi <= 2.0 * lo
+        }
+        _ => false,
+    }
+}
