@@ -170,7 +170,7 @@ pub enum Error {
     /// A computed value that is not finite: the run has blown up.
     #[error(
         "non-finite {quantity} at DOF {dof} in step {step} (t = {t}); the step was rejected and the last \
-         good state kept. Reduce the step below the stable limit or check the model"
+         good state kept. {}", non_finite_advice(quantity)
     )]
     NonFiniteState {
         /// Which quantity (displacement, force, acceleration).
@@ -186,7 +186,9 @@ pub enum Error {
     #[error(
         "instability detected in step {step} (t = {t}): kinetic energy {kinetic} exceeds {limit} times the \
          energy put into the model ({energy_in}); the step was rejected and the last good state kept. \
-         Reduce the step below the stable limit"
+         Reduce the step below the stable limit; if it is already well below, check that the model's \
+         forces take no energy from nowhere (a sign error in a force, a stiffness that is not \
+         positive)"
     )]
     Unstable {
         /// The step being attempted.
@@ -565,4 +567,15 @@ pub(crate) fn format_history(history: &[f64]) -> String {
     }
     let parts: Vec<String> = history.iter().map(|r| format!("{r:.1e}")).collect();
     parts.join(", ")
+}
+
+/// The advice for a non-finite quantity: a force comes from the model, whose routine is then the
+/// cause; a displacement, velocity or acceleration that blows up points to the step.
+fn non_finite_advice(quantity: &str) -> &'static str {
+    if quantity.ends_with("force") {
+        "The model returned it: check its force routine at that DOF (a material law or an element \
+         evaluated outside its range, a division by a zero length)"
+    } else {
+        "The run blew up: reduce the step below the stable limit, or check the model"
+    }
 }
