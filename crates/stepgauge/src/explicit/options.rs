@@ -22,7 +22,7 @@ pub enum StableLimit {
     Unchecked,
 }
 
-/// Settings of [`CentralDifference`].
+/// Settings of [`CentralDifference`](super::CentralDifference).
 #[derive(Clone)]
 pub struct CentralDifferenceOptions {
     /// Guard against steps above the stable limit. Default: [`StableLimit::Estimate`].
