@@ -170,7 +170,8 @@ pub enum Error {
     /// A computed value that is not finite: the run has blown up.
     #[error(
         "non-finite {quantity} at DOF {dof} in step {step} (t = {t}); the step was rejected and the last \
-         good state kept. {}", non_finite_advice(quantity)
+         good state kept. {}",
+        non_finite_advice(quantity)
     )]
     NonFiniteState {
         /// Which quantity (displacement, force, acceleration).
