@@ -41,15 +41,7 @@ pub(crate) fn setup<M: Model + ?Sized>(model: &M, state: &State) -> Result<Setup
         .collect();
     let damping = model.damping();
     if let Damping::Rayleigh { a0, a1 } = damping {
-        for (name, v) in [("a0", a0), ("a1", a1)] {
-            if !(v.is_finite() && v >= 0.0) {
-                return Err(Error::InvalidParameter {
-                    name,
-                    value: v,
-                    expected: "a non-negative, finite Rayleigh coefficient",
-                });
-            }
-        }
+        crate::validate::check_rayleigh(a0, a1)?;
     }
     Ok(Setup {
         n,

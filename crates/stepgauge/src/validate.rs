@@ -68,3 +68,20 @@ pub(crate) fn check_step_advances(t: f64, dt: f64) -> Result<()> {
         })
     }
 }
+
+/// `Ok` when both Rayleigh coefficients (`C = a0 M + a1 K`) are non-negative and finite.
+///
+/// # Errors
+/// [`Error::InvalidParameter`] naming the coefficient.
+pub(crate) fn check_rayleigh(a0: f64, a1: f64) -> Result<()> {
+    for (name, v) in [("a0", a0), ("a1", a1)] {
+        if !(v.is_finite() && v >= 0.0) {
+            return Err(Error::InvalidParameter {
+                name,
+                value: v,
+                expected: "a non-negative, finite Rayleigh coefficient",
+            });
+        }
+    }
+    Ok(())
+}

@@ -333,20 +333,10 @@ impl CsrMatrix {
     /// `i < nrows` and `x.len() >= ncols`.
     #[inline(always)]
     pub(crate) unsafe fn row_dot_unchecked(&self, i: usize, x: &[f64]) -> f64 {
-        // SAFETY: `i < nrows` (the caller's promise) and `indptr.len() == nrows + 1` (the type's
-        // invariant) put `i` and `i + 1` inside `indptr`; its entries never decrease and end at
-        // `indices.len() == data.len()`, so `lo..hi` lies inside both; every column index is below
-        // `ncols <= x.len()` (the invariant and the caller's promise).
-        unsafe {
-            let lo = *self.indptr.get_unchecked(i);
-            let hi = *self.indptr.get_unchecked(i + 1);
-            let mut s = 0.0;
-            for k in lo..hi {
-                let c = *self.indices.get_unchecked(k) as usize;
-                s += self.data.get_unchecked(k) * x.get_unchecked(c);
-            }
-            s
-        }
+        // SAFETY: `i < nrows` is the caller's promise, which `row_dot_by` needs; it calls the
+        // closure with column indices below `ncols <= x.len()` (the type's invariant and the
+        // caller's promise), so `get_unchecked(c)` stays inside `x`.
+        unsafe { self.row_dot_by(i, |c| *x.get_unchecked(c)) }
     }
 
     /// Row `i` of `A` times the vector whose entry `c` is `x(c)`, summed in stored order from
@@ -437,19 +427,25 @@ mod tests {
     use super::*;
     use sprs::TriMat;
 
-    #[test]
-    fn product_matches_dense_and_is_thread_independent() {
-        let n = 5000;
+    /// A symmetric matrix with diagonal `2 + (i mod 7)` and `off` at distance `offset`, and a
+    /// vector `sin(0.37 i)`.
+    fn banded(n: usize, offset: usize, off: f64) -> (CsrMatrix, Vec<f64>) {
         let mut t = TriMat::new((n, n));
         for i in 0..n {
             t.add_triplet(i, i, 2.0 + (i % 7) as f64);
-            if i + 1 < n {
-                t.add_triplet(i, i + 1, -1.0);
-                t.add_triplet(i + 1, i, -1.0);
+            if i + offset < n {
+                t.add_triplet(i, i + offset, off);
+                t.add_triplet(i + offset, i, off);
             }
         }
         let a = CsrMatrix::from_sprs("K", &t.to_csr()).unwrap();
-        let x: Vec<f64> = (0..n).map(|i| (i as f64 * 0.37).sin()).collect();
+        (a, (0..n).map(|i| (i as f64 * 0.37).sin()).collect())
+    }
+
+    #[test]
+    fn product_matches_dense_and_is_thread_independent() {
+        let n = 5000;
+        let (a, x) = banded(n, 1, -1.0);
         let mut y1 = vec![0.0; n];
         let mut y2 = vec![0.0; n];
         a.mul_vec(&x, &mut y1, Parallelism::serial());
@@ -465,16 +461,7 @@ mod tests {
     #[test]
     fn quadratic_form_and_row_products_match_the_product() {
         let n = 50_001;
-        let mut t = TriMat::new((n, n));
-        for i in 0..n {
-            t.add_triplet(i, i, 2.0 + (i % 7) as f64);
-            if i + 3 < n {
-                t.add_triplet(i, i + 3, -0.7);
-                t.add_triplet(i + 3, i, -0.7);
-            }
-        }
-        let a = CsrMatrix::from_sprs("K", &t.to_csr()).unwrap();
-        let x: Vec<f64> = (0..n).map(|i| (i as f64 * 0.37).sin()).collect();
+        let (a, x) = banded(n, 3, -0.7);
         let mut ax = vec![0.0; n];
         a.mul_vec(&x, &mut ax, Parallelism::serial());
         for par in [Parallelism::serial(), Parallelism { threshold: 1 }] {

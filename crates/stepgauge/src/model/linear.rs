@@ -224,15 +224,7 @@ impl LinearModel {
     /// # Errors
     /// [`Error::InvalidParameter`] for a negative or non-finite coefficient.
     pub fn with_rayleigh(mut self, a0: f64, a1: f64) -> Result<Self> {
-        for (name, v) in [("a0", a0), ("a1", a1)] {
-            if !(v.is_finite() && v >= 0.0) {
-                return Err(Error::InvalidParameter {
-                    name,
-                    value: v,
-                    expected: "a non-negative, finite Rayleigh coefficient",
-                });
-            }
-        }
+        crate::validate::check_rayleigh(a0, a1)?;
         self.damping = LinearDamping::Rayleigh { a0, a1 };
         Ok(self)
     }
