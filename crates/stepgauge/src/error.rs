@@ -573,7 +573,13 @@ pub(crate) fn format_history(history: &[f64]) -> String {
 /// The advice for a non-finite quantity: a force comes from the model, whose routine is then the
 /// cause; a displacement, velocity or acceleration that blows up points to the step.
 fn non_finite_advice(quantity: &str) -> &'static str {
-    if quantity.ends_with("force") {
+    let from_model = [
+        "internal force",
+        "external force",
+        "damping force",
+        "extra force",
+    ];
+    if from_model.contains(&quantity) {
         "The model returned it: check its force routine at that DOF (a material law or an element \
          evaluated outside its range, a division by a zero length)"
     } else {

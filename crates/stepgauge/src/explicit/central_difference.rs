@@ -489,10 +489,11 @@ impl CentralDifference {
         // Forces at t_{n+1} and loop B.
         self.end_of_step(model, step, t_new, dt)?;
 
-        // Guards. The kinetic energy at an integer step already holds half a step of the work
-        // in flight, which the ledger books with the next step: the guard counts it as put in
-        // (from rest under a ramp, step 1 has booked almost nothing; a round-off residual of the
-        // model's force made that "almost" trip the guard).
+        // Guards. The kinetic energy at an integer step runs ahead of the booked work by
+        // dt^2/8 a.M a, which the next step books: the guard counts the next half-trapezoid of
+        // the external forces and reactions (the work in flight, at least that lag) as put in.
+        // From rest under a ramp step 1 has booked almost nothing; a round-off residual of the
+        // model's force made that "almost" trip the guard.
         let l = &self.trial;
         let put_in = l.energy_in + self.in_flight;
         if put_in > 0.0 && l.kinetic > self.options.growth_limit * put_in {

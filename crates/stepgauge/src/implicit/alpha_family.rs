@@ -69,7 +69,8 @@ enum Attempt {
 /// [`reactions`](AlphaIntegrator::reactions) and its work is booked in the ledger.
 ///
 /// **Failure and cut-back.** A sub-step whose iterations do not converge, diverge, or hit a
-/// model or solver failure is retried at half the size, up to `max_cutbacks` times; after
+/// model or solver failure is retried at half the size, up to `max_cutbacks` times (not a
+/// non-finite force at the predictor, which is reported at once with its DOF); after
 /// `regrow_after` easy sub-steps the size doubles again. Converged sub-steps are accepted into the
 /// state as they are reached; when the cut-backs run out the error is returned and the state is the
 /// last converged one.
