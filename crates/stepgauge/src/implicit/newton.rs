@@ -34,13 +34,13 @@ pub enum NewtonVariant {
 ///   the first iteration, with the floor of the forces' work on the displacement).
 ///
 /// A stall at round-off also counts as converged: from the fourth evaluation on, when the last
-/// four relative residuals lie within a factor 1.25 of each other (no trend) and below
+/// four relative residuals lie within a factor 1.5 of each other (no trend) and below
 /// `sqrt(residual_tolerance)` (1e-4 by default; never when the residual test is disabled), the
 /// residual is taken to be at the rounding level of the model's forces, which further iterations
 /// or a smaller step cannot lower (a Green-strain bar at rest computes its strain by cancellation;
 /// at the start of a slow ramp its force round-off is large against the small loads). The rule
 /// cannot tell such a plateau from an iteration converging linearly at a rate above
-/// `1.25^(-1/3) = 0.93` per iteration, which it also accepts once below the `sqrt` bound: with the
+/// `1.5^(-1/3) = 0.87` per iteration, which it also accepts once below the `sqrt` bound: with the
 /// default tolerances it then accepts a relative residual of up to 1e-4 instead of 1e-8. The bound
 /// and the factor are this project's choice (not from a source).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]

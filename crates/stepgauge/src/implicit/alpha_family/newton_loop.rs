@@ -92,7 +92,7 @@ impl AlphaIntegrator {
                 let displacement_ok = du_norm <= nopt.displacement_tolerance * u_ref;
                 let energy_ok = last_energy <= nopt.energy_tolerance * e_ref;
                 // A stall at round-off (see NewtonOptions): the last four relative residuals
-                // within a factor 1.25 of each other and below the square root of a finite
+                // within a factor 1.5 of each other and below the square root of a finite
                 // residual tolerance, with the whole history of the attempt at hand.
                 let stalled = iterations >= 3
                     && nopt.residual_tolerance.is_finite()
@@ -408,16 +408,18 @@ impl AlphaIntegrator {
     }
 }
 
-/// True when the last four values of `history` are finite and within a factor 1.25 of each
-/// other: a residual that neither falls nor grows. A linearly converging sequence passes only at
-/// a rate above `1.25^(-1/3) = 0.93` per iteration.
+/// True when the last four values of `history` are finite and within a factor 1.5 of each other:
+/// a residual that neither falls nor grows. A linearly converging sequence passes only at a rate
+/// above `1.5^(-1/3) = 0.87` per iteration. (Rounding plateaus fluctuate: on the truss example's
+/// slow ramp a factor 1.25 cut back 226 extra sub-steps in 200 steps, 1.5 seven, 2 none; 2 would
+/// pass a rate of 0.8.)
 fn plateau(history: &[f64]) -> bool {
     match history {
         [.., a, b, c, d] => {
             // min and max skip NaN: every value must be finite on its own.
             let lo = a.min(*b).min(*c).min(*d);
             let hi = a.max(*b).max(*c).max(*d);
-            [a, b, c, d].iter().all(|x| x.is_finite()) && hi <= 1.25 * lo
+            [a, b, c, d].iter().all(|x| x.is_finite()) && hi <= 1.5 * lo
         }
         _ => false,
     }
@@ -427,16 +429,16 @@ fn plateau(history: &[f64]) -> bool {
 mod tests {
     use super::plateau;
 
-    /// Flat histories are plateaus; a linear convergence at rate 0.8 or 0.9 is not (its last four
-    /// span a factor 1/0.8^3 = 1.95 or 1/0.9^3 = 1.37); one at 0.95 is (1.17: the documented
+    /// Flat histories are plateaus; a linear convergence at rate 0.8 or 0.85 is not (its last four
+    /// span a factor 1/0.8^3 = 1.95 or 1/0.85^3 = 1.63); one at 0.9 is (1.37: the documented
     /// limit of the rule); a growing or non-finite one is not; fewer than four values never are.
     #[test]
     fn the_plateau_rule() {
         let geometric = |r: f64| (0..6).map(|k| 1e-5 * r.powi(k)).collect::<Vec<f64>>();
         assert!(plateau(&[1e-1, 1.3e-5, 1.0e-5, 1.0e-5, 1.0e-5, 1.0e-5]));
         assert!(!plateau(&geometric(0.8)));
-        assert!(!plateau(&geometric(0.9)));
-        assert!(plateau(&geometric(0.95)));
+        assert!(!plateau(&geometric(0.85)));
+        assert!(plateau(&geometric(0.9)));
         assert!(!plateau(&geometric(1.2)));
         assert!(!plateau(&[1e-5, 1e-5, f64::NAN, 1e-5]));
         assert!(!plateau(&[1e-5, 1e-5, 1e-5]));
