@@ -123,9 +123,6 @@ fn lowest_note(status: LowestStatus) -> Option<String> {
              frequencies): omega_min is approximate"
                 .to_string(),
         ),
-        // A status added to the library later: say what it is.
-        #[allow(unreachable_patterns)]
-        other => Some(format!("{other:?}")),
     }
 }
 

@@ -143,8 +143,6 @@ pub struct AlphaIntegrator {
     ledger: EnergyLedger,
     trial: EnergyLedger,
     report: NewtonReport,
-    /// The free DOF with the largest residual at the last evaluation.
-    worst_dof: usize,
     /// The largest force norm of the last evaluation (before the run's floor).
     f_step: f64,
     /// New highs of the kinetic energy while above the growth limit, and the current high.
@@ -423,7 +421,6 @@ impl AlphaIntegrator {
                 ..NewtonReport::default()
             },
             over_limit: (0, 0.0),
-            worst_dof: 0,
             f_step: 0.0,
         })
     }

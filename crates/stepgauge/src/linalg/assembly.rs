@@ -22,6 +22,8 @@
 use crate::error::{Error, ModelError, Result};
 use crate::linalg::CsrMatrix;
 use crate::model::Model;
+use crate::setup::model_err;
+use crate::validate::check_len;
 
 impl CsrMatrix {
     /// The `n x n` pattern (every value zero) that holds every pair of DOFs of each element: the
@@ -290,23 +292,16 @@ pub fn check_tangent<M: Model + ?Sized>(
             expected: "a positive, finite perturbation",
         });
     }
-    for (what, len) in [("displacement", u.len()), ("velocity", v.len())] {
-        if len != n {
-            return Err(Error::DimensionMismatch {
-                what,
-                expected: n,
-                found: len,
-            });
-        }
-    }
-    let model_err = |source: ModelError| Error::Model { step: 0, t, source };
+    check_len("displacement", n, u.len())?;
+    check_len("velocity", n, v.len())?;
+    let model_err = model_err(0, t);
     let mut k = model
         .tangent_pattern()
         .ok_or_else(|| model_err(ModelError::NotProvided("tangent_pattern")))?
         .clone();
     model
         .tangent_stiffness(t, u, v, &mut k)
-        .map_err(model_err)?;
+        .map_err(&model_err)?;
     let (mut up, mut fp, mut fm) = (u.to_vec(), vec![0.0; n], vec![0.0; n]);
     let mut check = TangentCheck {
         worst: (0, 0),
@@ -319,11 +314,11 @@ pub fn check_tangent<M: Model + ?Sized>(
         up[j] = u[j] + h;
         model
             .internal_force(t, &up, v, &mut fp)
-            .map_err(model_err)?;
+            .map_err(&model_err)?;
         up[j] = u[j] - h;
         model
             .internal_force(t, &up, v, &mut fm)
-            .map_err(model_err)?;
+            .map_err(&model_err)?;
         up[j] = u[j];
         for i in 0..n {
             let fd = (fp[i] - fm[i]) / (2.0 * h);

@@ -14,6 +14,7 @@ use nalgebra::DMatrix;
 
 use crate::error::{Error, Result};
 use crate::linalg::{CsrMatrix, LinearSolver, Parallelism, SparseCholesky};
+use crate::validate::check_len;
 
 /// Largest number of free DOFs for the dense eigen-solve.
 pub const DENSE_LIMIT: usize = 300;
@@ -79,15 +80,8 @@ pub struct LowestEigenvalue {
 /// the sparse solver's errors other than a non-positive-definite `K`.
 pub fn lowest_eigenvalue(m: &CsrMatrix, k: &CsrMatrix, free: &[bool]) -> Result<LowestEigenvalue> {
     let n = m.nrows();
-    for (what, got) in [("stiffness rows", k.nrows()), ("free-DOF mask", free.len())] {
-        if got != n {
-            return Err(Error::DimensionMismatch {
-                what,
-                expected: n,
-                found: got,
-            });
-        }
-    }
+    check_len("stiffness rows", n, k.nrows())?;
+    check_len("free-DOF mask", n, free.len())?;
     let mut index = vec![None; n];
     let mut nf = 0;
     for (slot, _) in index.iter_mut().zip(free).filter(|(_, f)| **f) {
@@ -110,15 +104,15 @@ pub fn lowest_eigenvalue(m: &CsrMatrix, k: &CsrMatrix, free: &[bool]) -> Result<
 
 /// The submatrix of `a` on the rows and columns with `index[i] = Some(new)`.
 fn restrict(a: &CsrMatrix, index: &[Option<usize>], nf: usize) -> Result<CsrMatrix> {
-    let mut t = sprs::TriMat::new((nf, nf));
-    for i in 0..a.nrows() {
+    let mut triplets = Vec::with_capacity(a.nnz());
+    for (i, p) in index.iter().enumerate() {
         for (j, v) in a.row(i) {
-            if let (Some(p), Some(q)) = (index[i], index.get(j).copied().flatten()) {
-                t.add_triplet(p, q, v);
+            if let (Some(p), Some(q)) = (p, index.get(j).copied().flatten()) {
+                triplets.push((*p, q, v));
             }
         }
     }
-    CsrMatrix::from_sprs("restricted matrix", &t.to_csr())
+    CsrMatrix::from_triplets(nf, nf, &triplets)
 }
 
 /// The status from the extreme eigenvalues `lo` and `hi` (by magnitude).

@@ -123,7 +123,7 @@ impl AlphaIntegrator {
                     cutbacks: 0,
                     criterion: failing,
                     history: self.history(),
-                    dof: self.worst_dof,
+                    dof: self.worst_dof(),
                 });
             }
             if iterations >= 1 && r_norm > nopt.divergence_factor * r_first {
@@ -251,7 +251,7 @@ impl AlphaIntegrator {
             residual: rel,
             cutbacks: 0,
             history: self.history(),
-            dof: self.worst_dof,
+            dof: self.worst_dof(),
         }
     }
 
@@ -312,7 +312,6 @@ impl AlphaIntegrator {
             .mul(&self.tmp, &mut self.mw, self.options.parallel);
         let (af, bf) = (1.0 - p.alpha_f, p.alpha_f);
         let mut sums = [0.0; 5];
-        let (mut worst, mut worst_dof) = (-1.0, 0usize);
         for i in 0..self.n {
             let mut g1 = self.f_int1[i] + self.f_d1[i];
             let mut g0 = self.f_int0[i] + self.f_d0[i];
@@ -333,17 +332,12 @@ impl AlphaIntegrator {
                 sums[1] += self.mw[i] * self.mw[i];
                 sums[2] += g * g;
                 sums[3] += fe * fe;
-                // NaN compares false: the first non-finite residual is caught below.
-                if r.abs() > worst {
-                    (worst, worst_dof) = (r.abs(), i);
-                }
             }
         }
         self.options.reduce.sum_in_place(&mut sums);
         if !sums.iter().all(|x| x.is_finite()) {
             return Err(self.non_finite_force(step, t1));
         }
-        self.worst_dof = worst_dof;
         let f_step = sums[1]
             .sqrt()
             .max(sums[2].sqrt())
@@ -352,6 +346,22 @@ impl AlphaIntegrator {
         self.f_step = f_step;
         let f_ref = f_step.max(self.ledger.force_peak);
         Ok((sums[0].sqrt(), f_ref))
+    }
+
+    /// The DOF with the largest residual at the last evaluation (the first non-finite one if
+    /// any): derived from the residual vector when an error needs it, not tracked in the loop.
+    /// Constrained DOFs hold a zero residual.
+    fn worst_dof(&self) -> usize {
+        if let Some(d) = self.res.iter().position(|r| !r.is_finite()) {
+            return d;
+        }
+        let mut worst = (0, -1.0);
+        for (i, r) in self.res.iter().enumerate() {
+            if r.abs() > worst.1 {
+                worst = (i, r.abs());
+            }
+        }
+        worst.0
     }
 
     /// The error for a non-finite force or residual found by [`evaluate`](Self::evaluate): the
@@ -367,7 +377,7 @@ impl AlphaIntegrator {
         .into_iter()
         .chain(self.f_x1.iter().map(|f| ("extra force", f)))
         .find_map(|(q, x)| x.iter().position(|v| !v.is_finite()).map(|d| (q, d)))
-        .unwrap_or(("residual", self.worst_dof));
+        .unwrap_or(("residual", self.worst_dof()));
         Error::NonFiniteState {
             quantity,
             dof,
