@@ -36,10 +36,8 @@ fn bench_model(c: &mut Criterion, name: &str, sizes: &[usize], build: fn(usize) 
         let dt = 0.9 * 2.0 / w;
         let u0: Vec<f64> = (0..n).map(|i| ((i % 97) as f64) * 1e-3).collect();
         let mut state = State::new(0.0, u0, vec![0.0; n]).expect("finite start");
-        let opts = CentralDifferenceOptions {
-            stable_limit: StableLimit::Given(2.0 / w),
-            ..Default::default()
-        };
+        let mut opts = CentralDifferenceOptions::default();
+        opts.stable_limit = StableLimit::Given(2.0 / w);
         let mut cd = CentralDifference::new(&mut model, &mut state, opts).expect("a valid start");
         if n >= 1_000_000 {
             group.sample_size(10);

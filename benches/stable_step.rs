@@ -23,7 +23,7 @@ use stepgauge::State;
 use stepgauge::explicit::{
     EigenOptions, StableStepOptions, omega_max_gershgorin, omega_max_lanczos, stable_step,
 };
-use stepgauge::linalg::Parallelism;
+use stepgauge::linalg::{Execution, Parallelism};
 use stepgauge::model::{LinearModel, Model};
 
 fn gershgorin(c: &mut Criterion) {
@@ -54,10 +54,8 @@ fn lanczos(c: &mut Criterion) {
     group.sample_size(10);
     group.warm_up_time(Duration::from_millis(500));
     group.measurement_time(Duration::from_secs(3));
-    let options = EigenOptions {
-        tolerance: 1e-4,
-        ..Default::default()
-    };
+    let mut options = EigenOptions::default();
+    options.tolerance = 1e-4;
     let models: [(&str, LinearModel); 5] = [
         ("chain", chain(1_000)),
         ("chain", chain(10_000)),
@@ -79,6 +77,7 @@ fn lanczos(c: &mut Criterion) {
                         Ok(())
                     },
                     &options,
+                    &Execution::default(),
                 )
                 .expect("converges at 1e-4")
             })
@@ -99,7 +98,10 @@ fn estimate_default(c: &mut Criterion) {
         let options = StableStepOptions::default();
         group.throughput(Throughput::Elements(n as u64));
         group.bench_with_input(BenchmarkId::new("cube", n), &n, |b, _| {
-            b.iter(|| stable_step::estimate(&mut model, &state, &options).expect("converges"))
+            b.iter(|| {
+                stable_step::estimate(&mut model, &state, &options, &Execution::default())
+                    .expect("converges")
+            })
         });
     }
     group.finish();

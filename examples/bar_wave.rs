@@ -111,10 +111,11 @@ fn main() -> Result<(), stepgauge::Error> {
             reestimate_every: 0,
         },
     );
-    options.record = RecordOptions {
-        dofs: Some(vec![n / 2, n - 1]),
-        velocity: true,
-        ..Default::default()
+    options.record = {
+        let mut o = RecordOptions::default();
+        o.dofs = Some(vec![n / 2, n - 1]);
+        o.velocity = true;
+        o
     };
     let mut arrival = None;
     let outcome = run(&mut cd, &mut rod, &mut state, &options, |_| Flow::Continue)?;

@@ -89,11 +89,9 @@ pub fn stable_limit(p: &dyn ReferenceProblem, scheme: &Scheme) -> Result<Option<
         Scheme::CentralDifference(fv) => {
             let mut model = p.model()?;
             let mut state = p.initial_state();
-            let options = CentralDifferenceOptions {
-                stable_limit: StableLimit::Estimate,
-                force_velocity: *fv,
-                ..Default::default()
-            };
+            let mut options = CentralDifferenceOptions::default();
+            options.stable_limit = StableLimit::Estimate;
+            options.force_velocity = *fv;
             let cd = CentralDifference::new(&mut *model, &mut state, options)?;
             Ok(cd.stable_limit())
         }
@@ -103,7 +101,7 @@ pub fn stable_limit(p: &dyn ReferenceProblem, scheme: &Scheme) -> Result<Option<
             };
             let v = check(scheme, 0.0, &CheckContext::default())?;
             Ok(match v.stability {
-                Stability::Conditional { omega_crit } => Some(omega_crit / w),
+                Stability::Conditional { omega_crit, .. } => Some(omega_crit / w),
                 Stability::Unconditional => None,
                 Stability::Unstable => Some(0.0),
             })
@@ -144,19 +142,15 @@ pub fn run_scheme(
     let stride = stride.max(1);
     match scheme {
         Scheme::CentralDifference(fv) => {
-            let options = CentralDifferenceOptions {
-                stable_limit: StableLimit::Unchecked,
-                force_velocity: *fv,
-                ..Default::default()
-            };
+            let mut options = CentralDifferenceOptions::default();
+            options.stable_limit = StableLimit::Unchecked;
+            options.force_velocity = *fv;
             let mut it = CentralDifference::new(&mut *model, &mut state, options)?;
             walk(&mut it, &mut *model, &mut state, p, dt, n, stride)
         }
         Scheme::Alpha(params) => {
-            let options = ImplicitOptions {
-                newton: *newton,
-                ..Default::default()
-            };
+            let mut options = ImplicitOptions::default();
+            options.newton = *newton;
             let mut it = AlphaIntegrator::new(
                 &mut *model,
                 &mut state,

@@ -512,8 +512,8 @@ fn spectrum_csv_round_trips() {
                 m.spectral_radius.to_bits(),
                 "{row}"
             );
-            assert_eq!(opt(cells[2]), m.damping_ratio.map(f64::to_bits), "{row}");
-            assert_eq!(opt(cells[3]), m.period_error.map(f64::to_bits), "{row}");
+            assert_eq!(opt(cells[2]), m.damping_ratio().map(f64::to_bits), "{row}");
+            assert_eq!(opt(cells[3]), m.period_error().map(f64::to_bits), "{row}");
         }
     }
 }

@@ -192,10 +192,8 @@ fn ledger_term_by_term(fused: bool, by_velocity: bool) {
         fused,
     };
     let mut state = State::new(0.0, vec![0.0, 0.05, -0.03, 0.0], vec![0.0, 0.4, 0.1, 0.0]).unwrap();
-    let opts = CentralDifferenceOptions {
-        stable_limit: StableLimit::Unchecked,
-        ..Default::default()
-    };
+    let mut opts = CentralDifferenceOptions::default();
+    opts.stable_limit = StableLimit::Unchecked;
     let mut cd = CentralDifference::new(&mut m, &mut state, opts.clone()).unwrap();
     let c_times = |v: &[f64]| -> Vec<f64> {
         let kv = k_times(v);
@@ -347,10 +345,8 @@ fn the_growth_guard_trips_on_the_product_of_limit_and_budget() {
     for u0 in [30.0, 0.03] {
         let mut m = common::sdof(1.0, 1.0);
         let mut state = State::new(0.0, vec![u0], vec![0.0]).unwrap();
-        let opts = CentralDifferenceOptions {
-            stable_limit: StableLimit::Unchecked,
-            ..Default::default()
-        };
+        let mut opts = CentralDifferenceOptions::default();
+        opts.stable_limit = StableLimit::Unchecked;
         let mut cd = CentralDifference::new(&mut m, &mut state, opts).unwrap();
         let err = loop {
             if let Err(e) = cd.step(&mut m, &mut state, 2.2) {

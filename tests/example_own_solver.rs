@@ -440,10 +440,11 @@ fn histories_with_both_solvers_agree() {
         )
         .unwrap();
         let mut options = RunOptions::new(0.3, StepControl::Fixed(5e-4));
-        options.record = RecordOptions {
-            dofs: None,
-            energy: false,
-            ..Default::default()
+        options.record = {
+            let mut o = RecordOptions::default();
+            o.dofs = None;
+            o.energy = false;
+            o
         };
         run(&mut it, &mut model, &mut state, &options, |_| {
             Flow::Continue

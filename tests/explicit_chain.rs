@@ -242,10 +242,8 @@ fn results_do_not_depend_on_the_thread_count() {
             let mut model = make();
             let u0: Vec<f64> = (0..n).map(|i| ((i * 7919) % 1013) as f64 * 1e-3).collect();
             let mut state = State::new(0.0, u0, vec![0.0; n]).unwrap();
-            let opts = CentralDifferenceOptions {
-                stable_limit: StableLimit::Given(1.0),
-                ..Default::default()
-            };
+            let mut opts = CentralDifferenceOptions::default();
+            opts.stable_limit = StableLimit::Given(1.0);
             let mut cd = CentralDifference::new(&mut model, &mut state, opts).unwrap();
             for _ in 0..30 {
                 cd.step(&mut model, &mut state, 0.5).unwrap();
@@ -345,11 +343,12 @@ fn named_extra_forces_are_booked_separately_and_the_balance_closes() {
             reestimate_every: 0,
         },
     );
-    opts.record = RecordOptions {
-        dofs: Some(vec![n - 1]),
-        every: 2,
-        velocity: true,
-        ..Default::default()
+    opts.record = {
+        let mut o = RecordOptions::default();
+        o.dofs = Some(vec![n - 1]);
+        o.every = 2;
+        o.velocity = true;
+        o
     };
     let mut calls = 0;
     let out = run(&mut cd, &mut model, &mut state, &opts, |p| {

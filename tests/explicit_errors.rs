@@ -8,9 +8,10 @@ use stepgauge::model::{Constraints, LinearModel, Model};
 use stepgauge::{Error, ModelError, State};
 
 fn opts(limit: StableLimit) -> CentralDifferenceOptions {
-    CentralDifferenceOptions {
-        stable_limit: limit,
-        ..Default::default()
+    {
+        let mut o = CentralDifferenceOptions::default();
+        o.stable_limit = limit;
+        o
     }
 }
 
@@ -191,10 +192,8 @@ fn energy_threshold_breach_keeps_the_last_good_state() {
     // about Omega^2 / 4 of the energy; a 1e-3 threshold catches it.
     let mut model = common::sdof(1.0, 1.0);
     let mut state = State::new(0.0, vec![1.0], vec![0.0]).unwrap();
-    let o = CentralDifferenceOptions {
-        energy_tolerance: Some(1e-3),
-        ..opts(StableLimit::Unchecked)
-    };
+    let mut o = opts(StableLimit::Unchecked);
+    o.balance_tolerance = Some(1e-3);
     let mut cd = CentralDifference::new(&mut model, &mut state, o).unwrap();
     let mut failure = None;
     let mut good = state.clone();

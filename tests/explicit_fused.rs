@@ -95,11 +95,9 @@ fn run<M: Model>(mut m: M, n: usize, fv: ForceVelocity) -> (State, String) {
         .map(|i| ((i * 31) % 17) as f64 * 1e-3 - 0.008)
         .collect();
     let mut state = State::new(0.0, u0, v0).unwrap();
-    let opts = CentralDifferenceOptions {
-        stable_limit: StableLimit::Given(1.0),
-        force_velocity: fv,
-        ..Default::default()
-    };
+    let mut opts = CentralDifferenceOptions::default();
+    opts.stable_limit = StableLimit::Given(1.0);
+    opts.force_velocity = fv;
     let mut cd = CentralDifference::new(&mut m, &mut state, opts).unwrap();
     for k in 0..25 {
         let dt = if k % 3 == 0 { 0.3 } else { 0.45 };

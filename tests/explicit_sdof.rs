@@ -9,9 +9,10 @@ use stepgauge::run::{Flow, RunOptions, StepControl, StopReason, run};
 use stepgauge::{Error, State};
 
 fn unchecked() -> CentralDifferenceOptions {
-    CentralDifferenceOptions {
-        stable_limit: StableLimit::Unchecked,
-        ..Default::default()
+    {
+        let mut o = CentralDifferenceOptions::default();
+        o.stable_limit = StableLimit::Unchecked;
+        o
     }
 }
 
@@ -119,10 +120,8 @@ fn damped_error(dt: f64, treatment: ForceVelocity) -> f64 {
     // C = c as a mass-proportional Rayleigh term: a0 M with a0 = c / m.
     let mut model = common::sdof(m, k).with_rayleigh(c / m, 0.0).unwrap();
     let mut state = State::new(0.0, vec![0.02], vec![0.3]).unwrap();
-    let opts = CentralDifferenceOptions {
-        force_velocity: treatment,
-        ..unchecked()
-    };
+    let mut opts = unchecked();
+    opts.force_velocity = treatment;
     let mut cd = CentralDifference::new(&mut model, &mut state, opts).unwrap();
     let t_end = 1.0;
     let n = (t_end / dt).round() as usize;
@@ -174,10 +173,8 @@ fn stepped_decay_equals_the_spectral_radius() {
             // m = k = 1: omega = 1, dt = Omega, c = 2 xi.
             let mut model = common::sdof(1.0, 1.0).with_rayleigh(2.0 * xi, 0.0).unwrap();
             let mut state = State::new(0.0, vec![1.0], vec![0.2]).unwrap();
-            let opts = CentralDifferenceOptions {
-                force_velocity: fv,
-                ..unchecked()
-            };
+            let mut opts = unchecked();
+            opts.force_velocity = fv;
             let mut cd = CentralDifference::new(&mut model, &mut state, opts).unwrap();
             let project = |s: &State| {
                 let x = [s.u[0], omega_dt * s.v[0], omega_dt * omega_dt * s.a[0]];

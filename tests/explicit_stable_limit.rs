@@ -6,6 +6,7 @@ use stepgauge::explicit::stable_step::{
     LANCZOS_MARGIN_TARGET, StableStepMethod, StableStepOptions, estimate, lanczos_margin,
 };
 use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
+use stepgauge::linalg::Execution;
 use stepgauge::model::Model;
 use stepgauge::{Error, ModelError, State};
 
@@ -79,7 +80,13 @@ fn the_enforced_limit_is_below_the_exact_critical_step() {
         };
         let exact = 2.0 / chain.omega_max();
         let state = State::at_rest(n, 0.0);
-        let s = estimate(&mut chain, &state, &StableStepOptions::default()).unwrap();
+        let s = estimate(
+            &mut chain,
+            &state,
+            &StableStepOptions::default(),
+            &Execution::default(),
+        )
+        .unwrap();
         assert_eq!(s.method, StableStepMethod::Lanczos);
         eprintln!(
             "n {n}: estimate / exact - 1 = {:.1e}, limit / exact - 1 = {:.1e}",
@@ -103,7 +110,7 @@ fn the_enforced_limit_is_below_the_exact_critical_step() {
             s.dt_limit,
             s.dt_critical
         );
-        assert!(s.recommended() <= s.dt_limit_damped);
+        assert!(s.recommended(1.0).unwrap() <= s.dt_limit_damped);
         let mut state = State::new(0.0, vec![0.0; n], vec![1e-3; n]).unwrap();
         let mut cd =
             CentralDifference::new(&mut chain, &mut state, CentralDifferenceOptions::default())

@@ -17,10 +17,8 @@ fn start(p: AlphaParams, newton: NewtonOptions) -> (Duffing, State, AlphaIntegra
 fn start_at(p: AlphaParams, newton: NewtonOptions, u0: f64) -> (Duffing, State, AlphaIntegrator) {
     let mut model = Duffing::reference();
     let mut state = State::new(0.0, vec![u0], vec![0.0]).unwrap();
-    let opts = ImplicitOptions {
-        newton,
-        ..Default::default()
-    };
+    let mut opts = ImplicitOptions::default();
+    opts.newton = newton;
     let it =
         AlphaIntegrator::new(&mut model, &mut state, p, common::DenseLu::boxed(), opts).unwrap();
     (model, state, it)
@@ -271,11 +269,9 @@ fn newton_from_rest_matches_the_scipy_reference() {
 /// Dennis & Schnabel 1983, *Numerical Methods for Unconstrained Optimization*, thm. 5.2.1).
 #[test]
 fn full_newton_converges_quadratically() {
-    let newton = NewtonOptions {
-        residual_tolerance: 1e-13,
-        displacement_tolerance: 1e-13,
-        ..Default::default()
-    };
+    let mut newton = NewtonOptions::default();
+    newton.residual_tolerance = 1e-13;
+    newton.displacement_tolerance = 1e-13;
     let (mut model, mut state, mut it) = start(AlphaParams::average_acceleration(), newton);
     model.f0 = 30.0; // drive it hard so that steps need several iterations
     let mut best: Option<Vec<f64>> = None;
@@ -302,12 +298,10 @@ fn full_newton_converges_quadratically() {
 /// tolerances); modified Newton needs more iterations (linear convergence).
 #[test]
 fn modified_newton_and_line_search_reach_the_same_solution() {
-    let tight = NewtonOptions {
-        residual_tolerance: 1e-11,
-        displacement_tolerance: 1e-11,
-        max_iterations: 60,
-        ..Default::default()
-    };
+    let mut tight = NewtonOptions::default();
+    tight.residual_tolerance = 1e-11;
+    tight.displacement_tolerance = 1e-11;
+    tight.max_iterations = 60;
     let run = |newton: NewtonOptions| {
         let (mut model, mut state, mut it) = start(AlphaParams::hht(-0.2).unwrap(), newton);
         model.f0 = 10.0;
@@ -319,17 +313,20 @@ fn modified_newton_and_line_search_reach_the_same_solution() {
         (state.u[0], iters)
     };
     let (u_full, it_full) = run(tight);
-    let (u_mod, it_mod) = run(NewtonOptions {
-        variant: NewtonVariant::Modified { refresh_every: 0 },
-        ..tight
+    let (u_mod, it_mod) = run({
+        let mut o = tight;
+        o.variant = NewtonVariant::Modified { refresh_every: 0 };
+        o
     });
-    let (u_mod3, _) = run(NewtonOptions {
-        variant: NewtonVariant::Modified { refresh_every: 3 },
-        ..tight
+    let (u_mod3, _) = run({
+        let mut o = tight;
+        o.variant = NewtonVariant::Modified { refresh_every: 3 };
+        o
     });
-    let (u_ls, _) = run(NewtonOptions {
-        line_search: true,
-        ..tight
+    let (u_ls, _) = run({
+        let mut o = tight;
+        o.line_search = true;
+        o
     });
     for u in [u_mod, u_mod3, u_ls] {
         assert!((u - u_full).abs() < 1e-8, "{u} vs {u_full}");
@@ -345,12 +342,10 @@ fn modified_newton_and_line_search_reach_the_same_solution() {
 /// quadratic convergence puts the next one far below), where the loose run does not.
 #[test]
 fn newton_stops_only_when_every_criterion_holds() {
-    let loose = NewtonOptions {
-        residual_tolerance: 0.5,
-        displacement_tolerance: 0.5,
-        energy_tolerance: 0.5,
-        ..Default::default()
-    };
+    let mut loose = NewtonOptions::default();
+    loose.residual_tolerance = 0.5;
+    loose.displacement_tolerance = 0.5;
+    loose.energy_tolerance = 0.5;
     let run = |newton: NewtonOptions, check_residual: bool| {
         let (mut model, mut state, mut it) = start(AlphaParams::average_acceleration(), newton);
         for _ in 0..40 {
@@ -369,16 +364,18 @@ fn newton_stops_only_when_every_criterion_holds() {
         "the loose run is not distinguishable: {sloppy} vs {tight}"
     );
     run(
-        NewtonOptions {
-            residual_tolerance: 1e-13,
-            ..loose
+        {
+            let mut o = loose;
+            o.residual_tolerance = 1e-13;
+            o
         },
         true,
     );
     let by_increment = run(
-        NewtonOptions {
-            displacement_tolerance: 1e-13,
-            ..loose
+        {
+            let mut o = loose;
+            o.displacement_tolerance = 1e-13;
+            o
         },
         false,
     );
@@ -391,10 +388,8 @@ fn newton_stops_only_when_every_criterion_holds() {
 /// With few iterations allowed, a large step is cut back and regrown, and still reaches its end.
 #[test]
 fn hard_steps_are_cut_back_and_regrown() {
-    let newton = NewtonOptions {
-        max_iterations: 4,
-        ..Default::default()
-    };
+    let mut newton = NewtonOptions::default();
+    newton.max_iterations = 4;
     let (mut model, mut state, mut it) = start(AlphaParams::average_acceleration(), newton);
     model.f0 = 40.0;
     let mut cut = 0;
@@ -469,11 +464,9 @@ impl Model for Timed {
 /// to land on the end rather than pass it.
 #[test]
 fn cut_back_sub_steps_partition_the_step() {
-    let newton = NewtonOptions {
-        max_iterations: 4,
-        regrow_after: 1,
-        ..Default::default()
-    };
+    let mut newton = NewtonOptions::default();
+    newton.max_iterations = 4;
+    newton.regrow_after = 1;
     let (d, mut state, mut it) = start(AlphaParams::average_acceleration(), newton);
     let mut model = Timed(d, Vec::new());
     model.0.f0 = 40.0;
@@ -615,19 +608,18 @@ impl Model for GoesNan {
 fn a_non_finite_force_fails_the_step_at_once_with_its_dof() {
     let mut model = GoesNan(Duffing::reference(), 0.33);
     let mut state = State::new(0.0, vec![0.5], vec![0.0]).unwrap();
-    let newton = NewtonOptions {
-        max_cutbacks: 4,
-        ..Default::default()
-    };
+    let mut newton = NewtonOptions::default();
+    newton.max_cutbacks = 4;
     let mut it = AlphaIntegrator::new(
         &mut model,
         &mut state,
         // The trapezoidal rule balances forces at t_{n+1} itself (what `assert_converged` checks).
         AlphaParams::average_acceleration(),
         common::DenseLu::boxed(),
-        ImplicitOptions {
-            newton,
-            ..Default::default()
+        {
+            let mut o = ImplicitOptions::default();
+            o.newton = newton;
+            o
         },
     )
     .unwrap();
@@ -670,14 +662,12 @@ fn failure_at_the_smallest_step_keeps_the_last_converged_state() {
     assert_converged(&mut model.0, &state, &it);
 
     // Newton that cannot converge (one iteration on a nonlinear step): typed error, state kept.
-    let (mut model, mut state, mut it) = start(
-        AlphaParams::average_acceleration(),
-        NewtonOptions {
-            max_iterations: 1,
-            max_cutbacks: 2,
-            ..Default::default()
-        },
-    );
+    let (mut model, mut state, mut it) = start(AlphaParams::average_acceleration(), {
+        let mut o = NewtonOptions::default();
+        o.max_iterations = 1;
+        o.max_cutbacks = 2;
+        o
+    });
     let before = state.clone();
     let ledger = it.energy().clone();
     let e = it.step(&mut model, &mut state, 0.5).unwrap_err();

@@ -458,12 +458,14 @@ fn recorded_histories_written_as_csv_read_back_to_the_same_doubles() {
         CentralDifference::new(&mut model, &mut state, CentralDifferenceOptions::default())
             .unwrap();
     let mut opts = RunOptions::new(0.5, StepControl::Fixed(0.01));
-    opts.record = RecordOptions {
-        dofs: Some(vec![5, 2]),
-        every: 7,
-        velocity: true,
-        acceleration: true,
-        energy: true,
+    opts.record = {
+        let mut o = RecordOptions::default();
+        o.dofs = Some(vec![5, 2]);
+        o.every = 7;
+        o.velocity = true;
+        o.acceleration = true;
+        o.energy = true;
+        o
     };
     let out = run(&mut cd, &mut model, &mut state, &opts, |_| Flow::Continue)
         .unwrap()

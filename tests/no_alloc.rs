@@ -108,10 +108,8 @@ fn explicit_plain_linear_steps_allocate_nothing() {
         pool.install(|| {
             let mut m = plain_model(n);
             let mut state = State::new(0.0, vec![1e-3; n], vec![0.0; n]).unwrap();
-            let opts = CentralDifferenceOptions {
-                stable_limit: StableLimit::Given(1.0),
-                ..Default::default()
-            };
+            let mut opts = CentralDifferenceOptions::default();
+            opts.stable_limit = StableLimit::Given(1.0);
             let mut cd = CentralDifference::new(&mut m, &mut state, opts).unwrap();
             for _ in 0..5 {
                 cd.step(&mut m, &mut state, 0.5).unwrap();
@@ -135,10 +133,8 @@ fn explicit_memory_is_six_vectors() {
     let n = 300_000;
     let mut m = plain_model(n);
     let mut state = State::new(0.0, vec![1e-3; n], vec![0.0; n]).unwrap();
-    let opts = CentralDifferenceOptions {
-        stable_limit: StableLimit::Given(1.0),
-        ..Default::default()
-    };
+    let mut opts = CentralDifferenceOptions::default();
+    opts.stable_limit = StableLimit::Given(1.0);
     let base = LIVE.load(Ordering::SeqCst);
     PEAK.store(base, Ordering::SeqCst);
     let mut cd = CentralDifference::new(&mut m, &mut state, opts).unwrap();
@@ -181,11 +177,9 @@ fn check(n: usize, treatment: ForceVelocity) {
     {
         let mut m = model(n);
         let mut state = State::at_rest(n, 0.0);
-        let opts = CentralDifferenceOptions {
-            stable_limit: StableLimit::Given(1.0),
-            force_velocity: treatment,
-            ..Default::default()
-        };
+        let mut opts = CentralDifferenceOptions::default();
+        opts.stable_limit = StableLimit::Given(1.0);
+        opts.force_velocity = treatment;
         let mut cd = CentralDifference::new(&mut m, &mut state, opts).unwrap();
         for _ in 0..5 {
             cd.step(&mut m, &mut state, 0.5).unwrap();

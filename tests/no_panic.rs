@@ -27,11 +27,11 @@ use stepgauge::explicit::{
 };
 use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions, NewtonVariant};
 use stepgauge::linalg::{
-    CgOptions, ConjugateGradient, CsrMatrix, LinearSolver, Parallelism, SparseCholesky, SparseLu,
-    dot, norm2, spmv,
+    CgOptions, ConjugateGradient, CsrMatrix, Execution, LinearSolver, Parallelism, SparseCholesky,
+    SparseLu, dot, norm2, spmv,
 };
 use stepgauge::model::{Constraints, Damping, LinearModel, Load, LoadTable, Model, TimeFunction};
-use stepgauge::params::{AlphaParams, Family};
+use stepgauge::params::AlphaParams;
 use stepgauge::reference::{
     BarImpact, Duffing, ReferenceProblem, SdofFree, SdofHalfSine, SdofHarmonic, StiffSoft,
     TwoDofStep,
@@ -150,9 +150,10 @@ fn same_bits(a: &State, b: &State) -> bool {
 }
 
 fn explicit_opts(stable: StableLimit) -> CentralDifferenceOptions {
-    CentralDifferenceOptions {
-        stable_limit: stable,
-        ..Default::default()
+    {
+        let mut o = CentralDifferenceOptions::default();
+        o.stable_limit = stable;
+        o
     }
 }
 
@@ -397,12 +398,21 @@ proptest! {
                 refused(name, &(a, b, c, d), &r);
             }
         }
-        // A set built field by field (the fields are public).
-        let p = AlphaParams { alpha_m: a, alpha_f: b, beta: c, gamma: d, family: Family::Custom };
-        let r = guard("validate_for_stepping", &p, || p.validate_for_stepping());
-        if !([a, b, c, d].iter().all(|&x| finite(x)) && a < 1.0 && b < 1.0 && c > 0.0 && d >= 0.0) {
-            refused("validate_for_stepping", &p, &r);
+        // A set read from JSON (a checkpoint edited by hand) is checked as the constructors
+        // check; a set that passes is then judged for stepping.
+        let json = serde_json::json!({"alpha_m": a, "alpha_f": b, "beta": c, "gamma": d, "family": "custom"});
+        let read = guard("AlphaParams from JSON", &json, || serde_json::from_value::<AlphaParams>(json.clone()));
+        let raw_ok = AlphaParams::raw(a, b, c, d).is_ok();
+        prop_assert_eq!(read.is_ok(), raw_ok, "{:?}", read);
+        if let Ok(p) = read {
+            let r = guard("validate_for_stepping", &p, || p.validate_for_stepping());
+            if c <= 0.0 {
+                refused("validate_for_stepping", &p, &r);
+            }
         }
+        // A label that does not fit the values is refused.
+        let json = serde_json::json!({"alpha_m": 0.1, "alpha_f": 0.0, "beta": 0.3, "gamma": 0.6, "family": "newmark"});
+        prop_assert!(serde_json::from_value::<AlphaParams>(json).is_err());
     }
 
     /// The central difference: construction with any masses, stiffness, options and start, then
@@ -425,13 +435,11 @@ proptest! {
             .with_load(Load::Function(std::sync::Arc::new(move |_t: f64, out: &mut [f64]| out.fill(g))))
             .unwrap();
         let stable_limit = [StableLimit::Given(given), StableLimit::Unchecked, StableLimit::Estimate][which];
-        let options = CentralDifferenceOptions {
-            stable_limit,
-            energy_tolerance: (which == 1).then_some(tol),
-            growth_limit: growth,
-            force_velocity: if predicted { ForceVelocity::Predicted } else { ForceVelocity::Lagged },
-            ..Default::default()
-        };
+        let mut options = CentralDifferenceOptions::default();
+        options.stable_limit = stable_limit;
+        options.balance_tolerance = (which == 1).then_some(tol);
+        options.growth_limit = growth;
+        options.force_velocity = if predicted { ForceVelocity::Predicted } else { ForceVelocity::Lagged };
         let mut state = State::at_rest(n, 0.0);
         state.u.fill(u0);
         state.v.fill(v0);
@@ -485,21 +493,23 @@ proptest! {
         am in num(), beta in num(), growth in num(), rtol in num(), max_iter in 0..3usize,
         dt in num(), solver in 0..4usize, wrong in 0..4usize, consistent in any::<bool>(),
     ) {
-        let p = AlphaParams { alpha_m: am.min(0.9), alpha_f: 0.0, beta, gamma: 0.5, family: Family::Custom };
+        // Sets the constructors refuse cannot be made; the integrator judges the rest.
+        let Ok(p) = AlphaParams::raw(am.min(0.9), 0.0, beta, 0.5) else {
+            return Ok(());
+        };
         let input = (n, m, k, u0, p, growth, rtol, max_iter, solver, consistent);
         let mass = if consistent && n > 1 { sym(n, &[m], 0.1) } else { diag(&vec![m; n]) };
         let Ok(mut model) = LinearModel::new(&mass, &common::chain_stiffness(n, k, true, false)) else {
             return Ok(());
         };
-        let options = ImplicitOptions {
-            growth_limit: growth,
-            newton: NewtonOptions {
-                residual_tolerance: rtol,
-                max_iterations: max_iter,
-                variant: NewtonVariant::Modified { refresh_every: 0 },
-                ..Default::default()
-            },
-            ..Default::default()
+        let mut options = ImplicitOptions::default();
+        options.growth_limit = growth;
+        options.newton = {
+            let mut o = NewtonOptions::default();
+            o.residual_tolerance = rtol;
+            o.max_iterations = max_iter;
+            o.variant = NewtonVariant::Modified { refresh_every: 0 };
+            o
         };
         let solver: Box<dyn LinearSolver> = match solver {
             0 => Box::new(SparseCholesky::new()),
@@ -550,7 +560,12 @@ proptest! {
         let step = if auto { StepControl::Auto { safety, reestimate_every: 3 } } else { StepControl::Fixed(dt) };
         let mut opts = RunOptions::new(t_end, step);
         opts.max_steps = Some(50);
-        opts.record = RecordOptions { dofs: Some(vec![dof]), every, ..Default::default() };
+        opts.record = {
+            let mut o = RecordOptions::default();
+            o.dofs = Some(vec![dof]);
+            o.every = every;
+            o
+        };
         let input = (t_end, step, every, dof, t0);
         let r = guard("run", &input, || run(&mut cd, &mut model, &mut state, &opts, |_| Flow::Continue));
         let invalid = !finite(t_end) || !finite(t0) || every == 0 || dof >= 2
@@ -597,14 +612,17 @@ proptest! {
         if n == 0 || mask_len != n || free_mass_bad || !finite(kd) {
             refused("omega_max_gershgorin", &input, &r);
         }
-        let eig = EigenOptions { tolerance: tol, krylov_dim: krylov, max_products: products, ..Default::default() };
+        let mut eig = EigenOptions::default();
+        eig.tolerance = tol;
+        eig.krylov_dim = krylov;
+        eig.max_products = products;
         let input = (&mass, mask_len, eig, product_value);
         let r = guard("omega_max_lanczos", &input, || omega_max_lanczos(&mass, Some(&mask), |x, out| {
             for (o, xi) in out.iter_mut().zip(x) {
                 *o = product_value * xi;
             }
             Ok(())
-        }, &eig));
+        }, &eig, &Execution::default()));
         if !(finite(tol) && tol > 0.0 && tol < 1.0) || krylov < 2 || products == 0 || n == 0
             || mask_len != n || free_mass_bad
         {
@@ -614,13 +632,21 @@ proptest! {
         let mut model = chain(2, 3.0);
         let mut state = State::at_rest(2, 0.0);
         state.u[0] = product_value;
-        let opts = StableStepOptions { safety, eigen: EigenOptions { krylov_dim: krylov.max(2), ..Default::default() }, ..Default::default() };
-        let r = guard("stable_step::estimate", &(safety, product_value), || estimate(&mut model, &state, &opts));
-        if !(finite(safety) && safety > 0.0 && safety <= 1.0) || !finite(product_value) {
-            refused("estimate", &(safety, product_value), &r);
+        let mut opts = StableStepOptions::default();
+        opts.eigen.krylov_dim = krylov.max(2);
+        let ex = Execution::default();
+        let r = guard("stable_step::estimate", &product_value, || estimate(&mut model, &state, &opts, &ex));
+        if !finite(product_value) {
+            refused("estimate", &product_value, &r);
+        }
+        if let Ok(est) = r {
+            let r = guard("StableStep::recommended", &safety, || est.recommended(safety));
+            if !(finite(safety) && safety > 0.0 && safety <= 1.0) {
+                refused("recommended", &safety, &r);
+            }
         }
         let short = State::at_rest(mask_len % 2, 0.0);
-        let r = guard("stable_step::estimate (short state)", &mask_len, || estimate(&mut model, &short, &StableStepOptions::default()));
+        let r = guard("stable_step::estimate (short state)", &mask_len, || estimate(&mut model, &short, &StableStepOptions::default(), &ex));
         refused("estimate (short state)", &mask_len, &r);
         guard("ForceVelocity::critical_omega_dt", &xi, || {
             (ForceVelocity::Lagged.critical_omega_dt(xi), ForceVelocity::Predicted.critical_omega_dt(xi))
@@ -638,15 +664,14 @@ fn any_scheme() -> impl Strategy<Value = Scheme> {
         Just(Scheme::Alpha(AlphaParams::average_acceleration())),
         Just(Scheme::Alpha(AlphaParams::generalized_alpha(0.3).unwrap())),
         Just(Scheme::Alpha(AlphaParams::newmark(0.0, 0.5).unwrap())),
-        (num(), num(), num(), num()).prop_map(|(alpha_m, alpha_f, beta, gamma)| Scheme::Alpha(
-            AlphaParams {
-                alpha_m,
-                alpha_f,
-                beta,
-                gamma,
-                family: Family::Custom
+        (num(), num(), num(), num()).prop_filter_map(
+            "a set the constructors accept",
+            |(alpha_m, alpha_f, beta, gamma)| {
+                AlphaParams::raw(alpha_m, alpha_f, beta, gamma)
+                    .ok()
+                    .map(Scheme::Alpha)
             }
-        )),
+        ),
     ]
 }
 
@@ -703,11 +728,15 @@ proptest! {
         if !(finite(w) && w > 0.0 && finite(target) && target > 0.0) {
             refused("largest_step_for_damping", &input, &r);
         }
-        let ctx = CheckContext { omega_max: Some(w), dt: Some(dt), omega_interest: None, period_error_target: None };
+        let mut ctx = CheckContext::default();
+        ctx.omega_max = Some(w);
+        ctx.dt = Some(dt);
+        ctx.omega_interest = None;
+        ctx.period_error_target = None;
         let input = (scheme, xi, w, dt);
         let r = guard("spectral::check", &input, || spectral::check(&scheme, xi, &ctx));
         let params_bad = match scheme {
-            Scheme::Alpha(p) => AlphaParams::raw(p.alpha_m, p.alpha_f, p.beta, p.gamma).is_err(),
+            Scheme::Alpha(p) => AlphaParams::raw(p.alpha_m(), p.alpha_f(), p.beta(), p.gamma()).is_err(),
             Scheme::CentralDifference(_) => false,
         };
         if !(finite(xi) && xi >= 0.0 && finite(w) && w > 0.0 && finite(dt) && dt > 0.0) || params_bad {
@@ -819,11 +848,11 @@ proptest! {
             prop_assert!(y.iter().all(|v| v.is_nan()));
         }
         guard("spmv", &(xlen, ylen), || spmv(&a, &x, &mut y, Parallelism { threshold: 1 }));
-        let d = guard("dot", &(xlen, ylen), || dot(&x, &y, Parallelism::serial()));
+        let d = guard("dot", &(xlen, ylen), || dot(&x, &y, &Execution::serial()));
         if xlen != ylen {
             prop_assert!(d.is_nan());
         }
-        guard("norm2", &xlen, || norm2(&x, Parallelism::serial()));
+        guard("norm2", &xlen, || norm2(&x, &Execution::serial()));
         let b = CsrMatrix::from_diagonal(&vec![1.0; j]);
         let r = guard("CsrMatrix::pattern_union", &(i, j), || CsrMatrix::pattern_union(&[&a, &b]));
         if a.nrows() != j || a.ncols() != j {
@@ -849,8 +878,11 @@ proptest! {
         rhs in vec_of(0..5), order in prop::collection::vec(0..4usize, 1..6), cg_tol in num(),
         cg_iter in prop::option::of(0..3usize),
     ) {
-        let cg = guard("ConjugateGradient::new", &cg_tol, || ConjugateGradient::new(CgOptions {
-            relative_tolerance: cg_tol, max_iterations: cg_iter, ..Default::default()
+        let cg = guard("ConjugateGradient::new", &cg_tol, || ConjugateGradient::new({
+            let mut o = CgOptions::default();
+            o.relative_tolerance = cg_tol;
+            o.max_iterations = cg_iter;
+            o
         }));
         if !(cg_tol > 0.0 && cg_tol < 1.0) {
             refused("ConjugateGradient::new", &cg_tol, &cg);
@@ -1042,20 +1074,20 @@ fn regression_omega_crit_numeric_with_unbounded_scan() {
 }
 
 /// `spectral::check` gave a verdict ("unconditionally stable") for parameters with NaN in them.
+/// Such a set can no longer be made: the constructors and deserialisation refuse it.
 #[test]
 fn regression_check_refuses_nan_parameters() {
-    let p = AlphaParams {
-        alpha_m: 0.0,
-        alpha_f: 0.0,
-        beta: f64::NAN,
-        gamma: 0.5,
-        family: Family::Custom,
-    };
-    let e = spectral::check(&Scheme::Alpha(p), 0.0, &CheckContext::default()).unwrap_err();
+    let e = AlphaParams::raw(0.0, 0.0, f64::NAN, 0.5).unwrap_err();
     assert!(
         matches!(e, Error::InvalidParameter { name: "beta", .. }),
         "{e}"
     );
+    let json =
+        r#"{"alpha_m": 0.0, "alpha_f": 0.0, "beta": 1e400, "gamma": 0.5, "family": "custom"}"#;
+    assert!(serde_json::from_str::<AlphaParams>(json).is_err());
+    let p = AlphaParams::raw(0.0, 0.0, 0.25, 0.5).unwrap();
+    let e = spectral::check(&Scheme::Alpha(p), f64::NAN, &CheckContext::default()).unwrap_err();
+    assert!(matches!(e, Error::InvalidParameter { .. }), "{e}");
 }
 
 /// `BarImpact::exact` summed image sources for ever for a bar of zero length or an infinite
@@ -1142,7 +1174,7 @@ fn regression_csr_matrix_refuses_bad_arrays() {
     let mut y = vec![0.0; 2];
     a.mul_vec(&[1.0; 3], &mut y, Parallelism::serial());
     assert!(y.iter().all(|v| v.is_nan()));
-    assert!(dot(&[1.0], &[1.0, 2.0], Parallelism::serial()).is_nan());
+    assert!(dot(&[1.0], &[1.0, 2.0], &Execution::serial()).is_nan());
 }
 
 /// A step from a state whose (public) time was set to NaN or infinity made the implicit

@@ -103,7 +103,11 @@ proptest! {
         let mut state = State::new(0.0, u0.clone(), v0.clone()).unwrap();
         let mut it = AlphaIntegrator::new(
             &mut model, &mut state, AlphaParams::average_acceleration(),
-            common::DenseLu::boxed(), ImplicitOptions { refine_linear: true, ..Default::default() },
+            common::DenseLu::boxed(), {
+                let mut o = ImplicitOptions::default();
+                o.refine_linear = true;
+                o
+            },
         ).unwrap();
         let e0 = energy(&m, &k, &state.u, &state.v);
         prop_assume!(e0 > 1e-6);
@@ -174,14 +178,11 @@ fn explicit_chain(
     let (mm, kk) = chain_matrices(m, k, right_wall);
     let mut model = LinearModel::new(&sparse(&mm), &sparse(&kk)).unwrap();
     let mut state = State::new(0.0, u0.to_vec(), v0.to_vec()).unwrap();
-    let cd = CentralDifference::new(
-        &mut model,
-        &mut state,
-        CentralDifferenceOptions {
-            stable_limit: StableLimit::Estimate,
-            ..Default::default()
-        },
-    )
+    let cd = CentralDifference::new(&mut model, &mut state, {
+        let mut o = CentralDifferenceOptions::default();
+        o.stable_limit = StableLimit::Estimate;
+        o
+    })
     .unwrap();
     let dt = fraction * cd.stable_limit().unwrap();
     let omega = omega_max(&mm, &kk) * dt;
@@ -339,11 +340,9 @@ proptest! {
         let n = ((150.0 / -rho.log10().min(-1e-3)) as usize).clamp(5, 40);
         match scheme {
             Scheme::CentralDifference(fv) => {
-                let opts = CentralDifferenceOptions {
-                    force_velocity: fv,
-                    stable_limit: StableLimit::Unchecked,
-                    ..Default::default()
-                };
+                let mut opts = CentralDifferenceOptions::default();
+                opts.force_velocity = fv;
+                opts.stable_limit = StableLimit::Unchecked;
                 let mut cd = CentralDifference::new(&mut model, &mut state, opts).unwrap();
                 let c0 = project(&state);
                 for _ in 0..n {
@@ -354,7 +353,8 @@ proptest! {
                     "{fam:?} Omega {omega_dt} xi {xi}: measured {measured}, predicted {rho}");
             }
             Scheme::Alpha(p) => {
-                let opts = ImplicitOptions { growth_limit: f64::INFINITY, ..Default::default() };
+                let mut opts = ImplicitOptions::default();
+                opts.growth_limit = f64::INFINITY;
                 let mut it = AlphaIntegrator::new(&mut model, &mut state, p, common::DenseLu::boxed(), opts).unwrap();
                 let c0 = project(&state);
                 for _ in 0..n {
@@ -418,11 +418,12 @@ fn stepped_matrix(scheme: &Scheme, omega_dt: f64, xi: f64, theta: f64) -> [[f64;
         state.a[0] = x[2] / (dt * dt);
         match scheme {
             Scheme::CentralDifference(fv) => {
-                let opts = || CentralDifferenceOptions {
-                    force_velocity: *fv,
-                    stable_limit: StableLimit::Unchecked,
-                    growth_limit: f64::INFINITY,
-                    ..Default::default()
+                let opts = || {
+                    let mut o = CentralDifferenceOptions::default();
+                    o.force_velocity = *fv;
+                    o.stable_limit = StableLimit::Unchecked;
+                    o.growth_limit = f64::INFINITY;
+                    o
                 };
                 let mut rest = State::at_rest(1, 0.0);
                 let ledger = CentralDifference::new(&mut model, &mut rest, opts())
@@ -433,9 +434,10 @@ fn stepped_matrix(scheme: &Scheme, omega_dt: f64, xi: f64, theta: f64) -> [[f64;
                 cd.step(&mut model, &mut state, dt).unwrap();
             }
             Scheme::Alpha(p) => {
-                let opts = || ImplicitOptions {
-                    growth_limit: f64::INFINITY,
-                    ..Default::default()
+                let opts = || {
+                    let mut o = ImplicitOptions::default();
+                    o.growth_limit = f64::INFINITY;
+                    o
                 };
                 let mut rest = State::at_rest(1, 0.0);
                 let ledger = AlphaIntegrator::new(
@@ -492,7 +494,7 @@ proptest! {
         let analysed = scheme.amplification(omega_dt, xi);
         let weights = match scheme {
             Scheme::Alpha(p) => {
-                p.beta.min(1.0) * (1.0 - p.alpha_m).min(1.0) * (1.0 - p.alpha_f).min(1.0)
+                p.beta().min(1.0) * (1.0 - p.alpha_m()).min(1.0) * (1.0 - p.alpha_f()).min(1.0)
             }
             Scheme::CentralDifference(_) => 1.0,
         };
@@ -531,7 +533,7 @@ proptest! {
                 let ri = rho_inf(&scheme);
                 prop_assert!(ri.is_some_and(|r| r <= 1.0 + 1e-9), "{scheme:?} xi {xi}: {ri:?}");
             }
-            Stability::Conditional { omega_crit } => {
+            Stability::Conditional { omega_crit, .. } => {
                 for f in log_space(1e-3, 0.999, 40) {
                     let r = spectral_radius(&scheme, f * omega_crit, xi);
                     prop_assert!(r <= 1.0 + 1e-9,

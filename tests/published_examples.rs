@@ -80,7 +80,7 @@ fn chopra_pulse_through_the_run_loop_and_a_load_table() {
             assert!(
                 (ui - pi).abs() <= 6e-5,
                 "{:?} step {}: {ui} vs printed {pi}",
-                params.family,
+                params.family(),
                 n + 1
             );
             assert!((out.record.times[n + 1] - 0.1 * (n + 1) as f64).abs() < 1e-12);

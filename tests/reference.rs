@@ -80,11 +80,9 @@ fn max_error(p: &dyn ReferenceProblem, scheme: Scheme, g: &Grid, level: u32) -> 
     let mut state = p.initial_state();
     match scheme {
         Scheme::CentralDifference => {
-            let options = CentralDifferenceOptions {
-                stable_limit: StableLimit::Unchecked,
-                force_velocity: ForceVelocity::Predicted,
-                ..Default::default()
-            };
+            let mut options = CentralDifferenceOptions::default();
+            options.stable_limit = StableLimit::Unchecked;
+            options.force_velocity = ForceVelocity::Predicted;
             let mut it = CentralDifference::new(&mut *model, &mut state, options).unwrap();
             walk(&mut it, &mut *model, &mut state, p, g, level)
         }
@@ -206,10 +204,8 @@ fn struck_bar_free_end_follows_wave_theory() {
     // The magic step: c dt = h.
     let mut model = p.model().unwrap();
     let mut state = p.initial_state();
-    let options = CentralDifferenceOptions {
-        stable_limit: StableLimit::Unchecked,
-        ..Default::default()
-    };
+    let mut options = CentralDifferenceOptions::default();
+    options.stable_limit = StableLimit::Unchecked;
     let mut cd = CentralDifference::new(&mut *model, &mut state, options).unwrap();
     let n = p.elements;
     let mut worst: f64 = 0.0;

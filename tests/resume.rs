@@ -79,9 +79,10 @@ fn explicit_resume_matches(plan: &[f64], cut: usize) -> State {
 
 /// The same for the alpha integrator with `p`.
 fn implicit_resume_matches(plan: &[f64], cut: usize, p: AlphaParams) -> State {
-    let opts = || ImplicitOptions {
-        newton: NewtonOptions::default(),
-        ..Default::default()
+    let opts = || {
+        let mut o = ImplicitOptions::default();
+        o.newton = NewtonOptions::default();
+        o
     };
     let mut m = model();
     let mut full = State::at_rest(m.dofs(), 0.0);

@@ -7,7 +7,7 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 
 use sprs::TriMat;
 use stepgauge::linalg::{
-    CgOptions, ConjugateGradient, CsrMatrix, LinearSolver, Parallelism, SparseCholesky, SparseLu,
+    CgOptions, ConjugateGradient, CsrMatrix, Execution, LinearSolver, SparseCholesky, SparseLu,
 };
 
 struct Counting;
@@ -135,11 +135,9 @@ fn factor_and_solve_allocate_nothing_after_analyze() {
         let c = count(&mut SparseCholesky::new(), &a, &a2);
         assert_eq!(c, zero, "sparse Cholesky, n = {n}: (factor, solve) x 2");
 
-        let cg = CgOptions {
-            parallel: Parallelism::serial(),
-            ..Default::default()
-        };
-        let c = count(&mut ConjugateGradient::new(cg).unwrap(), &a, &a2);
+        let mut cg = ConjugateGradient::new(CgOptions::default()).unwrap();
+        cg.set_execution(&Execution::serial());
+        let c = count(&mut cg, &a, &a2);
         assert_eq!(c, zero, "CG serial, n = {n}: (factor, solve) x 2");
     }
 

@@ -7,7 +7,8 @@ use sprs::TriMat;
 use stepgauge::Error;
 use stepgauge::error::Singularity;
 use stepgauge::linalg::{
-    CgOptions, ConjugateGradient, CsrMatrix, LinearSolver, Parallelism, SparseCholesky, SparseLu,
+    CgOptions, ConjugateGradient, CsrMatrix, Execution, LinearSolver, Parallelism, SparseCholesky,
+    SparseLu,
 };
 
 /// A CSR matrix from `(row, col, value)` triplets (duplicates summed).
@@ -504,11 +505,8 @@ fn cg_is_bit_identical_for_one_and_two_threads() {
             .build()
             .unwrap();
         pool.install(|| {
-            let opts = CgOptions {
-                parallel: par,
-                ..Default::default()
-            };
-            let mut cg = ConjugateGradient::new(opts).unwrap();
+            let mut cg = ConjugateGradient::new(CgOptions::default()).unwrap();
+            cg.set_execution(&Execution::default().with_parallelism(par));
             cg.analyze(&a).unwrap();
             cg.factor(&a).unwrap();
             let mut x = b.clone();
@@ -531,10 +529,8 @@ fn cg_is_bit_identical_for_one_and_two_threads() {
 #[test]
 fn cg_reports_non_convergence_and_checks_its_options() {
     let a = laplace_2d(20, 0.0);
-    let opts = CgOptions {
-        max_iterations: Some(5),
-        ..Default::default()
-    };
+    let mut opts = CgOptions::default();
+    opts.max_iterations = Some(5);
     let mut cg = ConjugateGradient::new(opts).unwrap();
     cg.analyze(&a).unwrap();
     cg.factor(&a).unwrap();
@@ -551,10 +547,8 @@ fn cg_reports_non_convergence_and_checks_its_options() {
         e => panic!("{e}"),
     }
     for tol in [0.0, -1.0, 1.0, f64::NAN] {
-        let opts = CgOptions {
-            relative_tolerance: tol,
-            ..Default::default()
-        };
+        let mut opts = CgOptions::default();
+        opts.relative_tolerance = tol;
         let e = ConjugateGradient::new(opts).unwrap_err();
         assert!(
             matches!(
@@ -609,7 +603,8 @@ proptest! {
         let x_ref = dense.clone().lu().solve(&nalgebra::DVector::from_vec(b.clone())).unwrap();
         // Gershgorin: kappa <= (2 max rowsum + 2) / 0.5 < 250 for these sizes, so a CG
         // tolerance of 1e-12 keeps its forward error below 1e-9.
-        let cg = CgOptions { relative_tolerance: 1e-12, ..Default::default() };
+        let mut cg = CgOptions::default();
+        cg.relative_tolerance = 1e-12;
         let mut solvers: Vec<Box<dyn LinearSolver>> = vec![
             Box::new(SparseCholesky::new()),
             Box::new(SparseLu::new()),

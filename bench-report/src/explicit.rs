@@ -462,10 +462,8 @@ pub fn drive_steps(which: &str, model: &str, n: usize, steps: usize) -> Result<(
     let n = model.dofs();
     let dt = safe_step(&model);
     let mut state = initial_state(n);
-    let opts = CentralDifferenceOptions {
-        stable_limit: StableLimit::Given(dt / 0.9),
-        ..Default::default()
-    };
+    let mut opts = CentralDifferenceOptions::default();
+    opts.stable_limit = StableLimit::Given(dt / 0.9);
     let mut cd = CentralDifference::new(&mut model, &mut state, opts).map_err(|e| e.to_string())?;
     let mut hand = Hand::new(model.lumped(), &state);
     match which {
@@ -513,10 +511,8 @@ fn measure(
     let n = model.dofs();
     let dt = safe_step(&model);
     let mut state = initial_state(n);
-    let opts = CentralDifferenceOptions {
-        stable_limit: StableLimit::Given(dt / 0.9),
-        ..Default::default()
-    };
+    let mut opts = CentralDifferenceOptions::default();
+    opts.stable_limit = StableLimit::Given(dt / 0.9);
     let mut row = Row {
         model: name,
         n,
@@ -609,9 +605,10 @@ fn memory_per_dof(
     let opts = if estimate {
         CentralDifferenceOptions::default()
     } else {
-        CentralDifferenceOptions {
-            stable_limit: StableLimit::Given(dt / 0.9),
-            ..Default::default()
+        {
+            let mut o = CentralDifferenceOptions::default();
+            o.stable_limit = StableLimit::Given(dt / 0.9);
+            o
         }
     };
     match CentralDifference::new(model, &mut state, opts) {
@@ -896,10 +893,8 @@ mod tests {
             let n = model.dofs();
             let dt = safe_step(&model);
             let mut state = initial_state(n);
-            let opts = CentralDifferenceOptions {
-                stable_limit: StableLimit::Unchecked,
-                ..Default::default()
-            };
+            let mut opts = CentralDifferenceOptions::default();
+            opts.stable_limit = StableLimit::Unchecked;
             let mut cd = CentralDifference::new(&mut model, &mut state, opts).unwrap();
             let mut hand = Hand::new(model.lumped(), &state);
             let k = model.stiffness_matrix().clone();

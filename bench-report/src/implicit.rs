@@ -212,8 +212,8 @@ fn measure_linear(c: Case, quick: bool) -> LinearRow {
     // once; then one solve and the products M x, K x.
     let m = model.mass_matrix().clone();
     let k = model.stiffness_matrix().clone();
-    let cm = (1.0 - p.alpha_m) / (p.beta * DT * DT);
-    let jac = sum_matrix(&m, cm, &k, 1.0 - p.alpha_f);
+    let cm = (1.0 - p.alpha_m()) / (p.beta() * DT * DT);
+    let jac = sum_matrix(&m, cm, &k, 1.0 - p.alpha_f());
     let mut chol = SparseCholesky::new();
     chol.analyze(&jac).unwrap();
     chol.factor(&jac).unwrap();
@@ -388,7 +388,7 @@ fn measure_newton(n: usize, quick: bool) -> NewtonRow {
     let v = state.v.clone();
     let mut f = vec![0.0; n];
     let mut x = vec![0.0; n];
-    let cm = 1.0 / (p.beta * dt * dt);
+    let cm = 1.0 / (p.beta() * dt * dt);
     // Time steps and count their iterations; the ratio is time per iteration.
     let mut iters = 0usize;
     let mut steps = 0usize;

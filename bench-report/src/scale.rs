@@ -79,10 +79,8 @@ pub fn explicit_scale(settings: Settings) -> (String, Vec<Target>) {
     let t_setup = Instant::now();
     let dt = safe_step(&model);
     let mut state = smooth_state(n);
-    let opts = CentralDifferenceOptions {
-        stable_limit: StableLimit::Given(dt / 0.9),
-        ..Default::default()
-    };
+    let mut opts = CentralDifferenceOptions::default();
+    opts.stable_limit = StableLimit::Given(dt / 0.9);
     let created = CentralDifference::new(&mut model, &mut state, opts);
     let setup_secs = t_setup.elapsed().as_secs_f64();
     let mut cd = match created {
@@ -99,18 +97,17 @@ pub fn explicit_scale(settings: Settings) -> (String, Vec<Target>) {
             return (body, targets);
         }
     };
-    let options = RunOptions {
-        t_end: state.t + STEPS as f64 * dt,
-        step: StepControl::Fixed(dt),
-        record: RecordOptions {
-            dofs: Some(vec![0, n / 2, n - 1]),
-            every: 10,
-            velocity: false,
-            acceleration: false,
-            energy: true,
-        },
-        max_steps: Some(STEPS),
+    let mut options = RunOptions::new(state.t + STEPS as f64 * dt, StepControl::Fixed(dt));
+    options.record = {
+        let mut o = RecordOptions::default();
+        o.dofs = Some(vec![0, n / 2, n - 1]);
+        o.every = 10;
+        o.velocity = false;
+        o.acceleration = false;
+        o.energy = true;
+        o
     };
+    options.max_steps = Some(STEPS);
     let t_run = Instant::now();
     let outcome = run(&mut cd, &mut model, &mut state, &options, |_| {
         stepgauge::run::Flow::Continue

@@ -42,9 +42,9 @@ pub fn implicit_scale(settings: Settings) -> (String, Vec<Target>) {
         let p = AlphaParams::average_acceleration();
         let jac = sum_matrix(
             model.mass_matrix(),
-            (1.0 - p.alpha_m) / (p.beta * DT * DT),
+            (1.0 - p.alpha_m()) / (p.beta() * DT * DT),
             model.stiffness_matrix(),
-            1.0 - p.alpha_f,
+            1.0 - p.alpha_f(),
         );
         let mut chol = SparseCholesky::new();
         let t = Instant::now();

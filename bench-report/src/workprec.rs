@@ -38,7 +38,7 @@
 //!
 //! **Timing**: from building the model (stepgauge's `LinearModel`, diffsol's equation struct and
 //! problem) and the integrator to the last sample, the median of repeats, single thread (stepgauge
-//! with `Parallelism::serial()`, faer's default sequential context in diffsol).
+//! with `Execution::serial()` and `Parallelism::serial()`, faer's default sequential context in diffsol).
 
 // Numerical kernels index several vectors with one loop variable (as in the crate itself).
 #![allow(clippy::needless_range_loop)]
@@ -53,7 +53,7 @@ use sprs::CsMat;
 use stepgauge::State;
 use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
 use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
-use stepgauge::linalg::{Parallelism, SparseCholesky};
+use stepgauge::linalg::{Execution, Parallelism, SparseCholesky};
 use stepgauge::model::{LinearModel, Load, TimeFunction};
 use stepgauge::params::AlphaParams;
 
@@ -148,10 +148,8 @@ fn run_stepgauge(
     let dt = problem.horizon / nsteps as f64;
     match scheme {
         Scheme::CentralDifference => {
-            let options = CentralDifferenceOptions {
-                parallel: Parallelism::serial(),
-                ..Default::default()
-            };
+            let mut options = CentralDifferenceOptions::default();
+            options.execution = Execution::serial();
             let mut cd = CentralDifference::new(&mut model, &mut state, options)?;
             sample_loop(problem, nsteps, &mut state, out, |st| {
                 cd.step(&mut model, st, dt).map(|_| ())
@@ -162,10 +160,8 @@ fn run_stepgauge(
                 Scheme::GeneralizedAlpha(r) => AlphaParams::generalized_alpha(r)?,
                 _ => AlphaParams::average_acceleration(),
             };
-            let options = ImplicitOptions {
-                parallel: Parallelism::serial(),
-                ..Default::default()
-            };
+            let mut options = ImplicitOptions::default();
+            options.execution = Execution::serial();
             let solver = Box::new(SparseCholesky::new());
             let mut it = AlphaIntegrator::new(&mut model, &mut state, params, solver, options)?;
             sample_loop(problem, nsteps, &mut state, out, |st| {

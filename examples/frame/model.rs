@@ -691,12 +691,14 @@ pub fn simulate(
         ImplicitOptions::default(),
     )?;
     let mut options = RunOptions::new(t_end, StepControl::Fixed(dt));
-    options.record = RecordOptions {
-        dofs: None,
-        every: 1,
-        velocity: true,
-        acceleration: true,
-        energy: false,
+    options.record = {
+        let mut o = RecordOptions::default();
+        o.dofs = None;
+        o.every = 1;
+        o.velocity = true;
+        o.acceleration = true;
+        o.energy = false;
+        o
     };
     let outcome = run(&mut integrator, &mut model, &mut state, &options, |_| {
         Flow::Continue

@@ -824,11 +824,15 @@ mod tests {
         let n = b.dofs();
         let state = stepgauge::State::at_rest(n, 0.0);
         let elements = b.element_stable_step(0.0, &state.u).unwrap();
-        let options = StableStepOptions {
-            prefer_elements: false,
-            ..StableStepOptions::default()
-        };
-        let s = estimate(&mut b, &state, &options).unwrap();
+        let mut options = StableStepOptions::default();
+        options.prefer_elements = false;
+        let s = estimate(
+            &mut b,
+            &state,
+            &options,
+            &stepgauge::linalg::Execution::default(),
+        )
+        .unwrap();
         assert_eq!(s.method, StableStepMethod::FiniteDifferenceLanczos);
         assert!(
             elements <= s.dt_critical * (1.0 + 1e-6),

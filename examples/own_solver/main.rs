@@ -57,10 +57,11 @@ pub fn simulate(
         ImplicitOptions::default(),
     )?;
     let mut options = RunOptions::new(T_END, StepControl::Fixed(DT));
-    options.record = RecordOptions {
-        dofs: None,
-        energy: false,
-        ..Default::default()
+    options.record = {
+        let mut o = RecordOptions::default();
+        o.dofs = None;
+        o.energy = false;
+        o
     };
     let outcome = run(&mut it, &mut model, &mut state, &options, |_| {
         Flow::Continue

@@ -157,7 +157,7 @@ fn stability_name(s: Stability) -> &'static str {
 
 fn omega_crit(s: Stability) -> Option<f64> {
     match s {
-        Stability::Conditional { omega_crit } => Some(omega_crit),
+        Stability::Conditional { omega_crit, .. } => Some(omega_crit),
         _ => None,
     }
 }
@@ -166,14 +166,13 @@ fn omega_crit(s: Stability) -> Option<f64> {
 pub fn run(args: &CheckArgs) -> Result<u8, Failure> {
     let xi = args.scheme.xi()?;
     let chosen = args.scheme.resolve()?;
-    let ctx = CheckContext {
-        omega_max: args.max_frequency,
-        dt: args.dt,
-        omega_interest: args.frequency_of_interest,
-        period_error_target: args
-            .frequency_of_interest
-            .map(|_| args.period_error.unwrap_or(0.01)),
-    };
+    let mut ctx = CheckContext::default();
+    ctx.omega_max = args.max_frequency;
+    ctx.dt = args.dt;
+    ctx.omega_interest = args.frequency_of_interest;
+    ctx.period_error_target = args
+        .frequency_of_interest
+        .map(|_| args.period_error.unwrap_or(0.01));
     let verdict = check(&chosen.scheme, xi, &ctx)?;
 
     if let Some(path) = &args.plot {
@@ -198,7 +197,7 @@ pub fn run(args: &CheckArgs) -> Result<u8, Failure> {
         reasons: &verdict.reasons,
         label: &chosen.label,
         stability: stability_name(verdict.stability),
-        stable_at_omega_crit: verdict.stable_at_omega_crit,
+        stable_at_omega_crit: verdict.stability.stable_at_omega_crit(),
         stable_again: &verdict.stable_again,
         omega_crit_closed_form: verdict.omega_crit_closed_form,
         dissipative: verdict.dissipative,
@@ -299,10 +298,10 @@ fn human(chosen: &Labelled, xi: f64, ctx: &CheckContext, v: &Verdict) -> String 
             "unconditionally stable".to_string(),
             "none: stable for every step".to_string(),
         ),
-        Stability::Conditional { omega_crit } => (
+        Stability::Conditional { omega_crit, .. } => (
             format!(
                 "conditionally stable: stable for omega dt {} omega_crit",
-                if v.stable_at_omega_crit == Some(false) {
+                if v.stability.stable_at_omega_crit() == Some(false) {
                     "<"
                 } else {
                     "<="
@@ -344,7 +343,7 @@ fn human(chosen: &Labelled, xi: f64, ctx: &CheckContext, v: &Verdict) -> String 
             "dt <= {} s for --max-frequency {w} rad/s",
             plain(v.dt_stable)
         ),
-        (Stability::Conditional { omega_crit }, None) => {
+        (Stability::Conditional { omega_crit, .. }, None) => {
             format!("dt <= {omega_crit} / omega_max (give --max-frequency for a number)")
         }
     };

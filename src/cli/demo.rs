@@ -5,6 +5,7 @@
 use sprs::TriMat;
 use stepgauge::explicit::stable_step::{self, StableStepOptions};
 use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
+use stepgauge::linalg::Execution;
 use stepgauge::model::{Constraints, LinearModel, TimeFunction};
 use stepgauge::run::{Flow, RunOptions, StepControl, StopReason, run};
 use stepgauge::{Error, State};
@@ -55,10 +56,8 @@ pub fn demo() -> Result<bool, Error> {
     let mut sdof = LinearModel::new(&diag(1.0), &diag(4.0))?;
     let dt = 0.75; // omega = 2
     let mut state = State::new(0.0, vec![1.0], vec![0.0])?;
-    let opts = CentralDifferenceOptions {
-        stable_limit: StableLimit::Estimate,
-        ..Default::default()
-    };
+    let mut opts = CentralDifferenceOptions::default();
+    opts.stable_limit = StableLimit::Estimate;
     let mut cd = CentralDifference::new(&mut sdof, &mut state, opts)?;
     // Count zero crossings over many steps to measure the discrete period.
     let (mut crossings, mut first, mut last, mut prev) = (0, 0.0, 0.0, state.u[0]);
@@ -92,11 +91,9 @@ pub fn demo() -> Result<bool, Error> {
     let mut model = chain(n, m, k, true)?;
     let state = State::at_rest(n, 0.0);
     // The demonstration compares omega_max with its closed form: Lanczos to its tolerance.
-    let exact_omega = StableStepOptions {
-        accept_gershgorin: false,
-        ..StableStepOptions::default()
-    };
-    let est = stable_step::estimate(&mut model, &state, &exact_omega)?;
+    let mut exact_omega = StableStepOptions::default();
+    exact_omega.accept_gershgorin = false;
+    let est = stable_step::estimate(&mut model, &state, &exact_omega, &Execution::default())?;
     let exact =
         (4.0 * k / m).sqrt() * (n as f64 * std::f64::consts::PI / (2.0 * (n + 1) as f64)).sin();
     ok &= check(
@@ -112,8 +109,8 @@ pub fn demo() -> Result<bool, Error> {
     println!(
         "  critical step 2/omega_max                    {:>13.6e}  recommended (x{}) {:.6e}",
         est.dt_critical,
-        est.safety,
-        est.recommended()
+        stable_step::DEFAULT_SAFETY,
+        est.recommended(stable_step::DEFAULT_SAFETY)?
     );
 
     // 3. A bar struck at one end: wave arrival after L/c, stress rho c v0.
@@ -294,7 +291,7 @@ fn spectral_demo() -> Result<bool, Error> {
     for (name, s) in sets {
         let v = check(&s, 0.0, &CheckContext::default())?;
         let crit = match v.stability {
-            Stability::Conditional { omega_crit } => format!("{omega_crit:.10}"),
+            Stability::Conditional { omega_crit, .. } => format!("{omega_crit:.10}"),
             Stability::Unconditional => "unconditional".to_string(),
             Stability::Unstable => "unstable".to_string(),
         };

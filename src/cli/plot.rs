@@ -47,7 +47,7 @@ const PANELS: [Panel; 3] = [
     Panel {
         caption: "Algorithmic damping ratio",
         y_label: "damping ratio",
-        value: |m| m.damping_ratio,
+        value: |m| m.damping_ratio(),
         floor: -0.5,
         cap: 0.5,
         min_span: 0.02,
@@ -55,7 +55,7 @@ const PANELS: [Panel; 3] = [
     Panel {
         caption: "Relative period error",
         y_label: "period error",
-        value: |m| m.period_error,
+        value: |m| m.period_error(),
         floor: -0.5,
         cap: 1.0,
         min_span: 0.02,
@@ -247,12 +247,18 @@ mod tests {
     use super::*;
 
     fn m(omega: f64, rho: f64, d: Option<f64>) -> Metrics {
+        let oscillation = match d {
+            Some(d) => stepgauge::spectral::Oscillation::Pair {
+                root: nalgebra::Complex::new(0.0, 1.0),
+                damping_ratio: d,
+                period_error: d,
+            },
+            None => stepgauge::spectral::Oscillation::Real,
+        };
         Metrics {
             omega,
             spectral_radius: rho,
-            damping_ratio: d,
-            period_error: d,
-            principal: None,
+            oscillation,
         }
     }
 
@@ -270,7 +276,7 @@ mod tests {
         assert!((s[0][2].1 - 1.5).abs() < 1e-15);
         assert!(s[0][2].0 > 2.0 && s[0][2].0 < 3.0);
         assert_eq!(s[1].len(), 2);
-        let d = segments(&pts, |m| m.damping_ratio, -0.5, 0.5);
+        let d = segments(&pts, |m| m.damping_ratio(), -0.5, 0.5);
         assert_eq!(d.len(), 2);
         assert_eq!(d[1], vec![(4.0, 0.1)]);
     }

@@ -12,6 +12,7 @@ use sprs::TriMat;
 use stepgauge::State;
 use stepgauge::explicit::stable_step::{self, StableStepOptions};
 use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
+use stepgauge::linalg::Execution;
 use stepgauge::model::LinearModel;
 use stepgauge::spectral::{CheckContext, Stability, check, log_space, metrics, sweep};
 
@@ -189,7 +190,7 @@ fn section_sets(
     for s in sets {
         let v = check(&s.scheme, 0.0, &CheckContext::default())?;
         let crit = match v.stability {
-            Stability::Conditional { omega_crit } => Some(omega_crit),
+            Stability::Conditional { omega_crit, .. } => Some(omega_crit),
             _ => None,
         };
         let m01 = metrics(&s.scheme, 0.1, 0.0);
@@ -204,10 +205,10 @@ fn section_sets(
             table_num(v.rho_inf),
             v.order,
             if v.dissipative { "yes" } else { "no" },
-            table_num(m01.period_error),
-            table_num(m01.damping_ratio),
-            table_num(m1.period_error),
-            table_num(m1.damping_ratio),
+            table_num(m01.period_error()),
+            table_num(m01.damping_ratio()),
+            table_num(m1.period_error()),
+            table_num(m1.damping_ratio()),
         );
         checks.push(Check {
             what: format!("{}: stable (not unstable for every step)", s.label),
@@ -408,7 +409,12 @@ fn section_stable_step(body: &mut String, checks: &mut Vec<Check>) -> Result<(),
     let n = col.lengths.len();
     let mut model = col.model()?;
     let state = State::at_rest(n, 0.0);
-    let est = stable_step::estimate(&mut model, &state, &StableStepOptions::default())?;
+    let est = stable_step::estimate(
+        &mut model,
+        &state,
+        &StableStepOptions::default(),
+        &Execution::default(),
+    )?;
     let omega_max = est.omega_max.unwrap_or(f64::NAN);
     let gersh = stable_step::omega_max_gershgorin(model.stiffness_matrix(), model.lumped(), None)?;
     let c = (col.e / col.rho).sqrt();
@@ -419,12 +425,10 @@ fn section_stable_step(body: &mut String, checks: &mut Vec<Check>) -> Result<(),
     // A run at the recommended step from a velocity kick at the top: it stays bounded.
     let mut state = State::at_rest(n, 0.0);
     state.v[n - 1] = 1.0;
-    let opts = CentralDifferenceOptions {
-        stable_limit: StableLimit::Given(dt_crit),
-        ..Default::default()
-    };
+    let mut opts = CentralDifferenceOptions::default();
+    opts.stable_limit = StableLimit::Given(dt_crit);
     let mut cd = CentralDifference::new(&mut model, &mut state, opts)?;
-    let dt = est.recommended();
+    let dt = est.recommended(stable_step::DEFAULT_SAFETY)?;
     let mut peak: f64 = 0.0;
     for _ in 0..2000 {
         cd.step(&mut model, &mut state, dt)?;
@@ -459,7 +463,7 @@ fn section_stable_step(body: &mut String, checks: &mut Vec<Check>) -> Result<(),
         table_num(Some(dt_elem)),
         table_num(Some(dt_crit)),
         table_num(Some(2.0 / gersh)),
-        est.safety,
+        stable_step::DEFAULT_SAFETY,
         table_num(Some(dt)),
         table_num(Some(peak)),
     );

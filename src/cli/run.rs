@@ -335,10 +335,8 @@ fn build_engine(
 ) -> Result<(Engine, f64), Failure> {
     match scheme.scheme {
         Scheme::CentralDifference(fv) => {
-            let options = CentralDifferenceOptions {
-                force_velocity: fv,
-                ..CentralDifferenceOptions::default()
-            };
+            let mut options = CentralDifferenceOptions::default();
+            options.force_velocity = fv;
             let cd = match resumed {
                 None => CentralDifference::new(model, state, options),
                 Some(l) => CentralDifference::resume(model, state, l, options),
@@ -461,7 +459,7 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
     let wall = Instant::now();
     let scheme = args.scheme.resolve()?;
     if let Scheme::Alpha(p) = &scheme.scheme
-        && p.beta == 0.0
+        && p.beta() == 0.0
     {
         return Err(Failure::Usage(
             "--scheme newmark --beta 0 is explicit Newmark, which the implicit integrator \

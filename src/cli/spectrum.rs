@@ -190,8 +190,8 @@ fn to_json<'a>(s: &'a Labelled, xi: f64, points: &[Metrics]) -> SpectrumJson<'a>
             .map(|m| PointJson {
                 omega: m.omega,
                 spectral_radius: m.spectral_radius,
-                damping_ratio: m.damping_ratio,
-                period_error: m.period_error,
+                damping_ratio: m.damping_ratio(),
+                period_error: m.period_error(),
             })
             .collect(),
     }
@@ -264,8 +264,8 @@ fn csv(schemes: &[Labelled], results: &[Vec<Metrics>], with_scheme: bool) -> Str
                 "{},{},{},{}\n",
                 csv_num(Some(m.omega)),
                 csv_num(Some(m.spectral_radius)),
-                csv_num(m.damping_ratio),
-                csv_num(m.period_error)
+                csv_num(m.damping_ratio()),
+                csv_num(m.period_error())
             ));
         }
     }
@@ -308,8 +308,8 @@ fn table(schemes: &[Labelled], results: &[Vec<Metrics>], xi: f64) -> String {
                 "{:>14}  {:>15}  {:>15}  {:>15}\n",
                 table_num(Some(m.omega)),
                 table_num(Some(m.spectral_radius)),
-                table_num(m.damping_ratio),
-                table_num(m.period_error)
+                table_num(m.damping_ratio()),
+                table_num(m.period_error())
             ));
         }
     }

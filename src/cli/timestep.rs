@@ -16,8 +16,8 @@ use serde_json::json;
 use stepgauge::State;
 use stepgauge::explicit::ForceVelocity;
 use stepgauge::explicit::stable_step::{StableStepOptions, critical_step, estimate};
-use stepgauge::linalg::CsrMatrix;
 use stepgauge::linalg::eigen::{LowestStatus, lowest_eigenvalue};
+use stepgauge::linalg::{CsrMatrix, Execution};
 use stepgauge::model::{Constraints, LinearModel};
 use stepgauge::spectral::{Scheme, largest_step_for_period_error};
 
@@ -146,12 +146,10 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
         .map_err(|e| Failure::Usage(format!("--fix: {e}")))?;
     let state = State::at_rest(n, 0.0);
     // The highest frequency is reported: Lanczos to its tolerance, not the Gershgorin bound.
-    let options = StableStepOptions {
-        prefer_elements: false,
-        accept_gershgorin: false,
-        ..StableStepOptions::default()
-    };
-    let stable = estimate(&mut model, &state, &options).map_err(usage)?;
+    let mut options = StableStepOptions::default();
+    options.prefer_elements = false;
+    options.accept_gershgorin = false;
+    let stable = estimate(&mut model, &state, &options, &Execution::default()).map_err(usage)?;
     let omega_max = stable.omega_max.ok_or_else(|| {
         Failure::Runtime("the highest frequency could not be estimated".to_string())
     })?;
@@ -166,7 +164,13 @@ pub fn run(args: &TimestepArgs) -> Result<(), Failure> {
         (omega_max > 0.0).then(|| force_velocity.critical_omega_dt(xi) / omega_max);
     // The limit `run` enforces: from the upper bound of the same estimate `run` makes (its
     // default options).
-    let enforced = estimate(&mut model, &state, &StableStepOptions::default()).map_err(usage)?;
+    let enforced = estimate(
+        &mut model,
+        &state,
+        &StableStepOptions::default(),
+        &Execution::default(),
+    )
+    .map_err(usage)?;
     let dt_limit = enforced.dt_limit.is_finite().then_some(enforced.dt_limit);
     let omega_upper = enforced
         .omega_max_upper

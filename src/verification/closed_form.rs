@@ -48,7 +48,7 @@ fn worst(xs: impl IntoIterator<Item = f64>) -> f64 {
 /// The critical `Omega` the verdict reports (`NaN` unless conditionally stable).
 fn verdict_omega_crit(s: &Scheme, xi: f64) -> f64 {
     match check(s, xi, &CheckContext::default()).map(|v| v.stability) {
-        Ok(Stability::Conditional { omega_crit }) => omega_crit,
+        Ok(Stability::Conditional { omega_crit, .. }) => omega_crit,
         _ => f64::NAN,
     }
 }
@@ -82,7 +82,7 @@ fn series_rounding(k: f64) -> f64 {
 const SERIES_TOL: f64 = 1e-7;
 
 fn period_error(s: &Scheme, omega: f64) -> f64 {
-    metrics(s, omega, 0.0).period_error.unwrap_or(f64::NAN)
+    metrics(s, omega, 0.0).period_error().unwrap_or(f64::NAN)
 }
 
 fn central_difference() -> Vec<Check> {
@@ -225,7 +225,7 @@ fn newmark() -> Vec<Check> {
         let b = (g + 0.5) * (g + 0.5) / 4.0;
         let o = 0.01;
         let xi_bar = newmark_scheme(b, g)
-            .and_then(|s| metrics(&s, o, 0.0).damping_ratio)
+            .and_then(|s| metrics(&s, o, 0.0).damping_ratio())
             .unwrap_or(f64::NAN);
         (xi_bar / ((g - 0.5) * o / 2.0) - (1.0 - o * o / 6.0)).abs()
     };
@@ -348,10 +348,10 @@ fn dissipative_family() -> Vec<Check> {
     }));
     let hht_params = worst(alphas.iter().map(|&a| match AlphaParams::hht(a) {
         Ok(p) => worst([
-            p.alpha_m.abs(),
-            (p.alpha_f + a).abs(),
-            (p.gamma - (0.5 - a)).abs(),
-            (p.beta - (1.0 - a) * (1.0 - a) / 4.0).abs(),
+            p.alpha_m().abs(),
+            (p.alpha_f() + a).abs(),
+            (p.gamma() - (0.5 - a)).abs(),
+            (p.beta() - (1.0 - a) * (1.0 - a) / 4.0).abs(),
         ]),
         Err(_) => nan,
     }));
@@ -377,10 +377,10 @@ fn dissipative_family() -> Vec<Check> {
                     let g = 0.5 - am + af;
                     let b = (1.0 - am + af) * (1.0 - am + af) / 4.0;
                     worst([
-                        (p.alpha_m - am).abs(),
-                        (p.alpha_f - af).abs(),
-                        (p.gamma - g).abs(),
-                        (p.beta - b).abs(),
+                        (p.alpha_m() - am).abs(),
+                        (p.alpha_f() - af).abs(),
+                        (p.gamma() - g).abs(),
+                        (p.beta() - b).abs(),
                     ])
                 }
                 Err(_) => nan,
@@ -398,8 +398,8 @@ fn dissipative_family() -> Vec<Check> {
         rhos.iter()
             .map(|&r| match AlphaParams::wbz_from_rho_inf(r) {
                 Ok(p) => worst([
-                    (p.alpha_m - (r - 1.0) / (r + 1.0)).abs(),
-                    p.alpha_f.abs(),
+                    (p.alpha_m() - (r - 1.0) / (r + 1.0)).abs(),
+                    p.alpha_f().abs(),
                     rho_inf(&Scheme::Alpha(p)).map_or(nan, |x| (x - r).abs()),
                 ]),
                 Err(_) => nan,

@@ -375,11 +375,9 @@ fn errors(
     last: u32,
     limit: Option<f64>,
 ) -> stepgauge::Result<Vec<Option<f64>>> {
-    let newton = NewtonOptions {
-        residual_tolerance: NEWTON_TOLERANCE,
-        displacement_tolerance: NEWTON_TOLERANCE,
-        ..Default::default()
-    };
+    let mut newton = NewtonOptions::default();
+    newton.residual_tolerance = NEWTON_TOLERANCE;
+    newton.displacement_tolerance = NEWTON_TOLERANCE;
     let mut out = Vec::new();
     for level in 0..=last {
         let dt = level_step(grid.dt0, level);

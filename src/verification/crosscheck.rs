@@ -397,11 +397,10 @@ fn bar_run(rows: &[(f64, f64, f64)], per_output: usize) -> Result<Vec<f64>, Stri
     let fail = |e: stepgauge::Error| format!("bar-impact chain run: {e}");
     let mut model = p.model().map_err(fail)?;
     let mut state = p.initial_state();
-    let options = CentralDifferenceOptions {
-        stable_limit: StableLimit::Unchecked,
-        force_velocity: ForceVelocity::Lagged, // undamped: both treatments step alike
-        ..Default::default()
-    };
+    let mut options = CentralDifferenceOptions::default();
+    options.stable_limit = StableLimit::Unchecked;
+    // Undamped: both treatments step alike.
+    options.force_velocity = ForceVelocity::Lagged;
     let mut cd = CentralDifference::new(&mut *model, &mut state, options).map_err(fail)?;
     let dt = spacing / per_output as f64;
     let dof = p.observed_dof();

@@ -289,10 +289,8 @@ fn chopra_alpha_with_mass(p: AlphaParams, m: f64) -> Result<Vec<f64>> {
 fn chopra_cd(zeta: f64) -> Result<Vec<f64>> {
     let mut model = chopra_model(zeta, CH_M)?;
     let mut state = State::at_rest(1, 0.0);
-    let options = CentralDifferenceOptions {
-        force_velocity: ForceVelocity::Lagged,
-        ..Default::default()
-    };
+    let mut options = CentralDifferenceOptions::default();
+    options.force_velocity = ForceVelocity::Lagged;
     let mut cd = CentralDifference::new(&mut model, &mut state, options)?;
     let mut u = Vec::with_capacity(CH_STEPS);
     for _ in 0..CH_STEPS {

@@ -138,18 +138,40 @@ impl Family {
 }
 
 /// Parameters `(alpha_m, alpha_f, beta, gamma)` of the generalised-alpha family.
+///
+/// Made only by the validated constructors ([`newmark`](AlphaParams::newmark),
+/// [`hht`](AlphaParams::hht), [`wbz`](AlphaParams::wbz),
+/// [`generalized_alpha`](AlphaParams::generalized_alpha), [`raw`](AlphaParams::raw), ...) and read
+/// through its getters, so that a set is never unchecked and its [`Family`] label always fits
+/// its values; deserialising checks the same (a checkpoint edited by hand is refused, not
+/// stepped).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(try_from = "AlphaParamsData")]
 pub struct AlphaParams {
-    /// Weight of the old acceleration in the inertia term.
-    pub alpha_m: f64,
-    /// Weight of the old state in the internal, damping and external forces.
-    pub alpha_f: f64,
-    /// Newmark's beta (displacement update).
-    pub beta: f64,
-    /// Newmark's gamma (velocity update).
-    pub gamma: f64,
-    /// The member it was made as.
-    pub family: Family,
+    pub(crate) alpha_m: f64,
+    pub(crate) alpha_f: f64,
+    pub(crate) beta: f64,
+    pub(crate) gamma: f64,
+    pub(crate) family: Family,
+}
+
+/// The serialised form of [`AlphaParams`], checked by `TryFrom` when read.
+#[derive(Deserialize)]
+struct AlphaParamsData {
+    alpha_m: f64,
+    alpha_f: f64,
+    beta: f64,
+    gamma: f64,
+    family: Family,
+}
+
+impl TryFrom<AlphaParamsData> for AlphaParams {
+    type Error = Error;
+
+    fn try_from(d: AlphaParamsData) -> Result<Self> {
+        let p = AlphaParams::raw(d.alpha_m, d.alpha_f, d.beta, d.gamma)?;
+        p.labelled(d.family)
+    }
 }
 
 /// The largest magnitude of a parameter: far beyond every published set (`beta` and `gamma` of
@@ -179,6 +201,56 @@ fn check(name: &'static str, value: f64, ok: bool, expected: &'static str) -> Re
 }
 
 impl AlphaParams {
+    /// Weight of the old acceleration in the inertia term.
+    pub fn alpha_m(&self) -> f64 {
+        self.alpha_m
+    }
+
+    /// Weight of the old state in the internal, damping and external forces.
+    pub fn alpha_f(&self) -> f64 {
+        self.alpha_f
+    }
+
+    /// Newmark's beta (displacement update).
+    pub fn beta(&self) -> f64 {
+        self.beta
+    }
+
+    /// Newmark's gamma (velocity update).
+    pub fn gamma(&self) -> f64 {
+        self.gamma
+    }
+
+    /// The member it was made as.
+    pub fn family(&self) -> Family {
+        self.family
+    }
+
+    /// The same values labelled as `family`, when they belong to it: Newmark needs
+    /// `alpha_m = alpha_f = 0`, HHT `alpha_m = 0`, WBZ `alpha_f = 0`; generalised-alpha and custom
+    /// take any set.
+    ///
+    /// # Errors
+    /// [`Error::InvalidParameter`] naming the parameter that does not fit the label.
+    pub fn labelled(mut self, family: Family) -> Result<Self> {
+        let must_be_zero: &[(&'static str, f64)] = match family {
+            Family::Newmark => &[("alpha_m", self.alpha_m), ("alpha_f", self.alpha_f)],
+            Family::Hht => &[("alpha_m", self.alpha_m)],
+            Family::Wbz => &[("alpha_f", self.alpha_f)],
+            Family::GeneralizedAlpha | Family::Custom => &[],
+        };
+        if let Some(&(name, value)) = must_be_zero.iter().find(|(_, v)| *v != 0.0) {
+            return Err(Error::InvalidParameter {
+                name,
+                value,
+                expected: "zero for the family named (Newmark: alpha_m = alpha_f = 0; HHT: \
+                           alpha_m = 0; WBZ: alpha_f = 0)",
+            });
+        }
+        self.family = family;
+        Ok(self)
+    }
+
     /// Newmark-beta with any `beta >= 0`, `gamma >= 0` (stability is judged by the spectral
     /// analysis, not here).
     ///

@@ -75,7 +75,11 @@ pub enum StepControl {
 }
 
 /// What to record during a run.
+///
+/// New fields may be added in later versions: start from `RecordOptions::default()` and set
+/// fields.
 #[derive(Debug, Clone, PartialEq)]
+#[non_exhaustive]
 pub struct RecordOptions {
     /// DOFs to record (`None`: all).
     pub dofs: Option<Vec<usize>>,
@@ -197,7 +201,10 @@ impl Record {
 }
 
 /// Settings of [`run`].
+///
+/// New fields may be added in later versions: start from [`RunOptions::new`] and set fields.
 #[derive(Debug, Clone, PartialEq)]
+#[non_exhaustive]
 pub struct RunOptions {
     /// Absolute end time.
     pub t_end: f64,
@@ -340,13 +347,7 @@ where
         StepControl::Fixed(dt) if !(dt.is_finite() && dt > 0.0) => {
             return Err(Error::InvalidStep { dt });
         }
-        StepControl::Auto { safety, .. } if !(safety > 0.0 && safety <= 1.0) => {
-            return Err(Error::InvalidParameter {
-                name: "safety",
-                value: safety,
-                expected: "a fraction of the stable step in (0, 1]",
-            });
-        }
+        StepControl::Auto { safety, .. } => crate::validate::check_safety(safety)?,
         _ => {}
     }
     if options.record.every == 0 {

@@ -2,6 +2,7 @@
 //! the same way whichever scheme steps them.
 
 use crate::error::{Error, ModelError, Result};
+use crate::linalg::Execution;
 use crate::model::{Damping, Model, Motion};
 use crate::state::State;
 use crate::validate::{check_finite, check_len};
@@ -95,11 +96,21 @@ pub(crate) fn model_err(step: u64, t: f64) -> impl Fn(ModelError) -> Error {
 /// stable release is stopped as unstable. Falls back to `|f_int(u) . u| / 2` when the model
 /// cannot evaluate the intermediate states, and to 0 when it cannot evaluate `u` either. Called
 /// once per integrator, at its creation.
-pub(crate) fn start_internal_energy<M: Model + ?Sized>(model: &mut M, t: f64, u: &[f64]) -> f64 {
+pub(crate) fn start_internal_energy<M: Model + ?Sized>(
+    model: &mut M,
+    t: f64,
+    u: &[f64],
+    execution: &Execution,
+) -> f64 {
     if let Some(e) = model.stored_energy(u) {
         return e;
     }
-    if u.iter().all(|x| *x == 0.0) {
+    // Global, so that every process takes the same branch.
+    if execution
+        .reduce
+        .max(u.iter().fold(0.0, |m: f64, x| m.max(x.abs())))
+        == 0.0
+    {
         return 0.0;
     }
     let n = u.len();
@@ -111,7 +122,7 @@ pub(crate) fn start_internal_energy<M: Model + ?Sized>(model: &mut M, t: f64, u:
             *a = s * b;
         }
         model.internal_force(t, &us, &zero, &mut f).ok()?;
-        let w: f64 = f.iter().zip(u).map(|(a, b)| a * b).sum();
+        let w = crate::linalg::dot(&f, u, execution);
         w.is_finite().then_some(w)
     };
     let at_end = work_at(1.0, model);

@@ -85,3 +85,19 @@ pub(crate) fn check_rayleigh(a0: f64, a1: f64) -> Result<()> {
     }
     Ok(())
 }
+
+/// Checks a safety fraction of the critical step: finite, in `(0, 1]`.
+///
+/// # Errors
+/// [`Error::InvalidParameter`] (named `safety`) otherwise.
+pub(crate) fn check_safety(safety: f64) -> Result<()> {
+    if safety.is_finite() && safety > 0.0 && safety <= 1.0 {
+        Ok(())
+    } else {
+        Err(Error::InvalidParameter {
+            name: "safety",
+            value: safety,
+            expected: "a fraction of the critical step in (0, 1], for example 0.9",
+        })
+    }
+}

@@ -5,7 +5,7 @@ use std::fmt;
 use crate::energy::EnergyLedger;
 use crate::error::{Error, Result};
 use crate::explicit::stable_step::{self, StableStep};
-use crate::linalg::{chunk_count, for_chunks_read, for_chunks2, sum_partials};
+use crate::linalg::{CHUNK, chunk_count, for_chunks_read, for_chunks2, sum_partials};
 use crate::model::{Damping, Model, Motion};
 use crate::params::ForceVelocity;
 use crate::run::{Integrator, StepReport};
@@ -80,6 +80,9 @@ pub struct CentralDifference {
     f_extra: Vec<Vec<f64>>,
     partials: Vec<EndSums>,
     partials3: Vec<[f64; 3]>,
+    /// The reactions' power now and in flight, per chunk (nonzero only in chunks with
+    /// constrained DOFs).
+    partials2: Vec<[f64; 2]>,
     partials1: Vec<[f64; 1]>,
     reactions: Vec<f64>,
     /// The forces at the constrained DOFs at the end of this step (layout of
@@ -149,7 +152,13 @@ impl CentralDifference {
         l.initial_internal = model.stored_energy(&cd.u_next).unwrap_or(0.0);
         // The guard's budget: the stored energy, or the work of getting to the start's shape.
         l.energy_in = l.initial_kinetic
-            + crate::setup::start_internal_energy(model, state.t, &cd.u_next).abs();
+            + crate::setup::start_internal_energy(
+                model,
+                state.t,
+                &cd.u_next,
+                &cd.options.execution,
+            )
+            .abs();
         // The start state: u and v constrained, a consistent (`a_next` of the start).
         let mut s = State {
             t: state.t,
@@ -234,11 +243,11 @@ impl CentralDifference {
                 expected: "a positive, finite step",
             });
         }
-        if let Some(tol) = options.energy_tolerance
+        if let Some(tol) = options.balance_tolerance
             && !(tol.is_finite() && tol > 0.0)
         {
             return Err(Error::InvalidParameter {
-                name: "energy_tolerance",
+                name: "balance_tolerance",
                 value: tol,
                 expected: "a positive, finite relative tolerance",
             });
@@ -301,6 +310,7 @@ impl CentralDifference {
             f_extra: (0..k).map(|_| vec![0.0; n]).collect(),
             partials: vec![[0.0; 10]; chunks],
             partials3: vec![[0.0; 3]; chunks],
+            partials2: vec![[0.0; 2]; chunks],
             partials1: vec![[0.0; 1]; chunks],
             trial: ledger.clone(),
             ledger,
@@ -373,7 +383,12 @@ impl CentralDifference {
         model: &mut M,
         state: &State,
     ) -> Result<&StableStep> {
-        let mut s = stable_step::estimate(model, state, &self.options.stable_step)?;
+        let mut s = stable_step::estimate(
+            model,
+            state,
+            &self.options.stable_step,
+            &self.options.execution,
+        )?;
         // The damped limits of this integrator's treatment of velocity-dependent forces, at the
         // estimate and at its upper bound; for an element estimate, at the frequency 2 / dt it
         // implies (exact for two-node bars).
@@ -439,7 +454,7 @@ impl CentralDifference {
         // Loop A: half-step velocity and new displacement.
         {
             let (u, v, a) = (&state.u, &state.v, &state.a);
-            let par = self.options.parallel.parallel_for(self.n);
+            let par = self.options.execution.parallelism.parallel_for(self.n);
             for_chunks2(
                 par,
                 &mut self.u_next,
@@ -452,8 +467,7 @@ impl CentralDifference {
                 },
             );
         }
-        let mut usum = [sum_partials(&self.partials1)[0]];
-        self.options.reduce.sum_in_place(&mut usum);
+        let usum = sum_partials(&self.options.execution, &self.partials1);
         for (dof, motion) in &self.constraints {
             let d = *dof;
             match motion {
@@ -506,7 +520,7 @@ impl CentralDifference {
             });
         }
         let rel = l.relative_balance_error();
-        if let Some(tol) = self.options.energy_tolerance
+        if let Some(tol) = self.options.balance_tolerance
             && rel > tol
         {
             return Err(Error::EnergyBalance {
@@ -613,10 +627,9 @@ impl CentralDifference {
                 d1,
                 half,
             };
-            let par = self.options.parallel.parallel_for(n);
+            let par = self.options.execution.parallelism.parallel_for(n);
             body.dispatch(par, &mut self.a_next, &mut self.v_next, &mut self.partials);
         }
-        let mut sums = sum_partials(&self.partials);
         // The internal and external force at one DOF, wherever they are.
         let f_int_at = |d: usize| match stiffness {
             Some(k) => k.row_dot(d, u),
@@ -624,10 +637,12 @@ impl CentralDifference {
         };
         let f_ext_at = |d: usize| if loaded { self.f_ext[d] } else { 0.0 };
 
-        // Prescribed motions: centred velocity and acceleration, reactions.
-        let mut constraint_power = 0.0;
-        // The reactions' power now, `r . v_c`: their half of the next step's work, in flight.
-        let mut constraint_flight = 0.0;
+        // Prescribed motions: centred velocity and acceleration, reactions. Their corrections
+        // go into the partial sums of the chunk that holds the DOF, so that every sum is
+        // finished by the reducer in global chunk order. Per chunk: the reactions' power over
+        // this step, and their power now, `r . v_c` (their half of the next step's work, in
+        // flight).
+        self.partials2.fill([0.0; 2]);
         for (j, (dof, motion)) in self.constraints.iter().enumerate() {
             let d = *dof;
             let (fi, fe) = (f_int_at(d), f_ext_at(d));
@@ -659,6 +674,7 @@ impl CentralDifference {
             // by the prescribed motion over a step not yet known. Take the DOF out of the
             // pending scalars, keep its forces, and finish its trapezoid of this step from the
             // forces kept at the last one and this step's increment `dt vh`.
+            let sums = &mut self.partials[d / CHUNK];
             sums[3] -= vh[d] * fi;
             sums[4] -= vh[d] * fe;
             sums[5] -= vh[d] * fdj;
@@ -672,15 +688,15 @@ impl CentralDifference {
             self.a_next[d] = a_c;
             self.v_next[d] = v_c;
             let r = self.mass[d] * a_c - f;
-            constraint_power += vh[d] * (self.ledger.pending.reactions[j] + r);
-            constraint_flight += r * v_c;
+            let cp = &mut self.partials2[d / CHUNK];
+            cp[0] += vh[d] * (self.ledger.pending.reactions[j] + r);
+            cp[1] += r * v_c;
             self.reactions[j] = r;
         }
 
-        self.options.reduce.sum_in_place(&mut sums);
-        let mut cp = [constraint_power, constraint_flight];
-        self.options.reduce.sum_in_place(&mut cp);
-        let [constraint_power, constraint_flight] = cp;
+        let sums = sum_partials(&self.options.execution, &self.partials);
+        let [constraint_power, constraint_flight] =
+            sum_partials(&self.options.execution, &self.partials2);
 
         let l = &mut self.trial;
         l.copy_from(&self.ledger);
@@ -706,7 +722,7 @@ impl CentralDifference {
         l.update_reference(self.in_flight);
 
         // Extra forces: their own dot products, one pass each.
-        let par = self.options.parallel.parallel_for(n);
+        let par = self.options.execution.parallelism.parallel_for(n);
         for k in 0..self.f_extra.len() {
             let (fx, an, vn) = (&self.f_extra[k], &self.a_next, &self.v_next);
             for_chunks_read(par, n, &mut self.partials3, |r, p| {
@@ -718,19 +734,20 @@ impl CentralDifference {
                 }
                 *p = s;
             });
-            let mut s = sum_partials(&self.partials3);
             // Constrained DOFs, as for the other forces: out of the pending scalars, their
-            // trapezoid finished from the force kept at the last step.
+            // trapezoid finished from the force kept at the last step (in their chunk's partial
+            // sums).
             let stride = 3 + self.f_extra.len();
             for (j, (dof, _)) in self.constraints.iter().enumerate() {
                 let d = *dof;
                 let at = j * stride + 3 + k;
+                let s = &mut self.partials3[d / CHUNK];
                 s[0] += vh[d] * self.ledger.pending.constrained[at];
                 s[1] -= vn[d] * fx[d];
                 s[2] -= an[d] * fx[d];
                 self.con_forces[at] = fx[d];
             }
-            self.options.reduce.sum_in_place(&mut s);
+            let s = sum_partials(&self.options.execution, &self.partials3);
             let pk = self.ledger.pending.extra[k];
             l.extra_work[k] += half * (pk[0] + half * pk[1] + s[0]);
             l.pending.extra[k] = [s[1], s[2]];

@@ -1,11 +1,8 @@
 //! The settings of [`CentralDifference`](super::CentralDifference): the stable-limit guard, the
 //! treatment of velocity-dependent forces, the guards' thresholds and the execution settings.
 
-use std::fmt;
-use std::sync::Arc;
-
 use crate::explicit::stable_step::StableStepOptions;
-use crate::linalg::{GlobalReduce, Parallelism, Serial};
+use crate::linalg::Execution;
 use crate::params::ForceVelocity;
 
 /// How the integrator guards against a step above the stability limit.
@@ -23,7 +20,11 @@ pub enum StableLimit {
 }
 
 /// Settings of [`CentralDifference`](super::CentralDifference).
-#[derive(Clone)]
+///
+/// New fields may be added in later versions: start from [`CentralDifferenceOptions::default`]
+/// and set fields.
+#[derive(Debug, Clone)]
+#[non_exhaustive]
 pub struct CentralDifferenceOptions {
     /// Guard against steps above the stable limit. Default: [`StableLimit::Estimate`].
     pub stable_limit: StableLimit,
@@ -33,7 +34,7 @@ pub struct CentralDifferenceOptions {
     /// balance is reported, not enforced). Values of 0.01 to 0.05 are common practice; note that a
     /// stable run's error can reach `(omega dt)^2 / 4` of the energy held in modes near the
     /// stability limit.
-    pub energy_tolerance: Option<f64>,
+    pub balance_tolerance: Option<f64>,
     /// Reject a step whose kinetic energy exceeds this multiple of all the energy put into the model
     /// (initial kinetic and stored energy plus the absolute work of external and constraint
     /// forces): a passive model cannot do that, an unstable run soon does. Default 10; set
@@ -41,10 +42,9 @@ pub struct CentralDifferenceOptions {
     pub growth_limit: f64,
     /// Velocity passed to velocity-dependent forces. Default: [`ForceVelocity::Lagged`].
     pub force_velocity: ForceVelocity,
-    /// When vector loops run in parallel. Results do not depend on it.
-    pub parallel: Parallelism,
-    /// Completes global sums (the seam for distributed runs). Default: [`Serial`].
-    pub reduce: Arc<dyn GlobalReduce>,
+    /// Threads and global sums, for the steps and the stable-step estimates alike. Results do not
+    /// depend on it. Default: [`Execution::default`].
+    pub execution: Execution,
 }
 
 impl Default for CentralDifferenceOptions {
@@ -52,24 +52,10 @@ impl Default for CentralDifferenceOptions {
         CentralDifferenceOptions {
             stable_limit: StableLimit::Estimate,
             stable_step: StableStepOptions::default(),
-            energy_tolerance: None,
+            balance_tolerance: None,
             growth_limit: 10.0,
             force_velocity: ForceVelocity::Lagged,
-            parallel: Parallelism::default(),
-            reduce: Arc::new(Serial),
+            execution: Execution::default(),
         }
-    }
-}
-
-impl fmt::Debug for CentralDifferenceOptions {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.debug_struct("CentralDifferenceOptions")
-            .field("stable_limit", &self.stable_limit)
-            .field("stable_step", &self.stable_step)
-            .field("energy_tolerance", &self.energy_tolerance)
-            .field("growth_limit", &self.growth_limit)
-            .field("force_velocity", &self.force_velocity)
-            .field("parallel", &self.parallel)
-            .finish_non_exhaustive()
     }
 }

@@ -37,12 +37,12 @@
 //! the estimate itself.
 
 use crate::error::{Error, ModelError, Result};
-use crate::linalg::CsrMatrix;
 pub use crate::linalg::lanczos::{
     EigenOptions, LANCZOS_FAILURE, LANCZOS_MARGIN_TARGET, OmegaMaxEstimate, lanczos_margin,
     omega_max_lanczos,
 };
 use crate::linalg::lanczos::{inverse_sqrt_mass, lanczos};
+use crate::linalg::{CsrMatrix, Execution};
 use crate::model::Model;
 use crate::state::State;
 use crate::validate::{check_finite, check_len};
@@ -279,14 +279,13 @@ pub struct StableStep {
     /// `dt_critical_damped`): the step above which
     /// [`CentralDifference`](crate::explicit::CentralDifference) refuses to go.
     pub dt_limit_damped: f64,
-    /// The safety fraction applied by [`recommended`](StableStep::recommended).
-    pub safety: f64,
     /// How the estimate was made.
     pub method: StableStepMethod,
 }
 
 impl StableStep {
-    /// The step to use: `safety * dt_critical_damped`, and never above `dt_limit_damped`.
+    /// The step to use with the safety fraction `safety` (for example [`DEFAULT_SAFETY`]):
+    /// `safety * dt_critical_damped`, and never above `dt_limit_damped`.
     ///
     /// The damped limit is used because the explicit scheme takes the damping force at the lagged
     /// half-step velocity, which lowers the stability limit below `2 / omega_max`.
@@ -294,18 +293,24 @@ impl StableStep {
     /// # Reference
     /// Belytschko, Liu & Moran (2000), *Nonlinear Finite Elements for Continua and Structures*,
     /// ch. 6.
-    pub fn recommended(&self) -> f64 {
-        (self.safety * self.dt_critical_damped).min(self.dt_limit_damped)
+    ///
+    /// # Errors
+    /// [`Error::InvalidParameter`] for a safety fraction outside `(0, 1]`.
+    pub fn recommended(&self, safety: f64) -> Result<f64> {
+        crate::validate::check_safety(safety)?;
+        Ok((safety * self.dt_critical_damped).min(self.dt_limit_damped))
     }
 }
 
 /// Settings of [`estimate`].
+///
+/// New fields may be added in later versions: start from `StableStepOptions::default()` and set
+/// fields.
 #[derive(Debug, Clone, Copy, PartialEq)]
+#[non_exhaustive]
 pub struct StableStepOptions {
     /// Settings of the Lanczos estimate.
     pub eigen: EigenOptions,
-    /// Safety fraction of the critical step, in `(0, 1]`. Default [`DEFAULT_SAFETY`].
-    pub safety: f64,
     /// Use the model's element estimate when it gives one. Default `true`.
     pub prefer_elements: bool,
     /// For a linear model, take the Gershgorin bound as `omega_max^2` once a Lanczos Ritz value
@@ -319,7 +324,6 @@ impl Default for StableStepOptions {
     fn default() -> Self {
         StableStepOptions {
             eigen: EigenOptions::default(),
-            safety: DEFAULT_SAFETY,
             prefer_elements: true,
             accept_gershgorin: true,
         }
@@ -344,14 +348,18 @@ impl Default for StableStepOptions {
 ///    (two internal-force evaluations per product, into buffers allocated once).
 ///
 /// The damping ratio is `model.damping().ratio_at(omega_max)` (for `omega_max > 0`); the damped
-/// limit is [`critical_step`]`(omega_max, xi)`.
+/// limit is [`critical_step`]`(omega_max, xi)`. The step to use follows from a safety fraction
+/// ([`StableStep::recommended`]); the time loop takes its fraction from
+/// [`StepControl::Auto`](crate::run::StepControl::Auto), the only one it applies.
+///
+/// Global sums and maxima (Lanczos's dot products, Gershgorin's bound, the probe's largest
+/// displacement) go through `execution.reduce`.
 ///
 /// # Errors
 /// * [`Error::EmptyModel`], [`Error::DimensionMismatch`] (state of the wrong size),
 ///   [`Error::NonFiniteInput`] (non-finite state, its time included);
-/// * [`Error::InvalidParameter`] for a safety fraction outside `(0, 1]`, an element step that is
-///   not positive and finite, invalid [`EigenOptions`], or a negative damping ratio at
-///   `omega_max`;
+/// * [`Error::InvalidParameter`] for an element step that is not positive and finite, invalid
+///   [`EigenOptions`], or a negative damping ratio at `omega_max`;
 /// * constraint errors of [`Constraints::validate`](crate::model::Constraints::validate);
 ///   [`Error::NonPositiveMass`] for a free DOF without positive mass;
 /// * [`Error::Model`] (with `state.step` and `state.t`) when the model fails;
@@ -363,15 +371,8 @@ pub fn estimate<M: Model + ?Sized>(
     model: &mut M,
     state: &State,
     options: &StableStepOptions,
+    execution: &Execution,
 ) -> Result<StableStep> {
-    let safety = options.safety;
-    if !(safety.is_finite() && safety > 0.0 && safety <= 1.0) {
-        return Err(Error::InvalidParameter {
-            name: "safety",
-            value: safety,
-            expected: "a fraction of the critical step in (0, 1], for example 0.9",
-        });
-    }
     let n = model.dofs();
     if n == 0 {
         return Err(Error::EmptyModel);
@@ -386,6 +387,8 @@ pub fn estimate<M: Model + ?Sized>(
     if options.prefer_elements
         && let Some(dt) = model.element_stable_step(t, &state.u)
     {
+        // The smallest over all processes (each holds its own elements).
+        let dt = execution.reduce.min(dt);
         if !(dt.is_finite() && dt > 0.0) {
             return Err(Error::InvalidParameter {
                 name: "element stable step",
@@ -401,7 +404,6 @@ pub fn estimate<M: Model + ?Sized>(
             omega_max_upper: None,
             dt_limit: dt,
             dt_limit_damped: dt,
-            safety,
             method: StableStepMethod::Elements,
         });
     }
@@ -415,7 +417,7 @@ pub fn estimate<M: Model + ?Sized>(
     // bound `g` on lambda_max; once the Lanczos Ritz value (a lower bound) is within
     // GERSHGORIN_MATCH of it, `g` itself is taken.
     let upper = if options.accept_gershgorin && model.is_linear() {
-        gershgorin_lambda(model, state, &mass, &mask)
+        gershgorin_lambda(model, state, &mass, &mask, execution)
     } else {
         None
     };
@@ -433,6 +435,7 @@ pub fn estimate<M: Model + ?Sized>(
             Err(e) => Err(wrap(e)),
         },
         &options.eigen,
+        execution,
         accept_at,
     );
     let (found, method) = match first {
@@ -440,14 +443,18 @@ pub fn estimate<M: Model + ?Sized>(
         Err(_) if not_provided => {
             let u = &state.u;
             let v = &state.v;
-            let u_max = u.iter().fold(0.0_f64, |a, &b| a.max(b.abs()));
+            let u_max = execution
+                .reduce
+                .max(u.iter().fold(0.0_f64, |a, &b| a.max(b.abs())));
             let mut probe = vec![0.0; n];
             let mut f_plus = vec![0.0; n];
             let found = omega_max_lanczos(
                 &mass,
                 Some(&mask),
                 |x, out| {
-                    let x_max = x.iter().fold(0.0_f64, |a, &b| a.max(b.abs()));
+                    let x_max = execution
+                        .reduce
+                        .max(x.iter().fold(0.0_f64, |a, &b| a.max(b.abs())));
                     if x_max == 0.0 {
                         out.fill(0.0);
                         return Ok(());
@@ -470,6 +477,7 @@ pub fn estimate<M: Model + ?Sized>(
                     Ok(())
                 },
                 &options.eigen,
+                execution,
             )?;
             (found, StableStepMethod::FiniteDifferenceLanczos)
         }
@@ -521,7 +529,6 @@ pub fn estimate<M: Model + ?Sized>(
         omega_max_upper: Some(omega_upper),
         dt_limit,
         dt_limit_damped,
-        safety,
         method,
     })
 }
@@ -533,12 +540,16 @@ fn gershgorin_lambda<M: Model + ?Sized>(
     state: &State,
     mass: &[f64],
     mask: &[bool],
+    execution: &Execution,
 ) -> Option<f64> {
     let mut k = model.tangent_pattern()?.clone();
     model
         .tangent_stiffness(state.t, &state.u, &state.v, &mut k)
         .ok()?;
-    let omega = omega_max_gershgorin(&k, mass, Some(mask)).ok()?;
+    // The largest row bound of this process's rows, then over all processes.
+    let omega = execution
+        .reduce
+        .max(omega_max_gershgorin(&k, mass, Some(mask)).ok()?);
     // omega^2 may round below the bound it came from by an ulp or two: step it up.
     let g = omega * omega * (1.0 + 4.0 * f64::EPSILON);
     (g.is_finite() && g > 0.0).then_some(g)

@@ -21,7 +21,7 @@ use super::newton::NewtonReport;
 use super::options::ImplicitOptions;
 use crate::energy::EnergyLedger;
 use crate::error::{Error, ModelError, Result};
-use crate::linalg::{CsrMatrix, LinearSolver, Parallelism};
+use crate::linalg::{CsrMatrix, Execution, LinearSolver, Parallelism, chunk_count};
 use crate::model::{Damping, Model, Motion};
 use crate::params::AlphaParams;
 use crate::run::{Integrator, StepReport};
@@ -113,6 +113,10 @@ pub struct AlphaIntegrator {
     factored_for: Option<f64>,
     /// Per-chunk partial sums of the streamlined linear path.
     partials: Vec<[f64; 4]>,
+    /// Chunk partials of the global sums outside the fused loops
+    /// ([`SUM_WIDTH`](crate::linalg::SUM_WIDTH) values per chunk).
+    scratch: Vec<f64>,
+
     /// Per-chunk slots of its passes without sums.
     no_partials: Vec<()>,
     u1: Vec<f64>,
@@ -191,7 +195,11 @@ impl AlphaIntegrator {
             .collect();
         let mut coupling = vec![0.0; it.n];
         if let Mass::Consistent { matrix: m, .. } = &it.mass {
-            m.mul_vec(&constrained_a, &mut coupling, it.options.parallel);
+            m.mul_vec(
+                &constrained_a,
+                &mut coupling,
+                it.options.execution.parallelism,
+            );
         }
         let mut rhs = vec![0.0; it.n];
         for i in 0..it.n {
@@ -239,17 +247,16 @@ impl AlphaIntegrator {
         it.solver.analyze(&it.jac)?;
         it.reactions_into(&s.a, true);
         // Ledger at the start.
-        it.mass.mul(&s.v, &mut it.tmp, it.options.parallel);
-        let ke = 0.5
-            * it.options
-                .reduce
-                .sum(s.v.iter().zip(&it.tmp).map(|(a, b)| a * b).sum());
+        it.mass
+            .mul(&s.v, &mut it.tmp, it.options.execution.parallelism);
+        let ke = 0.5 * sum_dot(&it.options.execution, &mut it.scratch, &s.v, &it.tmp);
         let l = &mut it.ledger;
         l.kinetic = ke;
         l.initial_kinetic = ke;
         l.initial_internal = model.stored_energy(&s.u).unwrap_or(0.0);
         // The guard's budget: the stored energy, or the work of getting to the start's shape.
-        l.energy_in = ke + crate::setup::start_internal_energy(model, s.t, &s.u).abs();
+        l.energy_in =
+            ke + crate::setup::start_internal_energy(model, s.t, &s.u, &it.options.execution).abs();
         it.trial.copy_from(&it.ledger);
         *state = s;
         Ok(it)
@@ -301,11 +308,12 @@ impl AlphaIntegrator {
         model: &mut M,
         state: &State,
         params: AlphaParams,
-        solver: Box<dyn LinearSolver>,
+        mut solver: Box<dyn LinearSolver>,
         options: ImplicitOptions,
     ) -> Result<Self> {
         params.validate_for_stepping()?;
         options.validate()?;
+        solver.set_execution(&options.execution);
         let Setup {
             n,
             mask,
@@ -393,6 +401,7 @@ impl AlphaIntegrator {
             factored_for: None,
             partials: vec![[0.0; 4]; if fast_linear { chunks } else { 0 }],
             no_partials: vec![(); chunks],
+            scratch: vec![0.0; crate::linalg::SUM_WIDTH * chunks],
             u1: vec![0.0; n],
             v1: vec![0.0; n],
             a1: vec![0.0; n],
@@ -467,7 +476,7 @@ impl AlphaIntegrator {
             &s.v,
             &mut self.f_d0,
             &mut self.tmp,
-            self.options.parallel,
+            self.options.execution.parallelism,
         )
         .map_err(&err)?;
         for (k, f) in self.f_x0.iter_mut().enumerate() {
@@ -502,11 +511,6 @@ impl AlphaIntegrator {
                 self.reactions1[j] = r;
             }
         }
-    }
-
-    fn sum_dot(&self, x: &[f64], y: &[f64]) -> f64 {
-        let s = x.iter().zip(y).map(|(a, b)| a * b).sum::<f64>();
-        self.options.reduce.sum(s)
     }
 
     /// Advances `state` by `dt`, in one or more sub-steps.
@@ -670,6 +674,12 @@ fn constrained_positions(a: &CsrMatrix, mask: &[bool]) -> (Vec<usize>, Vec<usize
         }
     }
     (zero, diag)
+}
+
+/// The global dot product `x . y`, through the reducer, with the integrator's `scratch` for the
+/// chunk partials.
+pub(super) fn sum_dot(execution: &Execution, scratch: &mut [f64], x: &[f64], y: &[f64]) -> f64 {
+    crate::linalg::dot_with(x, y, execution, &mut scratch[..chunk_count(x.len())])
 }
 
 /// The damping force `C v` of the model into `out` (`tmp` is scratch).

@@ -43,7 +43,11 @@ pub enum NewtonVariant {
 /// `1.5^(-1/3) = 0.87` per iteration, which it also accepts once below the `sqrt` bound: with the
 /// default tolerances it then accepts a relative residual of up to 1e-4 instead of 1e-8. The bound
 /// and the factor are this project's choice (not from a source).
+///
+/// New fields may be added in later versions: start from `NewtonOptions::default()` and set
+/// fields.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[non_exhaustive]
 pub struct NewtonOptions {
     /// Full or modified Newton. Default: full.
     pub variant: NewtonVariant,

@@ -1,11 +1,8 @@
 //! The settings of the implicit integrator: [`ImplicitOptions`], its defaults and checks.
 
-use std::fmt;
-use std::sync::Arc;
-
 use super::newton::NewtonOptions;
 use crate::error::Result;
-use crate::linalg::{GlobalReduce, Parallelism, Serial};
+use crate::linalg::Execution;
 use crate::validate::check_growth_limit;
 
 // For the documentation's links only.
@@ -13,7 +10,11 @@ use crate::validate::check_growth_limit;
 use super::AlphaIntegrator;
 
 /// Settings of [`AlphaIntegrator`].
-#[derive(Clone)]
+///
+/// New fields may be added in later versions: start from [`ImplicitOptions::default`] and set
+/// fields.
+#[derive(Debug, Clone)]
+#[non_exhaustive]
 pub struct ImplicitOptions {
     /// Newton iterations, cut-back and regrowth.
     pub newton: NewtonOptions,
@@ -34,10 +35,10 @@ pub struct ImplicitOptions {
     /// ulp per step (about 7e-12 relative over 10^4 steps at `omega dt = 5` with the sparse
     /// Cholesky); one refinement makes the rounding vary from step to step again. Default: off.
     pub refine_linear: bool,
-    /// When matrix products run in parallel.
-    pub parallel: Parallelism,
-    /// Completes global sums (the seam for distributed runs). Default: [`Serial`].
-    pub reduce: Arc<dyn GlobalReduce>,
+    /// Threads and global sums, for the integrator and its linear solver (handed over by
+    /// [`LinearSolver::set_execution`](crate::linalg::LinearSolver::set_execution)). Results do
+    /// not depend on the thread count. Default: [`Execution::default`].
+    pub execution: Execution,
 }
 
 impl ImplicitOptions {
@@ -58,20 +59,7 @@ impl Default for ImplicitOptions {
             growth_limit: 10.0,
             growth_patience: 3,
             refine_linear: false,
-            parallel: Parallelism::default(),
-            reduce: Arc::new(Serial),
+            execution: Execution::default(),
         }
-    }
-}
-
-impl fmt::Debug for ImplicitOptions {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.debug_struct("ImplicitOptions")
-            .field("newton", &self.newton)
-            .field("growth_limit", &self.growth_limit)
-            .field("growth_patience", &self.growth_patience)
-            .field("refine_linear", &self.refine_linear)
-            .field("parallel", &self.parallel)
-            .finish_non_exhaustive()
     }
 }

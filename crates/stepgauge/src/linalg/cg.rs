@@ -11,23 +11,23 @@ use super::solver::{
     LinearSolver, SolveInfo, SymmetryMap, check_finite_matrix, check_pattern, check_rhs,
     check_square,
 };
-use super::{
-    CHUNK, CsrMatrix, Parallelism, chunk_count, for_chunks_read, for_chunks2, sum_partials,
-};
+use super::{CHUNK, CsrMatrix, Execution, chunk_count, for_chunks_read, for_chunks2, sum_partials};
 use crate::error::{Error, Result};
 
 const NAME: &str = "conjugate gradient";
 
 /// Options of [`ConjugateGradient`].
+///
+/// Threads and the reducer of the global sums come from the run's
+/// [`Execution`](super::Execution) ([`LinearSolver::set_execution`]); new fields may be added in
+/// later versions (start from [`CgOptions::default`] and set fields).
 #[derive(Debug, Clone, Copy, PartialEq)]
+#[non_exhaustive]
 pub struct CgOptions {
     /// Stop when `||b - A x||_2 <= relative_tolerance * ||b||_2`; in `(0, 1)`. Default `1e-10`.
     pub relative_tolerance: f64,
     /// Iteration limit; `None` (the default) means `max(10 n, 10_000)` for `n` unknowns.
     pub max_iterations: Option<usize>,
-    /// When the vector loops and the matrix product run in parallel. Results are bit-identical
-    /// whatever the choice and the thread count.
-    pub parallel: Parallelism,
 }
 
 impl Default for CgOptions {
@@ -35,7 +35,6 @@ impl Default for CgOptions {
         CgOptions {
             relative_tolerance: 1e-10,
             max_iterations: None,
-            parallel: Parallelism::default(),
         }
     }
 }
@@ -84,6 +83,7 @@ pub struct ConjugateGradient {
     p: Vec<f64>,
     q: Vec<f64>,
     partials: Vec<[f64; 2]>,
+    execution: Execution,
 }
 
 impl ConjugateGradient {
@@ -111,6 +111,7 @@ impl ConjugateGradient {
             p: Vec::new(),
             q: Vec::new(),
             partials: Vec::new(),
+            execution: Execution::default(),
         })
     }
 
@@ -136,6 +137,7 @@ fn for_each_chunk(parallel: bool, out: &mut [f64], f: impl Fn(usize, &mut [f64])
 /// `r = b - ax` and `p = D^-1 r` (the first search direction); returns `[r^T D^-1 r, r^T r]`.
 #[allow(clippy::too_many_arguments)]
 fn restart(
+    execution: &Execution,
     parallel: bool,
     r: &mut [f64],
     p: &mut [f64],
@@ -154,7 +156,7 @@ fn restart(
         }
         *part = [rz, rr];
     });
-    sum_partials(partials)
+    sum_partials(execution, partials)
 }
 
 impl LinearSolver for ConjugateGradient {
@@ -211,7 +213,8 @@ impl LinearSolver for ConjugateGradient {
         let a = super::solver::ready(NAME, self.a.as_ref(), self.factored)?;
         let n = a.nrows();
         check_rhs(rhs, n)?;
-        let par = self.opts.parallel;
+        let ex = &self.execution;
+        let par = ex.parallelism;
         let parallel = par.parallel_for(n);
         let tol = self.opts.relative_tolerance;
         let max_iterations = self.opts.max_iterations.unwrap_or((10 * n).max(10_000));
@@ -228,7 +231,7 @@ impl LinearSolver for ConjugateGradient {
         b.copy_from_slice(x);
         x.fill(0.0);
         q.fill(0.0); // A x for x = 0
-        let [mut rz, rr] = restart(parallel, r, p, partials, inv_d, b, q);
+        let [mut rz, rr] = restart(ex, parallel, r, p, partials, inv_d, b, q);
         let norm_b = rr.sqrt();
         if norm_b == 0.0 {
             return Ok(SolveInfo {
@@ -241,7 +244,7 @@ impl LinearSolver for ConjugateGradient {
         loop {
             if iterations >= max_iterations {
                 a.mul_vec(x, q, par);
-                let [_, rr] = restart(parallel, r, p, partials, inv_d, b, q);
+                let [_, rr] = restart(ex, parallel, r, p, partials, inv_d, b, q);
                 return Err(Error::SolverNotConverged {
                     iterations,
                     relative_residual: rr.sqrt() / norm_b,
@@ -256,7 +259,7 @@ impl LinearSolver for ConjugateGradient {
                     .sum();
                 *part = [s, 0.0];
             });
-            let pq = sum_partials(partials)[0];
+            let pq = sum_partials(ex, partials)[0];
             if pq.is_nan() || pq <= 0.0 {
                 return Err(Error::NotPositiveDefinite {
                     solver: NAME,
@@ -276,12 +279,12 @@ impl LinearSolver for ConjugateGradient {
                 }
                 *part = [rz, rr];
             });
-            let [rz_new, rr] = sum_partials(partials);
+            let [rz_new, rr] = sum_partials(ex, partials);
             iterations += 1;
             if rr.sqrt() <= target {
                 // Confirm on the true residual; restart from it if the recursion has drifted.
                 a.mul_vec(x, q, par);
-                let [rz_true, rr_true] = restart(parallel, r, p, partials, inv_d, b, q);
+                let [rz_true, rr_true] = restart(ex, parallel, r, p, partials, inv_d, b, q);
                 if rr_true.sqrt() <= target {
                     return Ok(SolveInfo {
                         iterations,
@@ -304,5 +307,10 @@ impl LinearSolver for ConjugateGradient {
 
     fn name(&self) -> &'static str {
         NAME
+    }
+
+    /// Threads and the reducer of the dot products and norms.
+    fn set_execution(&mut self, execution: &Execution) {
+        self.execution = execution.clone();
     }
 }

@@ -466,7 +466,8 @@ mod tests {
         a.mul_vec(&x, &mut ax, Parallelism::serial());
         for par in [Parallelism::serial(), Parallelism { threshold: 1 }] {
             let q = a.quadratic_form(&x, par);
-            assert_eq!(q.to_bits(), super::super::dot(&x, &ax, par).to_bits());
+            let ex = super::super::Execution::serial().with_parallelism(par);
+            assert_eq!(q.to_bits(), super::super::dot(&x, &ax, &ex).to_bits());
         }
         for i in [0, 1, 17, n - 1] {
             assert_eq!(a.row_dot(i, &x).to_bits(), ax[i].to_bits());

@@ -8,7 +8,7 @@ use nalgebra::{DMatrix, SymmetricEigen};
 use rayon::prelude::*;
 
 use crate::error::{Error, Result};
-use crate::linalg::{CHUNK, Parallelism, dot, norm2};
+use crate::linalg::{CHUNK, Execution, Parallelism, chunk_count, dot_with, global_sums};
 use crate::validate::check_len;
 
 /// Threshold on `beta / ||A v||` below which the Krylov subspace is taken to be invariant.
@@ -60,7 +60,11 @@ pub fn lanczos_margin(products: usize, n: usize) -> f64 {
 pub const LANCZOS_MARGIN_TARGET: f64 = 0.02;
 
 /// Settings of the Lanczos estimate of `lambda_max` ([`omega_max_lanczos`]).
+///
+/// New fields may be added in later versions: start from `EigenOptions::default()` and set
+/// fields.
 #[derive(Debug, Clone, Copy, PartialEq)]
+#[non_exhaustive]
 pub struct EigenOptions {
     /// Relative accuracy asked of `lambda_max`: the iteration stops when the error estimate
     /// `min(r, r^2 / gap)` is at most `tolerance * lambda` (see [`omega_max_lanczos`]).
@@ -83,9 +87,6 @@ pub struct EigenOptions {
     /// Largest dimension `m` of the Krylov basis (the memory is `m` vectors of the DOF count);
     /// capped at the number of free DOFs. Default 40. Must be at least 2.
     pub krylov_dim: usize,
-    /// When the vector operations (dot products, updates) run in parallel. Results do not depend
-    /// on it.
-    pub parallel: Parallelism,
 }
 
 impl Default for EigenOptions {
@@ -95,7 +96,6 @@ impl Default for EigenOptions {
             max_products: 5000,
             tolerance_at_budget: 1e-4,
             krylov_dim: 40,
-            parallel: Parallelism::default(),
         }
     }
 }
@@ -195,12 +195,16 @@ pub struct OmegaMaxEstimate {
 /// spans all free DOFs. The test is made every `(m - m / 2) / 2` expansions and when the basis is
 /// full, so up to that many products more than strictly needed may be spent. The start vector is
 /// a fixed pseudo-random sequence (a 64-bit linear congruential generator), so the result is
-/// reproducible, and it does not depend on [`EigenOptions::parallel`].
+/// reproducible, and it does not depend on the thread count (`execution.parallelism`).
 ///
 /// Memory: `m + 3` vectors of length `n`, all allocated before the iteration; inside it only the
 /// small projected eigenproblem (at most `m x m`) allocates.
 ///
 /// With no free DOF the result is `omega_max = 0` after no product.
+///
+/// Every dot product and norm (and the count of free DOFs) is a global sum through
+/// `execution.reduce`; the vector updates run on rayon's pool as `execution.parallelism` says.
+/// Results do not depend on the thread count.
 ///
 /// # Errors
 /// * [`Error::InvalidParameter`] for invalid [`EigenOptions`];
@@ -223,8 +227,16 @@ pub fn omega_max_lanczos(
     constrained: Option<&[bool]>,
     apply_k: impl FnMut(&[f64], &mut [f64]) -> Result<()>,
     options: &EigenOptions,
+    execution: &Execution,
 ) -> Result<OmegaMaxEstimate> {
-    lanczos(mass, constrained, apply_k, options, f64::INFINITY)
+    lanczos(
+        mass,
+        constrained,
+        apply_k,
+        options,
+        execution,
+        f64::INFINITY,
+    )
 }
 
 /// [`omega_max_lanczos`], also stopping as soon as the top Ritz value reaches `accept_at` (used
@@ -235,6 +247,7 @@ pub(crate) fn lanczos(
     constrained: Option<&[bool]>,
     mut apply_k: impl FnMut(&[f64], &mut [f64]) -> Result<()>,
     options: &EigenOptions,
+    execution: &Execution,
     accept_at: f64,
 ) -> Result<OmegaMaxEstimate> {
     options.validate()?;
@@ -244,7 +257,14 @@ pub(crate) fn lanczos(
     }
     // scale[i] = 1 / sqrt(m_i) on free DOFs and exactly 0 on constrained ones.
     let scale = inverse_sqrt_mass(mass, constrained)?;
-    let n_free = scale.iter().filter(|&&s| s > 0.0).count();
+    let mut partials = vec![0.0; chunk_count(n)];
+    // The free DOFs over all processes (a count, exact in binary64 up to 2^53).
+    let [n_free] = global_sums(execution, n, &mut partials, |i, c| {
+        if scale[i] > 0.0 {
+            c[0] += 1.0;
+        }
+    });
+    let n_free = n_free as usize;
     if n_free == 0 {
         return Ok(OmegaMaxEstimate {
             omega_max: 0.0,
@@ -255,7 +275,7 @@ pub(crate) fn lanczos(
             restarts: 0,
         });
     }
-    let par = options.parallel;
+    let par = execution.parallelism;
     let m = options.krylov_dim.min(n_free);
     let keep = (m / 2).max(1);
     // The projected eigenproblem (O(j^3) work) is solved every `stride` expansions (twice per
@@ -273,7 +293,7 @@ pub(crate) fn lanczos(
     let mut kept_vectors = vec![0.0; m * keep];
     let mut block = vec![0.0; keep * RESTART_BLOCK];
 
-    start_vector(&mut basis[..n], &scale, par);
+    start_vector(&mut basis[..n], &scale, execution, &mut partials);
 
     let mut j = 0; // index of the basis vector being expanded
     let mut kept = 0; // Ritz vectors kept at the last restart
@@ -301,7 +321,7 @@ pub(crate) fn lanczos(
                 *wi = 0.0;
             }
         }
-        a_norm = a_norm.max(norm2(&w, par));
+        a_norm = a_norm.max(dot_with(&w, &w, execution, &mut partials).sqrt());
 
         // Two passes of classical Gram-Schmidt against v_0 .. v_j; the summed coefficients are
         // column j of T = V^T A V.
@@ -309,7 +329,7 @@ pub(crate) fn lanczos(
         h[..js].fill(0.0);
         for _ in 0..2 {
             for (i, c) in coef[..js].iter_mut().enumerate() {
-                *c = dot(&basis[i * n..(i + 1) * n], &w, par);
+                *c = dot_with(&basis[i * n..(i + 1) * n], &w, execution, &mut partials);
             }
             for (i, (&c, hi)) in coef[..js].iter().zip(&mut h[..js]).enumerate() {
                 axpy(-c, &basis[i * n..(i + 1) * n], &mut w, par);
@@ -320,7 +340,7 @@ pub(crate) fn lanczos(
             t[i * m + j] = hi;
             t[j * m + i] = hi;
         }
-        let beta = norm2(&w, par);
+        let beta = dot_with(&w, &w, execution, &mut partials).sqrt();
 
         let invariant = beta <= INVARIANT_TOL * a_norm;
         let full = js == m;
@@ -477,7 +497,7 @@ pub(crate) fn inverse_sqrt_mass(mass: &[f64], constrained: Option<&[bool]>) -> R
 
 /// A deterministic, normalised start vector on the free DOFs (`scale > 0`): uniform
 /// pseudo-random entries in `[-1, 1)` from Knuth's 64-bit MMIX linear congruential generator.
-fn start_vector(v: &mut [f64], scale: &[f64], par: Parallelism) {
+fn start_vector(v: &mut [f64], scale: &[f64], execution: &Execution, partials: &mut [f64]) {
     let mut state: u64 = 0x853c_49e6_748f_ea9b;
     for (vi, &si) in v.iter_mut().zip(scale) {
         state = state
@@ -486,12 +506,12 @@ fn start_vector(v: &mut [f64], scale: &[f64], par: Parallelism) {
         let r = (state >> 11) as f64 / (1_u64 << 53) as f64;
         *vi = if si > 0.0 { 2.0 * r - 1.0 } else { 0.0 };
     }
-    let mut norm = norm2(v, par);
+    let mut norm = dot_with(v, v, execution, partials).sqrt();
     if norm == 0.0 {
         for (vi, &si) in v.iter_mut().zip(scale) {
             *vi = if si > 0.0 { 1.0 } else { 0.0 };
         }
-        norm = norm2(v, par);
+        norm = dot_with(v, v, execution, partials).sqrt();
     }
     let inv = 1.0 / norm;
     v.iter_mut().for_each(|vi| *vi *= inv);

@@ -9,7 +9,7 @@ use faer::{Conj, MatMut, Par};
 use super::solver::{
     LinearSolver, SolveInfo, check_finite_matrix, check_pattern, check_rhs, check_square,
 };
-use super::{CsrMatrix, Parallelism, norm2};
+use super::{CsrMatrix, Parallelism, local_norm2};
 use crate::error::{Error, Result, Singularity};
 
 const NAME: &str = "sparse LU";
@@ -223,7 +223,7 @@ impl LinearSolver for SparseLu {
                 relative_residual: 0.0,
             });
         }
-        let relative_residual = norm2(&an.r, serial) / norm2(&an.b, serial);
+        let relative_residual = local_norm2(&an.r) / local_norm2(&an.b);
         if relative_residual.is_nan() || relative_residual > LU_RESIDUAL_LIMIT {
             return singular(Singularity::Residual {
                 relative_residual,

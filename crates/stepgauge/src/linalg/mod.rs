@@ -12,6 +12,7 @@ mod cg;
 mod cholesky;
 mod csr;
 pub mod eigen;
+mod execution;
 pub mod lanczos;
 mod lu;
 mod reduce;
@@ -22,8 +23,10 @@ pub use cg::{CgOptions, ConjugateGradient};
 pub(crate) use cholesky::SimplicialFactor;
 pub use cholesky::{PIVOT_LOSS_FACTOR, SparseCholesky};
 pub use csr::{CsrMatrix, spmv};
+pub use execution::Execution;
 pub use lu::{LU_RESIDUAL_LIMIT, SparseLu};
-pub use reduce::{GlobalReduce, Serial, dot, norm2};
+pub use reduce::{GlobalReduce, Serial, add_in_chunk_order, dot, norm2};
+pub(crate) use reduce::{dot_with, local_norm2};
 pub use solver::{LinearSolver, SYMMETRY_TOLERANCE, SolveInfo, check_rhs};
 
 use rayon::prelude::*;
@@ -183,13 +186,48 @@ where
     }
 }
 
-/// Adds fixed-size partial sums in chunk order.
-pub(crate) fn sum_partials<const K: usize>(partials: &[[f64; K]]) -> [f64; K] {
+/// Global sums from fixed-size chunk partials (one `[f64; K]` per chunk, in chunk order),
+/// finished by `execution`'s reducer (see [`GlobalReduce::sum_chunks`]).
+pub(crate) fn sum_partials<const K: usize>(
+    execution: &Execution,
+    partials: &[[f64; K]],
+) -> [f64; K] {
     let mut s = [0.0; K];
-    for p in partials {
-        for k in 0..K {
-            s[k] += p[k];
-        }
-    }
+    execution
+        .reduce
+        .sum_chunks(0, partials.as_flattened(), &mut s);
     s
 }
+
+/// Global sums of `K` values per index over `0..n`: `term(i, acc)` adds the terms of index `i`
+/// to `acc`; each chunk of [`CHUNK`] indices sums its own terms in index order from zero, and
+/// the chunk partials are finished by `execution`'s reducer in chunk order. `scratch` holds the
+/// partials (at least `K * chunk_count(n)` entries), so that the sum allocates nothing.
+///
+/// # Panics
+/// When `scratch` is too short (a programmer error inside the crate).
+pub(crate) fn global_sums<const K: usize>(
+    execution: &Execution,
+    n: usize,
+    scratch: &mut [f64],
+    term: impl Fn(usize, &mut [f64; K]) + Sync + Send,
+) -> [f64; K] {
+    let (partials, _) = scratch[..K * chunk_count(n)].as_chunks_mut::<K>();
+    for_chunks_read(
+        execution.parallelism.parallel_for(n),
+        n,
+        partials,
+        |range, p| {
+            let mut acc = [0.0; K];
+            for i in range {
+                term(i, &mut acc);
+            }
+            *p = acc;
+        },
+    );
+    sum_partials(execution, partials)
+}
+
+/// The largest width of [`global_sums`] in the integrators: their scratch holds this many values
+/// per chunk.
+pub(crate) const SUM_WIDTH: usize = 5;

@@ -34,6 +34,14 @@ pub trait LinearSolver: Send {
     fn as_sparse_cholesky(&self) -> Option<&super::SparseCholesky> {
         None
     }
+    /// Adopts the run's execution setting (threads and the reducer of global sums); the implicit
+    /// integrator calls it with its own [`ImplicitOptions::execution`](crate::implicit::ImplicitOptions::execution)
+    /// before the first `analyze`. A solver with global sums (an iterative one) must finish them
+    /// through `execution.reduce`; the default ignores the setting (the direct solvers work on
+    /// the whole matrix in one process).
+    fn set_execution(&mut self, execution: &super::Execution) {
+        let _ = execution;
+    }
 }
 
 /// What a solve did.

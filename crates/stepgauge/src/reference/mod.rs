@@ -13,10 +13,8 @@
 //! for problem in reference::smooth() {
 //!     let mut model = problem.model()?;
 //!     let mut state = problem.initial_state();
-//!     let options = CentralDifferenceOptions {
-//!         force_velocity: ForceVelocity::Predicted, // second order with damping
-//!         ..Default::default()
-//!     };
+//!     let mut options = CentralDifferenceOptions::default();
+//!     options.force_velocity = ForceVelocity::Predicted; // second order with damping
 //!     let mut cd = CentralDifference::new(&mut *model, &mut state, options)?;
 //!     let dt = 0.5 * cd.stable_limit().unwrap();
 //!     let t_end = problem.t_end().min(0.5); // a short stretch, for the doctest

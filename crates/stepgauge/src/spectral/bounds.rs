@@ -22,17 +22,40 @@ pub const SCAN_LIMIT: f64 = 1e4;
 pub enum Stability {
     /// Stable for every step.
     Unconditional,
-    /// Stable for `omega dt <= omega_crit`.
+    /// Stable for `omega dt < omega_crit`, and at `omega_crit` itself when
+    /// `stable_at_omega_crit`.
     Conditional {
         /// The critical `Omega`.
         omega_crit: f64,
+        /// Whether `Omega = omega_crit` itself is stable: `true` for a simple root on the unit
+        /// circle there (bounded), `false` for a double root at -1 (which grows linearly: the
+        /// undamped central difference at `Omega = 2`) or a root beyond it.
+        stable_at_omega_crit: bool,
     },
     /// Unstable for every step (also arbitrarily small ones).
     Unstable,
 }
 
+impl Stability {
+    /// For a conditionally stable set, whether `Omega = omega_crit` itself is stable; `None`
+    /// for the other kinds.
+    pub fn stable_at_omega_crit(&self) -> Option<bool> {
+        match *self {
+            Stability::Conditional {
+                stable_at_omega_crit,
+                ..
+            } => Some(stable_at_omega_crit),
+            _ => None,
+        }
+    }
+}
+
 /// What the user knows about the model and the run, to judge a parameter set against.
+///
+/// New fields may be added in later versions: start from `CheckContext::default()` and set
+/// fields.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[non_exhaustive]
 pub struct CheckContext {
     /// The model's highest circular frequency (rad/s).
     pub omega_max: Option<f64>,
@@ -47,12 +70,9 @@ pub struct CheckContext {
 /// The verdict on a parameter set.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Verdict {
-    /// Stability.
+    /// Stability (for a conditionally stable set with its critical `Omega` and whether that
+    /// `Omega` itself is stable).
     pub stability: Stability,
-    /// For a conditionally stable set, whether `Omega = omega_crit` itself is stable: `true` for
-    /// a simple root on the unit circle there (bounded), `false` for a double root at -1 (which
-    /// grows linearly: the undamped central difference at `Omega = 2`) or a root beyond it.
-    pub stable_at_omega_crit: Option<bool>,
     /// Intervals of `Omega` above `omega_crit` (or above zero, for an unstable set) where the
     /// set is stable again, `(from, to)`, `to` infinite for the last; empty for most sets.
     pub stable_again: Vec<(f64, f64)>,
@@ -179,13 +199,8 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
         Some(r) => format!("no high-frequency dissipation: rho_inf = {r:.12}"),
         None => "explicit: the spectral radius grows without bound as Omega grows".to_string(),
     });
-    let boundary = region.critical_boundary();
     let mut verdict = Verdict {
         stability,
-        stable_at_omega_crit: match stability {
-            Stability::Conditional { .. } => boundary.map(|b| b.at.is_stable()),
-            _ => None,
-        },
         stable_again: region.stable_again(),
         omega_crit_closed_form: closed,
         order,
@@ -198,7 +213,7 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
         reasons,
     };
     if let Some(w) = ctx.omega_max {
-        if let Stability::Conditional { omega_crit } = stability {
+        if let Stability::Conditional { omega_crit, .. } = stability {
             // The largest step whose Omega = omega_max dt, as computed from it, is within the
             // limit: the quotient rounded to nearest may give back a product a unit above.
             let mut dt_stable = omega_crit / w;
@@ -266,7 +281,7 @@ pub fn check(scheme: &Scheme, xi: f64, ctx: &CheckContext) -> Result<Verdict> {
         });
         if let Some(dt) = ctx.dt {
             let m = metrics(scheme, wi * dt, xi);
-            verdict.period_error_at_interest = m.period_error;
+            verdict.period_error_at_interest = m.period_error();
         }
     }
     Ok(verdict)
@@ -359,7 +374,10 @@ fn stability(
             (c - omega_crit).abs() / omega_crit
         ));
     }
-    Stability::Conditional { omega_crit }
+    Stability::Conditional {
+        omega_crit,
+        stable_at_omega_crit: region.critical_boundary().is_some_and(|b| b.at.is_stable()),
+    }
 }
 
 /// The published unconditional-stability bounds as cross-checks, only where their sources state

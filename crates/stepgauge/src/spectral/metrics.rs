@@ -2,32 +2,90 @@
 //! critical `Omega` and order of accuracy of a scheme.
 
 use nalgebra::Complex;
-use serde::{Deserialize, Serialize};
+use serde::Serialize;
 
 use super::prepared::Prepared;
 use crate::error::{Error, Result};
 use crate::params::Scheme;
 
 /// What the amplification matrix says at one `Omega = omega dt`.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Metrics {
     /// `Omega = omega dt`.
     pub omega: f64,
     /// Largest eigenvalue modulus, spurious roots included.
     pub spectral_radius: f64,
-    /// Algorithmic damping ratio `xi_bar` of the principal pair, net of the physical damping:
-    /// with the pair `z = exp(-xi Omega) exp(Omega_bar (-xi_bar +/- i))`, the decay per radian
-    /// of the discrete oscillation beyond the exact decay `exp(-xi Omega)` per step, so that the
-    /// exact solution has `xi_bar = 0` (for `xi = 0`, Hughes's `xi_bar = -ln|z| / Omega_bar`).
-    /// `None` where the principal roots are real, and for `xi >= 1` (no exact oscillation).
-    pub damping_ratio: Option<f64>,
-    /// Relative period error against the damped exact period:
-    /// `Omega sqrt(1 - xi^2) / Omega_bar - 1` (for `xi = 0`, `Omega / Omega_bar - 1`). `None`
-    /// where the principal roots are real, and for `xi >= 1`.
-    pub period_error: Option<f64>,
-    /// The principal root with positive imaginary part, `None` where the roots are real.
-    #[serde(skip)]
-    pub principal: Option<Complex<f64>>,
+    /// The principal roots, and what they say against the exact mode.
+    pub oscillation: Oscillation,
+}
+
+/// The principal roots at one `Omega` (the complex-conjugate pair; the third root of these
+/// schemes is real and spurious).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Oscillation {
+    /// The principal roots are real: the discrete solution does not oscillate.
+    Real,
+    /// A complex pair, but the exact mode does not oscillate (`xi >= 1`): there is no exact
+    /// period or decay per radian to compare with.
+    Overdamped {
+        /// The principal root with positive imaginary part.
+        root: Complex<f64>,
+    },
+    /// A complex pair of an oscillating exact mode.
+    Pair {
+        /// The principal root with positive imaginary part.
+        root: Complex<f64>,
+        /// Algorithmic damping ratio `xi_bar` of the pair, net of the physical damping: with the
+        /// pair `z = exp(-xi Omega) exp(Omega_bar (-xi_bar +/- i))`, the decay per radian of the
+        /// discrete oscillation beyond the exact decay `exp(-xi Omega)` per step, so that the
+        /// exact solution has `xi_bar = 0` (for `xi = 0`, Hughes's `xi_bar = -ln|z| / Omega_bar`).
+        damping_ratio: f64,
+        /// Relative period error against the damped exact period:
+        /// `Omega sqrt(1 - xi^2) / Omega_bar - 1` (for `xi = 0`, `Omega / Omega_bar - 1`).
+        period_error: f64,
+    },
+}
+
+impl Metrics {
+    /// The algorithmic damping ratio of [`Oscillation::Pair`]; `None` where the principal roots
+    /// are real or the exact mode does not oscillate.
+    pub fn damping_ratio(&self) -> Option<f64> {
+        match self.oscillation {
+            Oscillation::Pair { damping_ratio, .. } => Some(damping_ratio),
+            _ => None,
+        }
+    }
+
+    /// The relative period error of [`Oscillation::Pair`]; `None` where the principal roots are
+    /// real or the exact mode does not oscillate.
+    pub fn period_error(&self) -> Option<f64> {
+        match self.oscillation {
+            Oscillation::Pair { period_error, .. } => Some(period_error),
+            _ => None,
+        }
+    }
+
+    /// The principal root with positive imaginary part; `None` where the roots are real.
+    pub fn principal(&self) -> Option<Complex<f64>> {
+        match self.oscillation {
+            Oscillation::Real => None,
+            Oscillation::Overdamped { root } | Oscillation::Pair { root, .. } => Some(root),
+        }
+    }
+}
+
+/// Written as `omega`, `spectral_radius`, `damping_ratio` and `period_error` (the last two
+/// `null` where undefined), the root left out.
+impl Serialize for Metrics {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        use serde::ser::SerializeStruct;
+        let mut st = s.serialize_struct("Metrics", 4)?;
+        st.serialize_field("omega", &self.omega)?;
+        st.serialize_field("spectral_radius", &self.spectral_radius)?;
+        st.serialize_field("damping_ratio", &self.damping_ratio())?;
+        st.serialize_field("period_error", &self.period_error())?;
+        st.end()
+    }
 }
 
 /// The three eigenvalues of the scheme's amplification matrix: from the characteristic cubic in
@@ -164,7 +222,7 @@ fn metrics_with(
     principal: Option<(Complex<f64>, f64)>,
     exact: ExactMode,
 ) -> Metrics {
-    let (damping_ratio, period_error) = match principal {
+    let oscillation = match principal {
         Some((z, best)) if exact.oscillates => {
             let omega_bar = arg_upper(z.re, z.im);
             // ln |z| = ln(|z|^2) / 2 (no `hypot`) where the square is representable.
@@ -173,19 +231,19 @@ fn metrics_with(
             } else {
                 z.norm().ln()
             };
-            (
-                Some(-(ln_mod + exact.xi * omega_dt) / omega_bar),
-                Some(omega_dt * exact.damped / omega_bar - 1.0),
-            )
+            Oscillation::Pair {
+                root: z,
+                damping_ratio: -(ln_mod + exact.xi * omega_dt) / omega_bar,
+                period_error: omega_dt * exact.damped / omega_bar - 1.0,
+            }
         }
-        _ => (None, None),
+        Some((z, _)) => Oscillation::Overdamped { root: z },
+        None => Oscillation::Real,
     };
     Metrics {
         omega: omega_dt,
         spectral_radius: rho,
-        damping_ratio,
-        period_error,
-        principal: principal.map(|(z, _)| z),
+        oscillation,
     }
 }
 
@@ -378,7 +436,7 @@ pub fn largest_step_for_period_error(
     target: f64,
 ) -> Result<Option<f64>> {
     largest_step(omega, target, |o| {
-        metrics(scheme, o, xi).period_error.map(f64::abs)
+        metrics(scheme, o, xi).period_error().map(f64::abs)
     })
 }
 
@@ -395,7 +453,7 @@ pub fn largest_step_for_damping(
     target: f64,
 ) -> Result<Option<f64>> {
     largest_step(omega, target, |o| {
-        metrics(scheme, o, xi).damping_ratio.map(|d| (d).abs())
+        metrics(scheme, o, xi).damping_ratio().map(|d| (d).abs())
     })
 }
 

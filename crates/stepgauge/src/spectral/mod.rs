@@ -22,9 +22,9 @@ pub use bounds::{
     CheckContext, SCAN_LIMIT, Stability, Verdict, bracket_check, check, omega_crit_closed_form,
 };
 pub use metrics::{
-    INSTABILITY_MARGIN, Metrics, characteristic_polynomial, eigenvalues, largest_step_for_damping,
-    largest_step_for_period_error, metrics, omega_crit_numeric, order_of_accuracy, rho_inf,
-    spectral_radius,
+    INSTABILITY_MARGIN, Metrics, Oscillation, characteristic_polynomial, eigenvalues,
+    largest_step_for_damping, largest_step_for_period_error, metrics, omega_crit_numeric,
+    order_of_accuracy, rho_inf, spectral_radius,
 };
 pub use prepared::{Prepared, RootPath};
 pub use roots::pairing_distance;

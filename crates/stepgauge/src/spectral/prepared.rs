@@ -449,7 +449,7 @@ mod tests {
                             "{} {o} {xi}",
                             s.name()
                         );
-                        complex += usize::from(want.principal.is_some());
+                        complex += usize::from(want.principal().is_some());
                     }
                 }
             }

@@ -62,6 +62,7 @@ mod estimates {
                 Ok(())
             },
             options,
+            &Execution::default(),
         )
     }
 
@@ -239,6 +240,7 @@ mod estimates {
                 Ok(())
             },
             &EigenOptions::default(),
+            &Execution::default(),
         )
         .unwrap();
         let err = rel(est.lambda_max, lambda_n);
@@ -447,7 +449,13 @@ mod estimates {
             .collect();
         let springs = vec![1.0; n + 1];
         let mut model = LinearModel::new(&diag_sprs(&mass), &chain_sprs(&springs)).unwrap();
-        let s = estimate(&mut model, &State::at_rest(n, 0.0), &Default::default()).unwrap();
+        let s = estimate(
+            &mut model,
+            &State::at_rest(n, 0.0),
+            &Default::default(),
+            &Execution::default(),
+        )
+        .unwrap();
         assert_eq!(s.method, StableStepMethod::Lanczos);
         let dense = dense_lambda_max(&chain(&springs), &mass, None).sqrt();
         let omega = s.omega_max.unwrap();
@@ -465,7 +473,13 @@ mod estimates {
             .with_rayleigh(a0, a1)
             .unwrap();
         let state = State::at_rest(n, 0.0);
-        let s = estimate(&mut model, &state, &StableStepOptions::default()).unwrap();
+        let s = estimate(
+            &mut model,
+            &state,
+            &StableStepOptions::default(),
+            &Execution::default(),
+        )
+        .unwrap();
         // Fixed-fixed chain closed form (Strang, Introduction to Applied Mathematics, 1986).
         let omega_exact =
             (4.0 * k / m * (n as f64 * PI / (2.0 * (n + 1) as f64)).sin().powi(2)).sqrt();
@@ -482,7 +496,12 @@ mod estimates {
         assert!(rel(s.dt_critical, 2.0 / omega) < 1e-15);
         let damped = 2.0 / omega * ((1.0 + xi * xi).sqrt() - xi);
         assert!(rel(s.dt_critical_damped, damped) < 1e-13);
-        assert!(rel(s.recommended(), DEFAULT_SAFETY * damped) < 1e-13);
+        assert!(
+            rel(
+                s.recommended(DEFAULT_SAFETY).unwrap(),
+                DEFAULT_SAFETY * damped
+            ) < 1e-13
+        );
 
         // The same chain built free-free with one more mass and DOF 0 fixed (zero mass there):
         // the fixed-free closed form (Yueh, Appl. Math. E-Notes 5 (2005) 66-74).
@@ -495,7 +514,13 @@ mod estimates {
             .unwrap()
             .with_constraints(Constraints::new().fix(0))
             .unwrap();
-        let s = estimate(&mut model, &State::at_rest(n + 1, 0.0), &Default::default()).unwrap();
+        let s = estimate(
+            &mut model,
+            &State::at_rest(n + 1, 0.0),
+            &Default::default(),
+            &Execution::default(),
+        )
+        .unwrap();
         let lambda = 4.0 * k / m
             * ((2 * n - 1) as f64 * PI / (2.0 * (2 * n + 1) as f64))
                 .sin()
@@ -508,7 +533,13 @@ mod estimates {
 
         // Without the constraint the zero mass is refused.
         let mut model = LinearModel::new(&diag_sprs(&mass), &chain_sprs(&springs)).unwrap();
-        let e = estimate(&mut model, &State::at_rest(n + 1, 0.0), &Default::default()).unwrap_err();
+        let e = estimate(
+            &mut model,
+            &State::at_rest(n + 1, 0.0),
+            &Default::default(),
+            &Execution::default(),
+        )
+        .unwrap_err();
         assert!(matches!(e, Error::NonPositiveMass { dof: 0, .. }), "{e}");
     }
 
@@ -523,7 +554,7 @@ mod estimates {
         let mut state = State::new(0.25, u, v).unwrap();
         state.step = 7;
         let options = StableStepOptions::default();
-        let reference = estimate(&mut linear, &state, &options).unwrap();
+        let reference = estimate(&mut linear, &state, &options, &Execution::default()).unwrap();
 
         let mut chain_model = ForceOnlyChain {
             k,
@@ -533,17 +564,23 @@ mod estimates {
             fail: false,
         };
         // The element step is used when preferred ...
-        let s = estimate(&mut chain_model, &state, &options).unwrap();
+        let s = estimate(&mut chain_model, &state, &options, &Execution::default()).unwrap();
         assert_eq!(s.method, StableStepMethod::Elements);
         assert!(s.omega_max.is_none() && s.xi.is_none());
         assert!(rel(s.dt_critical, 1.5e-3) < 1e-15 && rel(s.dt_critical_damped, 1.5e-3) < 1e-15);
-        assert!(rel(s.recommended(), 0.9 * 1.5e-3) < 1e-15);
+        assert!(rel(s.recommended(0.9).unwrap(), 0.9 * 1.5e-3) < 1e-15);
         // ... and otherwise the finite-difference Lanczos estimate.
         let no_elements = StableStepOptions {
             prefer_elements: false,
             ..options
         };
-        let s = estimate(&mut chain_model, &state, &no_elements).unwrap();
+        let s = estimate(
+            &mut chain_model,
+            &state,
+            &no_elements,
+            &Execution::default(),
+        )
+        .unwrap();
         assert_eq!(s.method, StableStepMethod::FiniteDifferenceLanczos);
         let err = rel(s.omega_max.unwrap(), reference.omega_max.unwrap());
         eprintln!("finite-difference Lanczos: omega relative error {err:.2e}");
@@ -552,7 +589,8 @@ mod estimates {
         // An element step that is not positive and finite is refused.
         for bad in [0.0, -1.0, f64::NAN, f64::INFINITY] {
             chain_model.element_dt = Some(bad);
-            let e = estimate(&mut chain_model, &state, &options).unwrap_err();
+            let e =
+                estimate(&mut chain_model, &state, &options, &Execution::default()).unwrap_err();
             assert!(
                 matches!(
                     e,
@@ -567,7 +605,7 @@ mod estimates {
         // A failing model is reported with the step and time.
         chain_model.element_dt = None;
         chain_model.fail = true;
-        let e = estimate(&mut chain_model, &state, &options).unwrap_err();
+        let e = estimate(&mut chain_model, &state, &options, &Execution::default()).unwrap_err();
         match e {
             Error::Model { step, t, source } => {
                 assert_eq!(step, 7);
@@ -577,15 +615,21 @@ mod estimates {
             e => panic!("{e}"),
         }
         // Invalid safety fractions and states of the wrong size.
+        let s = estimate(&mut linear, &state, &options, &Execution::default()).unwrap();
         for safety in [0.0, 1.5, f64::NAN] {
-            let o = StableStepOptions { safety, ..options };
-            let e = estimate(&mut linear, &state, &o).unwrap_err();
+            let e = s.recommended(safety).unwrap_err();
             assert!(
                 matches!(e, Error::InvalidParameter { name: "safety", .. }),
                 "{e}"
             );
         }
-        let e = estimate(&mut linear, &State::at_rest(n + 1, 0.0), &options).unwrap_err();
+        let e = estimate(
+            &mut linear,
+            &State::at_rest(n + 1, 0.0),
+            &options,
+            &Execution::default(),
+        )
+        .unwrap_err();
         assert!(matches!(e, Error::DimensionMismatch { .. }), "{e}");
     }
 
@@ -608,6 +652,7 @@ mod estimates {
                 Ok(())
             },
             &EigenOptions::default(),
+            &Execution::default(),
         )
         .unwrap();
         eprintln!(
@@ -641,6 +686,7 @@ mod estimates {
                 Ok(())
             },
             &opts,
+            &Execution::default(),
         )
         .unwrap();
         assert!(rel(est.lambda_max, 3.0) < 1e-15 && est.products == 1);
@@ -655,6 +701,7 @@ mod estimates {
                 Ok(())
             },
             &opts,
+            &Execution::default(),
         )
         .unwrap();
         assert!(rel(est.lambda_max, 5.0) < 1e-14, "{}", est.lambda_max);
@@ -669,6 +716,7 @@ mod estimates {
                 Ok(())
             },
             &opts,
+            &Execution::default(),
         )
         .unwrap();
         assert!(rel(est.lambda_max, 2.0) < 1e-15);
@@ -678,6 +726,7 @@ mod estimates {
             Some(&[true, true]),
             |_, _| panic!("no product expected"),
             &opts,
+            &Execution::default(),
         )
         .unwrap();
         assert!(est.omega_max == 0.0 && est.products == 0);
@@ -690,11 +739,13 @@ mod estimates {
                 Ok(())
             },
             &opts,
+            &Execution::default(),
         )
         .unwrap();
         assert!(est.omega_max == 0.0 && est.products == 1);
         // An empty model.
-        let e = omega_max_lanczos(&[], None, |_, _| Ok(()), &opts).unwrap_err();
+        let e =
+            omega_max_lanczos(&[], None, |_, _| Ok(()), &opts, &Execution::default()).unwrap_err();
         assert!(matches!(e, Error::EmptyModel), "{e}");
     }
 
@@ -766,10 +817,18 @@ mod estimates {
                 Ok(())
             },
             &few,
+            &Execution::default(),
         )
         .unwrap_err();
         assert!(matches!(e, Error::NonFiniteInput { index: 5, .. }), "{e}");
-        let e = omega_max_lanczos(&mass, None, |_, _| Err(Error::EmptyModel), &few).unwrap_err();
+        let e = omega_max_lanczos(
+            &mass,
+            None,
+            |_, _| Err(Error::EmptyModel),
+            &few,
+            &Execution::default(),
+        )
+        .unwrap_err();
         assert!(matches!(e, Error::EmptyModel), "{e}");
         // A small Krylov dimension still converges (with more restarts), to the same value.
         let small = EigenOptions {
@@ -791,17 +850,12 @@ mod estimates {
             }
             Ok(())
         };
-        let serial = EigenOptions {
-            parallel: Parallelism::serial(),
-            ..Default::default()
-        };
-        let parallel = EigenOptions {
-            parallel: Parallelism { threshold: 1 },
-            ..Default::default()
-        };
+        let serial = Execution::serial();
+        let parallel = Execution::serial().with_parallelism(Parallelism { threshold: 1 });
         let mass = vec![1.0; n];
-        let s = omega_max_lanczos(&mass, None, diag_op, &serial).unwrap();
-        let p = omega_max_lanczos(&mass, None, diag_op, &parallel).unwrap();
+        let o = EigenOptions::default();
+        let s = omega_max_lanczos(&mass, None, diag_op, &o, &serial).unwrap();
+        let p = omega_max_lanczos(&mass, None, diag_op, &o, &parallel).unwrap();
         assert_eq!(s.lambda_max.to_bits(), p.lambda_max.to_bits());
         assert_eq!(s.products, p.products);
         assert!(rel(s.lambda_max, 3.0) < 1e-12);

@@ -1,8 +1,9 @@
 //! The energy booking of a converged sub-step: the works by the trapezoidal rule, the growth
 //! guard, and the acceptance of the sub-step into the state.
 
-use super::AlphaIntegrator;
+use super::{AlphaIntegrator, sum_dot};
 use crate::error::{Error, Result};
+use crate::linalg::global_sums;
 use crate::model::Model;
 use crate::state::State;
 
@@ -32,21 +33,36 @@ impl AlphaIntegrator {
         let a1 = std::mem::take(&mut self.a1);
         self.reactions_into(&a1, false);
         self.a1 = a1;
-        let mut w = [0.0; 4];
-        for i in 0..self.n {
-            let du = self.u1[i] - state.u[i];
-            w[0] += du * (self.f_int0[i] + self.f_int1[i]);
-            w[1] += du * (self.f_ext0[i] + self.f_ext1[i]);
-            w[2] += du * (self.f_d0[i] + self.f_d1[i]);
-        }
+        // The reactions (of the constrained DOFs, in `constraints` order) spread over the DOFs
+        // for the chunked sum: `tmp` holds them, zero elsewhere.
+        self.tmp.fill(0.0);
         for (j, (dof, _)) in self.constraints.iter().enumerate() {
-            let du = self.u1[*dof] - state.u[*dof];
-            w[3] += du * (self.reactions0[j] + self.reactions1[j]);
+            self.tmp[*dof] = self.reactions0[j] + self.reactions1[j];
         }
-        self.options.reduce.sum_in_place(&mut w);
+        let (u0, u1, r) = (&state.u, &self.u1, &self.tmp);
+        let (fi0, fi1, fe0, fe1) = (&self.f_int0, &self.f_int1, &self.f_ext0, &self.f_ext1);
+        let (fd0, fd1) = (&self.f_d0, &self.f_d1);
+        let w = global_sums(
+            &self.options.execution,
+            self.n,
+            &mut self.scratch,
+            |i, w| {
+                let du = u1[i] - u0[i];
+                w[0] += du * (fi0[i] + fi1[i]);
+                w[1] += du * (fe0[i] + fe1[i]);
+                w[2] += du * (fd0[i] + fd1[i]);
+                w[3] += du * r[i];
+            },
+        );
         self.mass
-            .mul(&self.v1, &mut self.tmp, self.options.parallel);
-        let ke = 0.5 * self.sum_dot(&self.v1, &self.tmp);
+            .mul(&self.v1, &mut self.tmp, self.options.execution.parallelism);
+        let ke = 0.5
+            * sum_dot(
+                &self.options.execution,
+                &mut self.scratch,
+                &self.v1,
+                &self.tmp,
+            );
         self.book(model, state, t1, step, w, ke)
     }
 
@@ -67,10 +83,16 @@ impl AlphaIntegrator {
         let (d_int, d_ext, d_damp, d_con) = (0.5 * w[0], 0.5 * w[1], 0.5 * w[2], 0.5 * w[3]);
         let mut d_extra = 0.0;
         for k in 0..self.f_x0.len() {
-            let s: f64 = (0..self.n)
-                .map(|i| (self.u1[i] - state.u[i]) * (self.f_x0[k][i] + self.f_x1[k][i]))
-                .sum();
-            let s = 0.5 * self.options.reduce.sum(s);
+            let (u0, u1, x0, x1) = (&state.u, &self.u1, &self.f_x0[k], &self.f_x1[k]);
+            let [s] = global_sums(
+                &self.options.execution,
+                self.n,
+                &mut self.scratch,
+                |i, s| {
+                    s[0] += (u1[i] - u0[i]) * (x0[i] + x1[i]);
+                },
+            );
+            let s = 0.5 * s;
             l.extra_work[k] += s;
             d_extra += s;
         }

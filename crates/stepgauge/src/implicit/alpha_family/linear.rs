@@ -51,7 +51,7 @@ impl AlphaIntegrator {
         let bh2 = bh * h;
         let g = p.gamma;
         let n = self.n;
-        let par = self.options.parallel.parallel_for(n);
+        let par = self.options.execution.parallelism.parallel_for(n);
         let damped = !matches!(self.damping, Damping::None);
         self.report.residuals.clear();
         let err = model_err(step, t1);
@@ -115,14 +115,15 @@ impl AlphaIntegrator {
                 &self.v1,
                 &mut self.f_d1,
                 &mut self.tmp,
-                self.options.parallel,
+                self.options.execution.parallelism,
             )
             .map_err(&err)?;
         }
         // 2. Right-hand side -R_p into du, with M a_n.
         let md = self.mass.diagonal();
         if md.is_none() {
-            self.mass.mul(a0, &mut self.mw, self.options.parallel);
+            self.mass
+                .mul(a0, &mut self.mw, self.options.execution.parallelism);
         }
         {
             let (mw, fi0, fi1, fd0, fd1) =
@@ -251,7 +252,7 @@ impl AlphaIntegrator {
                 ),
             }
         }
-        let mut sums = crate::linalg::sum_partials(&self.partials);
+        let mut sums = crate::linalg::sum_partials(&self.options.execution, &self.partials);
         if !sums[3].is_finite() {
             // Name the DOF.
             for (what, x) in [
@@ -273,10 +274,13 @@ impl AlphaIntegrator {
         if !lumped_undamped {
             if md.is_none() {
                 // M w (w was left in f_int1) and M v_{n+1}.
+                self.mass.mul(
+                    &self.f_int1,
+                    &mut self.mw,
+                    self.options.execution.parallelism,
+                );
                 self.mass
-                    .mul(&self.f_int1, &mut self.mw, self.options.parallel);
-                self.mass
-                    .mul(&self.v1, &mut self.res, self.options.parallel);
+                    .mul(&self.v1, &mut self.res, self.options.execution.parallelism);
             }
             if damped {
                 damping_force(
@@ -288,7 +292,7 @@ impl AlphaIntegrator {
                     &self.v1,
                     &mut self.f_d1,
                     &mut self.tmp,
-                    self.options.parallel,
+                    self.options.execution.parallelism,
                 )
                 .map_err(&err)?;
             }
@@ -330,7 +334,7 @@ impl AlphaIntegrator {
                     *sums = s;
                 },
             );
-            sums = crate::linalg::sum_partials(&self.partials);
+            sums = crate::linalg::sum_partials(&self.options.execution, &self.partials);
             w_int = sums[0];
             w_damp = sums[1];
             if md.is_none() {
@@ -341,9 +345,9 @@ impl AlphaIntegrator {
             check_finite("internal force", &self.f_int1)?;
             check_finite("damping force", &self.f_d1)?;
         }
-        let mut w = [w_int, w_ext, w_damp, 0.0];
-        self.options.reduce.sum_in_place(&mut w);
-        let ke = 0.5 * self.options.reduce.sum(ke);
+        // The sums are global already (finished by the reducer).
+        let w = [w_int, w_ext, w_damp, 0.0];
+        let ke = 0.5 * ke;
         self.book(model, state, t1, step, w, ke)?;
         Ok(1)
     }
@@ -380,7 +384,7 @@ impl AlphaIntegrator {
         let bh2 = bh * h;
         let g = p.gamma;
         let n = self.n;
-        let par = self.options.parallel.parallel_for(n);
+        let par = self.options.execution.parallelism.parallel_for(n);
         let err = model_err(step, t1);
         let unloaded = model.is_unloaded();
         if !unloaded {
@@ -469,7 +473,7 @@ impl AlphaIntegrator {
                 };
             });
         }
-        let sums = crate::linalg::sum_partials(&self.partials);
+        let sums = crate::linalg::sum_partials(&self.options.execution, &self.partials);
         if !sums[3].is_finite() {
             for (what, x) in [
                 ("displacement", &self.u1),
@@ -487,9 +491,9 @@ impl AlphaIntegrator {
             }
             check_finite("internal force", &self.f_int1)?;
         }
-        let mut w = [sums[0], sums[1], 0.0, 0.0];
-        self.options.reduce.sum_in_place(&mut w);
-        let ke = 0.5 * self.options.reduce.sum(sums[2]);
+        // The sums are global already (finished by the reducer).
+        let w = [sums[0], sums[1], 0.0, 0.0];
+        let ke = 0.5 * sums[2];
         self.book(model, state, t1, step, w, ke)?;
         Ok(1)
     }

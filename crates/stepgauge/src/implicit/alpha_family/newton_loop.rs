@@ -1,9 +1,10 @@
 //! The Newton-Raphson iterations of one sub-step: the predictor, the constrained DOFs' motion,
 //! the convergence criteria, the evaluation of the residual and the iteration matrix.
 
-use super::{AlphaIntegrator, damping_force};
+use super::{AlphaIntegrator, damping_force, sum_dot};
 use crate::error::{Error, Result};
 use crate::implicit::{Criterion, NewtonVariant};
+use crate::linalg::{CHUNK, chunk_count, global_sums, sum_partials};
 use crate::model::{Damping, Model, Motion, TimeFunction};
 use crate::setup::model_err;
 use crate::state::State;
@@ -85,7 +86,13 @@ impl AlphaIntegrator {
             } else {
                 // The floors of the criteria (see NewtonOptions).
                 let step_norm = self.diff_norm(state);
-                let u_norm = self.sum_dot(&self.u1, &self.u1).sqrt();
+                let u_norm = sum_dot(
+                    &self.options.execution,
+                    &mut self.scratch,
+                    &self.u1,
+                    &self.u1,
+                )
+                .sqrt();
                 let u_ref = step_norm.max(u_norm).max(f64::MIN_POSITIVE);
                 let e_ref = e_first.max(u_norm * f_ref);
                 let residual_ok = rel <= nopt.residual_tolerance;
@@ -161,7 +168,13 @@ impl AlphaIntegrator {
             for (dof, _) in &self.constraints {
                 self.du[*dof] = 0.0;
             }
-            let energy = self.sum_dot(&self.du, &self.res).abs();
+            let energy = sum_dot(
+                &self.options.execution,
+                &mut self.scratch,
+                &self.du,
+                &self.res,
+            )
+            .abs();
             if iterations == 0 {
                 e_first = energy;
             }
@@ -197,7 +210,13 @@ impl AlphaIntegrator {
                 r_norm = r;
                 f_ref = f;
             }
-            du_norm = s * self.sum_dot(&self.du, &self.du).sqrt();
+            du_norm = s * sum_dot(
+                &self.options.execution,
+                &mut self.scratch,
+                &self.du,
+                &self.du,
+            )
+            .sqrt();
             if iterations == 0 {
                 r_first = r_first.max(r_norm);
             }
@@ -208,14 +227,17 @@ impl AlphaIntegrator {
     }
 
     /// `||u1 - u||` over all DOFs.
-    fn diff_norm(&self, state: &State) -> f64 {
-        let s: f64 = self
-            .u1
-            .iter()
-            .zip(&state.u)
-            .map(|(a, b)| (a - b) * (a - b))
-            .sum();
-        self.options.reduce.sum(s).sqrt()
+    fn diff_norm(&mut self, state: &State) -> f64 {
+        let (u0, u1) = (&state.u, &self.u1);
+        let [s] = global_sums(
+            &self.options.execution,
+            self.n,
+            &mut self.scratch,
+            |i, s| {
+                s[0] += (u1[i] - u0[i]) * (u1[i] - u0[i]);
+            },
+        );
+        s.sqrt()
     }
 
     /// The relative residuals of the last attempt, for an error (at most the first 64).
@@ -296,7 +318,7 @@ impl AlphaIntegrator {
             &self.v1,
             &mut self.f_d1,
             &mut self.tmp,
-            self.options.parallel,
+            self.options.execution.parallelism,
         )
         .map_err(&err)?;
         for (k, f) in self.f_x1.iter_mut().enumerate() {
@@ -309,32 +331,40 @@ impl AlphaIntegrator {
             self.tmp[i] = (1.0 - p.alpha_m) * self.a1[i] + p.alpha_m * a0[i];
         }
         self.mass
-            .mul(&self.tmp, &mut self.mw, self.options.parallel);
+            .mul(&self.tmp, &mut self.mw, self.options.execution.parallelism);
         let (af, bf) = (1.0 - p.alpha_f, p.alpha_f);
-        let mut sums = [0.0; 5];
-        for i in 0..self.n {
-            let mut g1 = self.f_int1[i] + self.f_d1[i];
-            let mut g0 = self.f_int0[i] + self.f_d0[i];
-            for (x1, x0) in self.f_x1.iter().zip(&self.f_x0) {
-                g1 += x1[i];
-                g0 += x0[i];
+        // Chunk by chunk, so that the sums are finished by the reducer in chunk order.
+        let (partials, _) = self.scratch.as_chunks_mut::<5>();
+        for (c, partial) in partials.iter_mut().take(chunk_count(self.n)).enumerate() {
+            let mut sums = [0.0; 5];
+            for i in c * CHUNK..((c + 1) * CHUNK).min(self.n) {
+                let mut g1 = self.f_int1[i] + self.f_d1[i];
+                let mut g0 = self.f_int0[i] + self.f_d0[i];
+                for (x1, x0) in self.f_x1.iter().zip(&self.f_x0) {
+                    g1 += x1[i];
+                    g0 += x0[i];
+                }
+                let fe = af * self.f_ext1[i] + bf * self.f_ext0[i];
+                let g = af * g1 + bf * g0;
+                let r = self.mw[i] + g - fe;
+                if self.mask[i] {
+                    // The residual at a constrained DOF is its reaction.
+                    self.res[i] = 0.0;
+                    sums[4] += r * r;
+                } else {
+                    self.res[i] = r;
+                    sums[0] += r * r;
+                    sums[1] += self.mw[i] * self.mw[i];
+                    sums[2] += g * g;
+                    sums[3] += fe * fe;
+                }
             }
-            let fe = af * self.f_ext1[i] + bf * self.f_ext0[i];
-            let g = af * g1 + bf * g0;
-            let r = self.mw[i] + g - fe;
-            if self.mask[i] {
-                // The residual at a constrained DOF is its reaction.
-                self.res[i] = 0.0;
-                sums[4] += r * r;
-            } else {
-                self.res[i] = r;
-                sums[0] += r * r;
-                sums[1] += self.mw[i] * self.mw[i];
-                sums[2] += g * g;
-                sums[3] += fe * fe;
-            }
+            *partial = sums;
         }
-        self.options.reduce.sum_in_place(&mut sums);
+        let sums = sum_partials(
+            &self.options.execution,
+            &self.scratch.as_chunks::<5>().0[..chunk_count(self.n)],
+        );
         if !sums.iter().all(|x| x.is_finite()) {
             return Err(self.non_finite_force(step, t1));
         }

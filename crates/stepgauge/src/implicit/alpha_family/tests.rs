@@ -1,7 +1,7 @@
 //! Unit tests of the linear paths: the fused, streamlined and general forms against each other.
 
 use super::*;
-use crate::linalg::SparseCholesky;
+use crate::linalg::{Execution, SparseCholesky};
 use crate::model::{LinearModel, Load, TimeFunction};
 use sprs::{CsMat, TriMat};
 
@@ -90,7 +90,7 @@ fn fused_linear_path_is_bit_identical() {
                     let v0: Vec<f64> = (0..n).map(|i| 0.1 * (0.7 * i as f64).cos()).collect();
                     let mut state = State::new(0.0, u0, v0).unwrap();
                     let options = ImplicitOptions {
-                        parallel: Parallelism { threshold },
+                        execution: Execution::default().with_parallelism(Parallelism { threshold }),
                         ..ImplicitOptions::default()
                     };
                     let mut it = AlphaIntegrator::new(

@@ -39,7 +39,7 @@ fn clustered_top_is_accepted_at_budget_within_its_bound() {
         tolerance_at_budget: 1e-3,
         ..Default::default()
     };
-    let est = omega_max_lanczos(&mass, None, apply, &options).unwrap();
+    let est = omega_max_lanczos(&mass, None, apply, &options, &Execution::default()).unwrap();
     assert_eq!(est.products, 150, "the budget was spent");
     assert!(
         est.error_estimate > options.tolerance && est.error_estimate <= options.tolerance_at_budget,
@@ -61,7 +61,7 @@ fn clustered_top_is_accepted_at_budget_within_its_bound() {
         tolerance_at_budget: 0.0,
         ..options
     };
-    let e = omega_max_lanczos(&mass, None, apply, &strict).unwrap_err();
+    let e = omega_max_lanczos(&mass, None, apply, &strict, &Execution::default()).unwrap_err();
     match e {
         Error::EigenNotConverged {
             iterations,
@@ -76,7 +76,7 @@ fn clustered_top_is_accepted_at_budget_within_its_bound() {
         tolerance_at_budget: f64::NAN,
         ..options
     };
-    let e = omega_max_lanczos(&mass, None, apply, &bad).unwrap_err();
+    let e = omega_max_lanczos(&mass, None, apply, &bad, &Execution::default()).unwrap_err();
     assert!(
         matches!(
             e,
