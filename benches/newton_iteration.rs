@@ -8,7 +8,7 @@ use std::time::{Duration, Instant};
 use criterion::{BenchmarkId, Criterion, criterion_group, criterion_main};
 use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions};
 use stepgauge::linalg::{CsrMatrix, SparseCholesky};
-use stepgauge::model::Model;
+use stepgauge::model::{Model, Tangent};
 use stepgauge::params::AlphaParams;
 use stepgauge::{ModelError, State};
 
@@ -65,9 +65,13 @@ impl Model for CubicChain {
         }
         Ok(())
     }
-    fn tangent_pattern(&self) -> Option<&CsrMatrix> {
-        Some(&self.pattern)
+}
+
+impl Tangent for CubicChain {
+    fn tangent_pattern(&self) -> &CsrMatrix {
+        &self.pattern
     }
+
     fn tangent_stiffness(
         &mut self,
         _t: f64,

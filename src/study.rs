@@ -163,9 +163,9 @@ pub fn run_scheme(
     }
 }
 
-fn walk<I: Integrator>(
+fn walk<M: Model + ?Sized, I: Integrator<M>>(
     it: &mut I,
-    model: &mut (dyn Model + Send),
+    model: &mut M,
     state: &mut State,
     p: &dyn ReferenceProblem,
     dt: f64,

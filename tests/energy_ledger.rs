@@ -14,8 +14,7 @@
 mod common;
 
 use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions, StableLimit};
-use stepgauge::linalg::CsrMatrix;
-use stepgauge::model::{Constraints, Damping, LinearModel, Load, Model, TimeFunction};
+use stepgauge::model::{Constraints, Damping, Hints, LinearModel, Load, Model, TimeFunction};
 use stepgauge::{ModelError, State};
 
 const N: usize = 4;
@@ -144,11 +143,11 @@ impl Model for WithCubic {
     fn constraints(&self) -> &Constraints {
         self.inner.constraints()
     }
-    fn linear_stiffness(&self) -> Option<&CsrMatrix> {
+    fn hints(&self) -> Hints<'_> {
         if self.fused {
-            self.inner.linear_stiffness()
+            self.inner.hints()
         } else {
-            None
+            Hints::default()
         }
     }
     fn extra_force_names(&self) -> Vec<String> {

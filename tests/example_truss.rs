@@ -10,12 +10,12 @@ use model::Truss;
 use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
 use stepgauge::implicit::{AlphaIntegrator, Criterion, ImplicitOptions};
 use stepgauge::linalg::{CsrMatrix, SparseCholesky};
-use stepgauge::model::{Constraints, Model};
+use stepgauge::model::{Constraints, Model, Tangent};
 use stepgauge::params::AlphaParams;
 use stepgauge::run::{Flow, RunOptions, StepControl, run};
 use stepgauge::{Error, ModelError, State};
 
-fn hht(model: &mut dyn Model, s: &mut State) -> AlphaIntegrator {
+fn hht(model: &mut dyn Tangent, s: &mut State) -> AlphaIntegrator {
     let p = AlphaParams::hht(-0.1).unwrap();
     AlphaIntegrator::new(
         model,
@@ -157,9 +157,13 @@ impl Model for NanAfter {
     fn constraints(&self) -> &Constraints {
         self.0.constraints()
     }
-    fn tangent_pattern(&self) -> Option<&CsrMatrix> {
+}
+
+impl Tangent for NanAfter {
+    fn tangent_pattern(&self) -> &CsrMatrix {
         self.0.tangent_pattern()
     }
+
     fn tangent_stiffness(
         &mut self,
         t: f64,

@@ -8,11 +8,13 @@ mod common;
 use stepgauge::explicit::{
     CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
 };
-use stepgauge::model::{Constraints, Damping, LinearModel, Load, Model, TimeFunction};
-use stepgauge::{ModelError, State};
+use stepgauge::model::{
+    Constraints, Damping, Hints, LinearModel, Linearity, Load, Model, TimeFunction, check_hints,
+};
+use stepgauge::{Error, ModelError, State};
 
-/// A [`LinearModel`] seen only through the general [`Model`] methods: no
-/// `linear_stiffness`, and `is_unloaded` left at `false`, so the integrator takes the general path.
+/// A [`LinearModel`] seen only through the general [`Model`] methods: no hints (no stiffness,
+/// not unloaded), so the integrator takes the general path.
 struct Opaque(LinearModel);
 
 impl Model for Opaque {
@@ -123,8 +125,8 @@ fn fused_path_is_bit_identical_to_the_general_path() {
             let (loaded, damped, constrained) = (case & 1 != 0, case & 2 != 0, case & 4 != 0);
             for fv in [ForceVelocity::Lagged, ForceVelocity::Predicted] {
                 let fused = model(n, loaded, damped, constrained);
-                assert!(fused.linear_stiffness().is_some());
-                assert_eq!(fused.is_unloaded(), !loaded);
+                assert!(matches!(fused.hints().linearity, Linearity::Stiffness(_)));
+                assert_eq!(fused.hints().unloaded, !loaded);
                 let general = Opaque(fused.clone());
                 let ((s1, e1), (s2, e2)) =
                     pool.install(|| (run(fused, n, fv), run(general, n, fv)));
@@ -142,10 +144,12 @@ fn fused_path_is_bit_identical_to_the_general_path() {
     }
 }
 
-/// A model whose `linear_stiffness` does not fit its size is run on the general path for the
-/// internal force (the fused loop needs an `n x n` matrix); its `is_unloaded` is still used.
+/// A model whose stiffness hint does not fit its size: `check_hints` refuses it (and so does the
+/// integrator in a debug build); a release build, which does not check, runs it on the general
+/// path for the internal force (the fused loop needs an `n x n` matrix) and still uses its
+/// `unloaded` hint.
 #[test]
-fn a_stiffness_of_the_wrong_size_is_not_used() {
+fn a_stiffness_of_the_wrong_size_is_refused_or_not_used() {
     struct WrongK {
         inner: LinearModel,
         other: LinearModel,
@@ -166,21 +170,38 @@ fn a_stiffness_of_the_wrong_size_is_not_used() {
         ) -> Result<(), ModelError> {
             self.inner.internal_force(t, u, v, out)
         }
-        fn linear_stiffness(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-            self.other.linear_stiffness()
-        }
-        fn is_unloaded(&self) -> bool {
-            true
+        fn hints(&self) -> Hints<'_> {
+            Hints::default()
+                .stiffness(self.other.stiffness_matrix())
+                .unloaded()
         }
         fn stored_energy(&self, u: &[f64]) -> Option<f64> {
             self.inner.stored_energy(u)
         }
     }
     let n = 50;
-    let wrong = WrongK {
+    let mut wrong = WrongK {
         inner: model(n, false, false, false),
         other: model(n + 1, false, false, false),
     };
+    let e = check_hints(&mut wrong, 0.0).unwrap_err();
+    assert!(
+        matches!(
+            e,
+            Error::HintMismatch {
+                hint: "Linearity::Stiffness",
+                ..
+            }
+        ),
+        "{e}"
+    );
+    if cfg!(debug_assertions) {
+        let mut state = State::at_rest(n, 0.0);
+        let e = CentralDifference::new(&mut wrong, &mut state, CentralDifferenceOptions::default())
+            .unwrap_err();
+        assert!(matches!(e, Error::HintMismatch { .. }), "{e}");
+        return;
+    }
     let (s1, e1) = run(wrong, n, ForceVelocity::Lagged);
     let (s2, e2) = run(
         Opaque(model(n, false, false, false)),

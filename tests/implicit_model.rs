@@ -385,9 +385,20 @@ impl stepgauge::model::Model for HiddenDamping {
     fn mass_matrix(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
         stepgauge::model::Model::mass_matrix(&self.0)
     }
-    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-        stepgauge::model::Model::tangent_pattern(&self.0)
+
+    fn hints(&self) -> stepgauge::model::Hints<'_> {
+        stepgauge::model::Hints::default().linear()
     }
+    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
+        self.0.stored_energy(u)
+    }
+}
+
+impl stepgauge::model::Tangent for HiddenDamping {
+    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
+        stepgauge::model::Tangent::tangent_pattern(&self.0)
+    }
+
     fn tangent_stiffness(
         &mut self,
         t: f64,
@@ -396,12 +407,6 @@ impl stepgauge::model::Model for HiddenDamping {
         out: &mut stepgauge::linalg::CsrMatrix,
     ) -> Result<(), stepgauge::ModelError> {
         self.0.tangent_stiffness(t, u, v, out)
-    }
-    fn is_linear(&self) -> bool {
-        true
-    }
-    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
-        self.0.stored_energy(u)
     }
 }
 
@@ -538,9 +543,18 @@ impl stepgauge::model::Model for LoadFailsAfter {
     fn mass_matrix(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
         stepgauge::model::Model::mass_matrix(&self.0)
     }
-    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-        stepgauge::model::Model::tangent_pattern(&self.0)
+
+    fn hints(&self) -> stepgauge::model::Hints<'_> {
+        // The stiffness, but not the wrapped model's `unloaded`.
+        stepgauge::model::Hints::default().stiffness(self.0.stiffness_matrix())
     }
+}
+
+impl stepgauge::model::Tangent for LoadFailsAfter {
+    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
+        stepgauge::model::Tangent::tangent_pattern(&self.0)
+    }
+
     fn tangent_stiffness(
         &mut self,
         t: f64,
@@ -549,12 +563,6 @@ impl stepgauge::model::Model for LoadFailsAfter {
         out: &mut stepgauge::linalg::CsrMatrix,
     ) -> Result<(), stepgauge::ModelError> {
         self.0.tangent_stiffness(t, u, v, out)
-    }
-    fn is_linear(&self) -> bool {
-        true
-    }
-    fn linear_stiffness(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-        stepgauge::model::Model::linear_stiffness(&self.0)
     }
 }
 

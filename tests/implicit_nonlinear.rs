@@ -6,7 +6,7 @@ mod common;
 
 use common::Duffing;
 use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions, NewtonVariant};
-use stepgauge::model::Model;
+use stepgauge::model::{Model, Tangent};
 use stepgauge::params::AlphaParams;
 use stepgauge::{Error, ModelError, State};
 
@@ -134,18 +134,7 @@ impl Model for CubicAsExtra {
     fn damping_matrix(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
         self.0.damping_matrix()
     }
-    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-        self.0.tangent_pattern()
-    }
-    fn tangent_stiffness(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut stepgauge::linalg::CsrMatrix,
-    ) -> Result<(), ModelError> {
-        self.0.tangent_stiffness(t, u, v, out)
-    }
+
     fn extra_force_names(&self) -> Vec<String> {
         vec!["cubic".to_string()]
     }
@@ -159,6 +148,22 @@ impl Model for CubicAsExtra {
     ) -> Result<(), ModelError> {
         out[0] = self.0.k3 * u[0].powi(3);
         Ok(())
+    }
+}
+
+impl Tangent for CubicAsExtra {
+    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
+        self.0.tangent_pattern()
+    }
+
+    fn tangent_stiffness(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut stepgauge::linalg::CsrMatrix,
+    ) -> Result<(), ModelError> {
+        self.0.tangent_stiffness(t, u, v, out)
     }
 }
 
@@ -426,18 +431,7 @@ impl Model for Timed {
     fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), ModelError> {
         self.0.external_force(t, out)
     }
-    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-        self.0.tangent_pattern()
-    }
-    fn tangent_stiffness(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut stepgauge::linalg::CsrMatrix,
-    ) -> Result<(), ModelError> {
-        self.0.tangent_stiffness(t, u, v, out)
-    }
+
     fn damping(&self) -> stepgauge::model::Damping {
         self.0.damping()
     }
@@ -455,6 +449,22 @@ impl Model for Timed {
     }
     fn accept_step(&mut self, t: f64) {
         self.1.push(t);
+    }
+}
+
+impl Tangent for Timed {
+    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
+        self.0.tangent_pattern()
+    }
+
+    fn tangent_stiffness(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut stepgauge::linalg::CsrMatrix,
+    ) -> Result<(), ModelError> {
+        self.0.tangent_stiffness(t, u, v, out)
     }
 }
 
@@ -531,9 +541,13 @@ impl Model for Breaks {
         }
         self.0.internal_force(t, u, v, out)
     }
-    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
+}
+
+impl Tangent for Breaks {
+    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
         self.0.tangent_pattern()
     }
+
     fn tangent_stiffness(
         &mut self,
         t: f64,
@@ -587,9 +601,13 @@ impl Model for GoesNan {
         }
         Ok(())
     }
-    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
+}
+
+impl Tangent for GoesNan {
+    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
         self.0.tangent_pattern()
     }
+
     fn tangent_stiffness(
         &mut self,
         t: f64,

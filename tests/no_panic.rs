@@ -30,7 +30,9 @@ use stepgauge::linalg::{
     CgOptions, ConjugateGradient, CsrMatrix, Execution, LinearSolver, Parallelism, SparseCholesky,
     SparseLu, dot, norm2, spmv,
 };
-use stepgauge::model::{Constraints, Damping, LinearModel, Load, LoadTable, Model, TimeFunction};
+use stepgauge::model::{
+    Constraints, Damping, LinearModel, Load, LoadTable, Model, Tangent, TimeFunction,
+};
 use stepgauge::params::AlphaParams;
 use stepgauge::reference::{
     BarImpact, Duffing, ReferenceProblem, SdofFree, SdofHalfSine, SdofHarmonic, StiffSoft,
@@ -278,7 +280,7 @@ proptest! {
         n in 1..4usize, lens in prop::collection::vec(0..5usize, 4), t in num(), x in num(),
         which in 0..2usize,
     ) {
-        let mut models: Vec<Box<dyn Model>> = vec![
+        let mut models: Vec<Box<dyn Tangent>> = vec![
             Box::new(
                 chain(n, 2.0)
                     .with_load(Load::Table(LoadTable::new(vec![0.0, 1.0], vec![n - 1], vec![0.0, 1.0]).unwrap()))
@@ -474,7 +476,7 @@ proptest! {
         if !(finite(given) && given > 0.0) {
             refused("set_stable_limit", &given, &r);
         }
-        let r = guard("reestimate_stable_step", &wrong, || cd.reestimate_stable_step(&mut model, &other));
+        let r = guard("reestimate_stable_step", &wrong, || cd.update_stable_step(&mut model, &other));
         refused("reestimate_stable_step (bad state)", &wrong, &r);
         // Resume with an edited ledger.
         let mut ledger = cd.energy().clone();

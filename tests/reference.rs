@@ -48,9 +48,9 @@ fn grid(p: &dyn ReferenceProblem) -> Grid {
 
 /// Steps `state` with `dt0 / 2^level` and returns the largest error of the observed DOF at the
 /// coarse-grid times where the reference is exact (all of them, or the table's rows).
-fn walk<I: Integrator>(
+fn walk<M: Model + ?Sized, I: Integrator<M>>(
     it: &mut I,
-    model: &mut (dyn Model + Send),
+    model: &mut M,
     state: &mut State,
     p: &dyn ReferenceProblem,
     g: &Grid,

@@ -14,7 +14,7 @@
 
 use stepgauge::ModelError;
 use stepgauge::explicit::element_stable_step;
-use stepgauge::model::Model;
+use stepgauge::model::{Hints, Model};
 
 /// An isotropic elastic-plastic material (plane strain).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -589,8 +589,8 @@ impl Model for Billet {
         element_stable_step(&self.lengths, &self.speeds).ok()
     }
 
-    fn is_unloaded(&self) -> bool {
-        true
+    fn hints(&self) -> Hints<'_> {
+        Hints::default().unloaded()
     }
 
     /// Makes the trial points of the last internal-force evaluation permanent and adds their
@@ -1071,7 +1071,7 @@ pub fn simulate(s: &Scenario) -> Result<Outcome, stepgauge::Error> {
     let mut turned = false;
     let mut previous_u = state.u.clone();
     while state.t < t_end {
-        cd.reestimate_stable_step(&mut billet, &state)?;
+        cd.update_stable_step(&mut billet, &state)?;
         let limit = cd.stable_limit().unwrap_or(f64::NAN);
         let mut dt = s.safety * limit;
         let last = t_end - state.t <= dt;

@@ -20,7 +20,7 @@
 
 use stepgauge::ModelError;
 use stepgauge::linalg::{CsrMatrix, ElementScatter};
-use stepgauge::model::{Constraints, Model};
+use stepgauge::model::{Constraints, Model, Tangent};
 
 /// The invented truss and its ramped load.
 #[derive(Debug, Clone)]
@@ -144,9 +144,13 @@ impl Model for Truss {
     fn constraints(&self) -> &Constraints {
         &self.constraints
     }
-    fn tangent_pattern(&self) -> Option<&CsrMatrix> {
-        Some(&self.pattern)
+}
+
+impl Tangent for Truss {
+    fn tangent_pattern(&self) -> &CsrMatrix {
+        &self.pattern
     }
+
     fn tangent_stiffness(
         &mut self,
         _t: f64,

@@ -222,41 +222,9 @@ fn step_choice(s: &str) -> Result<StepChoice, Failure> {
     }
 }
 
-/// The two integrators behind one interface.
-enum Engine {
-    Explicit(Box<CentralDifference>),
-    Implicit(Box<AlphaIntegrator>),
-}
+/// Either integrator, through the library's object-safe trait.
+type Engine = Box<dyn Integrator<LinearModel>>;
 
-impl Engine {
-    fn step(
-        &mut self,
-        model: &mut LinearModel,
-        state: &mut State,
-        dt: f64,
-    ) -> stepgauge::Result<()> {
-        match self {
-            Engine::Explicit(cd) => Integrator::step(cd.as_mut(), model, state, dt).map(|_| ()),
-            Engine::Implicit(it) => Integrator::step(it.as_mut(), model, state, dt).map(|_| ()),
-        }
-    }
-
-    fn energy(&self) -> &EnergyLedger {
-        match self {
-            Engine::Explicit(cd) => cd.energy(),
-            Engine::Implicit(it) => it.energy(),
-        }
-    }
-
-    fn iterations(&self) -> usize {
-        match self {
-            Engine::Explicit(_) => 0,
-            Engine::Implicit(it) => it.last_report().iterations,
-        }
-    }
-}
-
-/// Builds the model from the options.
 fn build_model(args: &RunArgs) -> Result<LinearModel, Failure> {
     let (m, k) = read_mk(&args.mass, &args.stiffness)?;
     let n = m.rows();
@@ -372,7 +340,7 @@ fn build_engine(
                     }
                 },
             };
-            Ok((Engine::Explicit(Box::new(cd)), dt))
+            Ok((Box::new(cd), dt))
         }
         Scheme::Alpha(p) => {
             let dt = match step {
@@ -404,7 +372,7 @@ fn build_engine(
                 ),
             }
             .map_err(usage)?;
-            Ok((Engine::Implicit(Box::new(it)), dt))
+            Ok((Box::new(it), dt))
         }
     }
 }
@@ -547,6 +515,7 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
     {
         return Err(mismatch(path, found, &scheme.label));
     }
+    let implicit = matches!(scheme.scheme, Scheme::Alpha(_));
     let (mut engine, dt) = build_engine(&scheme, &mut model, &mut state, ledger, step)?;
     let description = checkpoint_scheme(&scheme.label, dt);
     if let Some((path, found)) = &expected_scheme
@@ -599,9 +568,12 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
         }
         let last_short = remaining < dt * (1.0 - 1e-9);
         let h = if last_short { remaining } else { dt };
-        if let Err(e) = engine.step(&mut model, &mut state, h) {
-            failure = Some(e);
-            break;
+        match engine.step(&mut model, &mut state, h) {
+            Ok(report) => iterations += report.iterations as usize,
+            Err(e) => {
+                failure = Some(e);
+                break;
+            }
         }
         if last_short {
             state.t = t_end;
@@ -610,7 +582,6 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
             state.t = grid(state.step);
         }
         steps += 1;
-        iterations += engine.iterations();
         max_balance = max_balance.max(engine.energy().relative_balance_error());
         if state.step.is_multiple_of(rec.every) {
             rec.push(&state, engine.energy());
@@ -652,7 +623,7 @@ pub fn run(args: &RunArgs) -> Result<bool, Failure> {
             state.t,
             wall.elapsed().as_secs_f64()
         );
-        if let Engine::Implicit(_) = engine {
+        if implicit {
             summary.push_str(&format!(", {iterations} Newton iterations"));
         }
         eprintln!("{summary}");

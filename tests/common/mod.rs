@@ -231,9 +231,13 @@ impl stepgauge::model::Model for BareSpring {
         out[0] = self.load;
         Ok(())
     }
-    fn tangent_pattern(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-        Some(&self.pattern)
+}
+
+impl stepgauge::model::Tangent for BareSpring {
+    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
+        &self.pattern
     }
+
     fn tangent_stiffness(
         &mut self,
         _t: f64,

@@ -81,6 +81,21 @@ pub enum Error {
         /// The entry's column.
         col: usize,
     },
+    /// A model's [`Hints`](crate::model::Hints) disagree with its forces
+    /// ([`check_hints`](crate::model::check_hints)).
+    #[error(
+        "the model's hint `{hint}` disagrees with its forces{}: {detail}; correct the hint \
+         (Model::hints) or the force routine",
+        dof.map_or(String::new(), |d| format!(" at DOF {d}"))
+    )]
+    HintMismatch {
+        /// The hint (`Linearity::Stiffness`, `Linearity::Linear`, `unloaded`).
+        hint: &'static str,
+        /// The first DOF (0-based) where it fails, when the failure is at one.
+        dof: Option<usize>,
+        /// What was found.
+        detail: String,
+    },
     /// The same DOF is constrained twice.
     #[error("DOF {dof} is constrained twice; give each DOF at most one constraint")]
     DuplicateConstraint {

@@ -26,19 +26,18 @@ pub struct StepReport {
     pub iterations: u32,
 }
 
-/// A time-stepping scheme, driven by [`run`].
-pub trait Integrator {
+/// A time-stepping scheme for models of type `M`, driven by [`run`].
+///
+/// Object-safe: `dyn Integrator<M>` holds any scheme for the same model type, so that a program
+/// can choose the scheme at run time. The explicit scheme steps any [`Model`]; the implicit one
+/// needs the model's [`Tangent`](crate::model::Tangent), a requirement checked at compile time.
+pub trait Integrator<M: Model + ?Sized> {
     /// Advances `state` by one step of size `dt`; on error the state is that of the last accepted
     /// step.
     ///
     /// # Errors
     /// The scheme's step errors.
-    fn step<M: Model + ?Sized>(
-        &mut self,
-        model: &mut M,
-        state: &mut State,
-        dt: f64,
-    ) -> Result<StepReport>;
+    fn step(&mut self, model: &mut M, state: &mut State, dt: f64) -> Result<StepReport>;
 
     /// The energy ledger after the last accepted step.
     fn energy(&self) -> &EnergyLedger;
@@ -51,11 +50,7 @@ pub trait Integrator {
     ///
     /// # Errors
     /// The estimator's errors.
-    fn reestimate_stable_step<M: Model + ?Sized>(
-        &mut self,
-        model: &mut M,
-        state: &State,
-    ) -> Result<Option<f64>>;
+    fn reestimate_stable_step(&mut self, model: &mut M, state: &State) -> Result<Option<f64>>;
 }
 
 /// How the step size is chosen.
@@ -329,7 +324,7 @@ pub fn run<I, M, P>(
     mut progress: P,
 ) -> Result<RunOutcome>
 where
-    I: Integrator + ?Sized,
+    I: Integrator<M> + ?Sized,
     M: Model + ?Sized,
     P: FnMut(&Progress) -> Flow,
 {

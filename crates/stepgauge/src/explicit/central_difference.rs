@@ -70,10 +70,10 @@ pub struct CentralDifference {
     v_force: Vec<f64>,
     v_next: Vec<f64>,
     a_next: Vec<f64>,
-    /// Internal force; empty while the model gives its [`Model::linear_stiffness`] (the end-of-step
+    /// Internal force; empty while the model gives its [`Linearity::Stiffness`](crate::model::Linearity::Stiffness) (the end-of-step
     /// loop then forms `K u` row by row).
     f_int: Vec<f64>,
-    /// External force; empty while the model [`is unloaded`](Model::is_unloaded).
+    /// External force; empty while the model is unloaded ([`Hints::unloaded`](crate::model::Hints::unloaded)).
     f_ext: Vec<f64>,
     /// Damping force (`K v` for Rayleigh damping); empty without damping.
     f_damp: Vec<f64>,
@@ -81,7 +81,8 @@ pub struct CentralDifference {
     partials: Vec<EndSums>,
     partials3: Vec<[f64; 3]>,
     /// The reactions' power now and in flight, per chunk (nonzero only in chunks with
-    /// constrained DOFs).
+    /// constrained DOFs); empty when no process has a constrained DOF (decided once, through the
+    /// reducer, so that every process makes the same reductions).
     partials2: Vec<[f64; 2]>,
     partials1: Vec<[f64; 1]>,
     reactions: Vec<f64>,
@@ -168,7 +169,7 @@ impl CentralDifference {
             a: std::mem::take(&mut cd.a_next),
         };
         if let StableLimit::Estimate = cd.options.stable_limit {
-            cd.reestimate_stable_step(model, &s)?;
+            cd.update_stable_step(model, &s)?;
         }
         // Accept: the caller's vectors become the integrator's work buffers.
         std::mem::swap(state, &mut s);
@@ -221,7 +222,7 @@ impl CentralDifference {
         cd.ledger = ledger;
         cd.trial = cd.ledger.clone();
         if let StableLimit::Estimate = cd.options.stable_limit {
-            cd.reestimate_stable_step(model, state)?;
+            cd.update_stable_step(model, state)?;
         }
         Ok(cd)
     }
@@ -233,6 +234,9 @@ impl CentralDifference {
         options: CentralDifferenceOptions,
     ) -> Result<Self> {
         let setup = setup(model, state)?;
+        if cfg!(debug_assertions) {
+            crate::model::check_hints(model, state.t)?;
+        }
         let n = setup.n;
         if let StableLimit::Given(dt) = options.stable_limit
             && !(dt.is_finite() && dt > 0.0)
@@ -269,6 +273,8 @@ impl CentralDifference {
         } = setup;
         let k = names.len();
         let ledger = EnergyLedger::new(names, constraints.len());
+        let local = if constraints.is_empty() { 0.0 } else { 1.0 };
+        let any_constraints = options.execution.reduce.max(local) > 0.0;
         let chunks = chunk_count(n);
         let dt_stable = match options.stable_limit {
             StableLimit::Given(dt) => Some(dt),
@@ -297,7 +303,7 @@ impl CentralDifference {
             } else {
                 vec![0.0; n]
             },
-            f_ext: if model.is_unloaded() {
+            f_ext: if model.hints().unloaded {
                 Vec::new()
             } else {
                 vec![0.0; n]
@@ -310,7 +316,11 @@ impl CentralDifference {
             f_extra: (0..k).map(|_| vec![0.0; n]).collect(),
             partials: vec![[0.0; 10]; chunks],
             partials3: vec![[0.0; 3]; chunks],
-            partials2: vec![[0.0; 2]; chunks],
+            partials2: if any_constraints {
+                vec![[0.0; 2]; chunks]
+            } else {
+                Vec::new()
+            },
             partials1: vec![[0.0; 1]; chunks],
             trial: ledger.clone(),
             ledger,
@@ -378,7 +388,9 @@ impl CentralDifference {
     ///
     /// # Errors
     /// The estimator's errors.
-    pub fn reestimate_stable_step<M: Model + ?Sized>(
+    ///
+    /// (Named apart from [`Integrator::reestimate_stable_step`], which returns the limit only.)
+    pub fn update_stable_step<M: Model + ?Sized>(
         &mut self,
         model: &mut M,
         state: &State,
@@ -561,7 +573,7 @@ impl CentralDifference {
         let n = self.n;
         let err = model_err(step, t);
         let fused = fused_stiffness(model, n).is_some();
-        let loaded = !model.is_unloaded();
+        let loaded = !model.hints().unloaded;
         // Buffers left out at creation for a model that did not need them (allocated once, on
         // the first step that does).
         if !fused && self.f_int.len() != n {
@@ -695,8 +707,11 @@ impl CentralDifference {
         }
 
         let sums = sum_partials(&self.options.execution, &self.partials);
-        let [constraint_power, constraint_flight] =
-            sum_partials(&self.options.execution, &self.partials2);
+        let [constraint_power, constraint_flight] = if self.partials2.is_empty() {
+            [0.0; 2]
+        } else {
+            sum_partials(&self.options.execution, &self.partials2)
+        };
 
         let l = &mut self.trial;
         l.copy_from(&self.ledger);
@@ -791,13 +806,8 @@ impl CentralDifference {
     }
 }
 
-impl Integrator for CentralDifference {
-    fn step<M: Model + ?Sized>(
-        &mut self,
-        model: &mut M,
-        state: &mut State,
-        dt: f64,
-    ) -> Result<StepReport> {
+impl<M: Model + ?Sized> Integrator<M> for CentralDifference {
+    fn step(&mut self, model: &mut M, state: &mut State, dt: f64) -> Result<StepReport> {
         CentralDifference::step(self, model, state, dt)
     }
 
@@ -809,12 +819,7 @@ impl Integrator for CentralDifference {
         CentralDifference::stable_limit(self)
     }
 
-    fn reestimate_stable_step<M: Model + ?Sized>(
-        &mut self,
-        model: &mut M,
-        state: &State,
-    ) -> Result<Option<f64>> {
-        CentralDifference::reestimate_stable_step(self, model, state)
-            .map(|s| Some(s.dt_limit_damped))
+    fn reestimate_stable_step(&mut self, model: &mut M, state: &State) -> Result<Option<f64>> {
+        CentralDifference::update_stable_step(self, model, state).map(|s| Some(s.dt_limit_damped))
     }
 }

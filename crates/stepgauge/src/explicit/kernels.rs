@@ -10,11 +10,10 @@ use crate::model::Model;
 /// `[vh.f_int, vh.f_ext, vh.f_d, v.f_int, v.f_ext, v.f_d, a.f_int, a.f_ext, a.f_d, m v^2]`.
 pub(super) type EndSums = [f64; 10];
 
-/// The model's [`Model::linear_stiffness`], when it gives one of the right size.
+/// The model's stiffness from [`Model::hints`] ([`Linearity::Stiffness`](crate::model::Linearity::Stiffness)),
+/// when it gives one of the right size.
 pub(super) fn fused_stiffness<M: Model + ?Sized>(model: &M, n: usize) -> Option<&CsrMatrix> {
-    model
-        .linear_stiffness()
-        .filter(|k| k.nrows() == n && k.ncols() == n)
+    model.hints().stiffness_of_size(n)
 }
 
 /// The inputs of the end-of-step loop (loop B): per DOF

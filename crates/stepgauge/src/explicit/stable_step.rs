@@ -416,8 +416,8 @@ pub fn estimate<M: Model + ?Sized>(
     // For a linear model, Gershgorin's bound on the assembled stiffness is a guaranteed upper
     // bound `g` on lambda_max; once the Lanczos Ritz value (a lower bound) is within
     // GERSHGORIN_MATCH of it, `g` itself is taken.
-    let upper = if options.accept_gershgorin && model.is_linear() {
-        gershgorin_lambda(model, state, &mass, &mask, execution)
+    let upper = if options.accept_gershgorin && model.hints().linearity.is_linear() {
+        gershgorin_lambda(model, &mass, &mask, execution)
     } else {
         None
     };
@@ -534,22 +534,19 @@ pub fn estimate<M: Model + ?Sized>(
 }
 
 /// Gershgorin's upper bound on `lambda_max(M^-1 K)` over the free DOFs for a linear model that
-/// hands over its stiffness matrix (`None` when it does not, or cannot evaluate it).
+/// hands over its stiffness matrix ([`Linearity::Stiffness`](crate::model::Linearity::Stiffness)
+/// in its hints; `None` otherwise).
 fn gershgorin_lambda<M: Model + ?Sized>(
-    model: &mut M,
-    state: &State,
+    model: &M,
     mass: &[f64],
     mask: &[bool],
     execution: &Execution,
 ) -> Option<f64> {
-    let mut k = model.tangent_pattern()?.clone();
-    model
-        .tangent_stiffness(state.t, &state.u, &state.v, &mut k)
-        .ok()?;
+    let k = model.hints().stiffness_of_size(mass.len())?;
     // The largest row bound of this process's rows, then over all processes.
     let omega = execution
         .reduce
-        .max(omega_max_gershgorin(&k, mass, Some(mask)).ok()?);
+        .max(omega_max_gershgorin(k, mass, Some(mask)).ok()?);
     // omega^2 may round below the bound it came from by an ulp or two: step it up.
     let g = omega * omega * (1.0 + 4.0 * f64::EPSILON);
     (g.is_finite() && g > 0.0).then_some(g)

@@ -22,7 +22,7 @@ use super::options::ImplicitOptions;
 use crate::energy::EnergyLedger;
 use crate::error::{Error, ModelError, Result};
 use crate::linalg::{CsrMatrix, Execution, LinearSolver, Parallelism, chunk_count};
-use crate::model::{Damping, Model, Motion};
+use crate::model::{Damping, Motion, Tangent};
 use crate::params::AlphaParams;
 use crate::run::{Integrator, StepReport};
 use crate::setup::{Setup, constrained_start, model_err, setup};
@@ -54,10 +54,13 @@ enum Attempt {
 /// J = (1 - alpha_m)/(beta dt^2) M + (1 - alpha_f) (gamma/(beta dt) C + K_t),
 /// ```
 ///
-/// from the predictor `u_{n+1} = u_n + dt v_n + dt^2/2 a_n`. For a linear model
-/// ([`Model::is_linear`]) one solve per step is exact and `J` is factored once per step size (a
-/// new step size refactors numerically and reuses the symbolic analysis). The tangents of extra
-/// forces, and of a damping force without [`Model::damping_matrix`], are left out of `J`.
+/// from the predictor `u_{n+1} = u_n + dt v_n + dt^2/2 a_n`, with the tangent `K_t` from the
+/// model's [`Tangent`] (a requirement checked at compile time). For a linear model
+/// ([`Model::hints`](crate::model::Model::hints), [`Linearity`](crate::model::Linearity)) one
+/// solve per step is exact and `J` is factored once per step size (a new step size refactors
+/// numerically and reuses the symbolic analysis). The tangents of extra forces, and of a damping
+/// force without [`Model::damping_matrix`](crate::model::Model::damping_matrix), are left out of
+/// `J`.
 ///
 /// **Start.** `M a_0 = f_ext(t_0) - C v_0 - f_int(t_0, u_0, v_0) - sum f_k`, solved with the consistent
 /// or lumped mass.
@@ -174,10 +177,10 @@ impl AlphaIntegrator {
     /// # Errors
     /// [`Error::InvalidParameter`] for parameters or options outside their range,
     /// [`Error::EmptyModel`], [`Error::DimensionMismatch`], [`Error::NonFiniteInput`],
-    /// [`Error::NonPositiveMass`], constraint errors, [`Error::Model`] (also when the model has no
-    /// [`tangent_pattern`](Model::tangent_pattern)), and the solver's errors. On error `state` is
-    /// unchanged.
-    pub fn new<M: Model + ?Sized>(
+    /// [`Error::NonPositiveMass`], constraint errors, [`Error::Model`], [`Error::HintMismatch`]
+    /// (debug builds: see [`check_hints`](crate::model::check_hints)), and the solver's errors.
+    /// On error `state` is unchanged.
+    pub fn new<M: Tangent + ?Sized>(
         model: &mut M,
         state: &mut State,
         params: AlphaParams,
@@ -269,7 +272,7 @@ impl AlphaIntegrator {
     /// # Errors
     /// As for [`AlphaIntegrator::new`], and [`Error::DimensionMismatch`] when the ledger does not
     /// match the model's extra forces or constraints.
-    pub fn resume<M: Model + ?Sized>(
+    pub fn resume<M: Tangent + ?Sized>(
         model: &mut M,
         state: &State,
         ledger: EnergyLedger,
@@ -304,7 +307,7 @@ impl AlphaIntegrator {
         Ok(it)
     }
 
-    fn prepare<M: Model + ?Sized>(
+    fn prepare<M: Tangent + ?Sized>(
         model: &mut M,
         state: &State,
         params: AlphaParams,
@@ -321,6 +324,9 @@ impl AlphaIntegrator {
             damping,
             extra_names: names,
         } = setup(model, state)?;
+        if cfg!(debug_assertions) {
+            crate::model::check_hints(model, state.t)?;
+        }
         let mass = match model.mass_matrix() {
             Some(m) => {
                 check_len("mass matrix rows", n, m.nrows())?;
@@ -334,11 +340,7 @@ impl AlphaIntegrator {
                 Mass::Lumped(m)
             }
         };
-        let k_t = model.tangent_pattern().cloned().ok_or(Error::Model {
-            step: state.step,
-            t: state.t,
-            source: ModelError::NotProvided("tangent_pattern"),
-        })?;
+        let k_t = model.tangent_pattern().clone();
         check_len("tangent rows", n, k_t.nrows())?;
         check_len("tangent columns", n, k_t.ncols())?;
         let c_matrix = match damping {
@@ -373,7 +375,7 @@ impl AlphaIntegrator {
             Damping::None | Damping::Rayleigh { .. } => true,
             Damping::Force => c_matrix.is_some(),
         };
-        let linear = model.is_linear() && k == 0 && damping_in_matrix;
+        let linear = model.hints().linearity.is_linear() && k == 0 && damping_in_matrix;
         // The streamlined linear path needs no constraints (the general path handles them).
         let fast_linear = linear && !options.refine_linear && nc == 0;
         let chunks = crate::linalg::chunk_count(n);
@@ -461,7 +463,12 @@ impl AlphaIntegrator {
     }
 
     /// Evaluates external, internal, damping and extra forces at `state` into the `*0` buffers.
-    fn forces_at<M: Model + ?Sized>(&mut self, model: &mut M, s: &State, step: u64) -> Result<()> {
+    fn forces_at<M: Tangent + ?Sized>(
+        &mut self,
+        model: &mut M,
+        s: &State,
+        step: u64,
+    ) -> Result<()> {
         let err = model_err(step, s.t);
         model.external_force(s.t, &mut self.f_ext0).map_err(&err)?;
         model
@@ -521,7 +528,7 @@ impl AlphaIntegrator {
     /// rounding of the state's time (`t + dt == t`), [`Error::NewtonNotConverged`],
     /// [`Error::NewtonDiverged`], [`Error::Unstable`], and model or solver errors that persist at
     /// the smallest sub-step. The state is then the last converged one.
-    pub fn step<M: Model + ?Sized>(
+    pub fn step<M: Tangent + ?Sized>(
         &mut self,
         model: &mut M,
         state: &mut State,
@@ -644,7 +651,12 @@ impl AlphaIntegrator {
     }
 
     /// One attempt at a sub-step of size `h` from `state`; accepts it on convergence.
-    fn substep<M: Model + ?Sized>(&mut self, model: &mut M, state: &mut State, h: f64) -> Attempt {
+    fn substep<M: Tangent + ?Sized>(
+        &mut self,
+        model: &mut M,
+        state: &mut State,
+        h: f64,
+    ) -> Attempt {
         match self.try_substep(model, state, h) {
             Ok(iters) => Attempt::Converged(iters),
             Err(e) => Attempt::Failed(e),
@@ -684,7 +696,7 @@ pub(super) fn sum_dot(execution: &Execution, scratch: &mut [f64], x: &[f64], y: 
 
 /// The damping force `C v` of the model into `out` (`tmp` is scratch).
 #[allow(clippy::too_many_arguments)]
-fn damping_force<M: Model + ?Sized>(
+fn damping_force<M: Tangent + ?Sized>(
     model: &mut M,
     damping: Damping,
     mass: &Mass,
@@ -716,13 +728,8 @@ fn damping_force<M: Model + ?Sized>(
     }
 }
 
-impl Integrator for AlphaIntegrator {
-    fn step<M: Model + ?Sized>(
-        &mut self,
-        model: &mut M,
-        state: &mut State,
-        dt: f64,
-    ) -> Result<StepReport> {
+impl<M: Tangent + ?Sized> Integrator<M> for AlphaIntegrator {
+    fn step(&mut self, model: &mut M, state: &mut State, dt: f64) -> Result<StepReport> {
         AlphaIntegrator::step(self, model, state, dt)
     }
 
@@ -734,11 +741,7 @@ impl Integrator for AlphaIntegrator {
         None
     }
 
-    fn reestimate_stable_step<M: Model + ?Sized>(
-        &mut self,
-        _model: &mut M,
-        _state: &State,
-    ) -> Result<Option<f64>> {
+    fn reestimate_stable_step(&mut self, _model: &mut M, _state: &State) -> Result<Option<f64>> {
         Ok(None)
     }
 }

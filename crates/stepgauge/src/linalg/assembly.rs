@@ -19,9 +19,9 @@
 //! # }
 //! ```
 
-use crate::error::{Error, ModelError, Result};
+use crate::error::{Error, Result};
 use crate::linalg::CsrMatrix;
-use crate::model::Model;
+use crate::model::Tangent;
 use crate::setup::model_err;
 use crate::validate::check_len;
 
@@ -265,8 +265,8 @@ pub struct TangentCheck {
     pub outside_pattern: Option<(usize, usize, f64)>,
 }
 
-/// Checks a model's [`tangent_stiffness`](Model::tangent_stiffness) at `(t, u, v)` against
-/// central differences of its [`internal_force`](Model::internal_force) with step `h` (in the
+/// Checks a model's [`tangent_stiffness`](Tangent::tangent_stiffness) at `(t, u, v)` against
+/// central differences of its [`internal_force`](crate::model::Model::internal_force) with step `h` (in the
 /// units of `u`; about `cbrt(eps) = 6e-6` times the displacement scale balances truncation and
 /// rounding). Costs `2 n` force evaluations: a tool for development and tests, not for a run.
 ///
@@ -275,9 +275,8 @@ pub struct TangentCheck {
 ///
 /// # Errors
 /// [`Error::InvalidParameter`] for `h` not positive and finite; [`Error::DimensionMismatch`] for
-/// `u` or `v` of the wrong length; [`Error::Model`] when the model has no tangent
-/// ([`ModelError::NotProvided`]) or fails.
-pub fn check_tangent<M: Model + ?Sized>(
+/// `u` or `v` of the wrong length; [`Error::Model`] when the model fails.
+pub fn check_tangent<M: Tangent + ?Sized>(
     model: &mut M,
     t: f64,
     u: &[f64],
@@ -295,10 +294,7 @@ pub fn check_tangent<M: Model + ?Sized>(
     check_len("displacement", n, u.len())?;
     check_len("velocity", n, v.len())?;
     let model_err = model_err(0, t);
-    let mut k = model
-        .tangent_pattern()
-        .ok_or_else(|| model_err(ModelError::NotProvided("tangent_pattern")))?
-        .clone();
+    let mut k = model.tangent_pattern().clone();
     model
         .tangent_stiffness(t, u, v, &mut k)
         .map_err(&model_err)?;
@@ -354,7 +350,8 @@ pub fn check_tangent<M: Model + ?Sized>(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::model::Model;
+    use crate::ModelError;
+    use crate::model::{Model, Tangent};
 
     /// Two DOFs joined by a cubic spring `f = k (d + d^3)`, `d = u1 - u0`, both tied to ground by
     /// linear springs; the tangent follows from the force by hand (`k (1 + 3 d^2)` on the
@@ -384,9 +381,13 @@ mod tests {
             out[1] = 5.0 * u[1] + f;
             Ok(())
         }
-        fn tangent_pattern(&self) -> Option<&CsrMatrix> {
-            Some(&self.pattern)
+    }
+
+    impl Tangent for Cubic {
+        fn tangent_pattern(&self) -> &CsrMatrix {
+            &self.pattern
         }
+
         fn tangent_stiffness(
             &mut self,
             _t: f64,

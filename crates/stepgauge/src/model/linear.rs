@@ -6,7 +6,7 @@ use std::sync::Arc;
 use sprs::CsMat;
 
 use super::constraints::{locate, validate_times};
-use super::{Constraints, Damping, Model, TimeFunction};
+use super::{Constraints, Damping, Hints, Model, Tangent, TimeFunction};
 use crate::error::{Error, ModelError, Result};
 use crate::linalg::{CsrMatrix, Parallelism};
 
@@ -385,8 +385,37 @@ impl Model for LinearModel {
         Some(&self.mass)
     }
 
-    fn tangent_pattern(&self) -> Option<&CsrMatrix> {
-        Some(&self.stiffness)
+    fn damping_matrix(&self) -> Option<&CsrMatrix> {
+        match &self.damping {
+            LinearDamping::Matrix(c) => Some(c),
+            _ => None,
+        }
+    }
+
+    /// Linear with the stiffness matrix ([`internal_force`](Model::internal_force) is its
+    /// product with `u`); unloaded without a load ([`Load::None`]).
+    fn hints(&self) -> Hints<'_> {
+        let h = Hints::default().stiffness(&self.stiffness);
+        if matches!(self.load, Load::None) {
+            h.unloaded()
+        } else {
+            h
+        }
+    }
+
+    /// `u^T K u / 2`; `None` for a `u` of the wrong length.
+    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
+        if u.len() != self.dofs() {
+            return None;
+        }
+        // Bit for bit `0.5 * dot(u, K u)`, without a vector for `K u`.
+        Some(0.5 * self.stiffness.quadratic_form(u, self.parallel))
+    }
+}
+
+impl Tangent for LinearModel {
+    fn tangent_pattern(&self) -> &CsrMatrix {
+        &self.stiffness
     }
 
     fn tangent_stiffness(
@@ -406,36 +435,6 @@ impl Model for LinearModel {
         }
         out.data_mut().copy_from_slice(self.stiffness.data());
         Ok(())
-    }
-
-    fn damping_matrix(&self) -> Option<&CsrMatrix> {
-        match &self.damping {
-            LinearDamping::Matrix(c) => Some(c),
-            _ => None,
-        }
-    }
-
-    fn is_linear(&self) -> bool {
-        true
-    }
-
-    /// The stiffness matrix: [`internal_force`](Model::internal_force) is its product with `u`.
-    fn linear_stiffness(&self) -> Option<&CsrMatrix> {
-        Some(&self.stiffness)
-    }
-
-    /// True without a load ([`Load::None`]).
-    fn is_unloaded(&self) -> bool {
-        matches!(self.load, Load::None)
-    }
-
-    /// `u^T K u / 2`; `None` for a `u` of the wrong length.
-    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
-        if u.len() != self.dofs() {
-            return None;
-        }
-        // Bit for bit `0.5 * dot(u, K u)`, without a vector for `K u`.
-        Some(0.5 * self.stiffness.quadratic_form(u, self.parallel))
     }
 }
 

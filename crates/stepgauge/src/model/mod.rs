@@ -23,9 +23,11 @@
 //! once for every accepted step.
 
 mod constraints;
+mod hints;
 mod linear;
 
 pub use constraints::{Constraint, Constraints, Motion, TimeFunction};
+pub use hints::{Hints, Linearity, check_hints};
 pub use linear::{LinearModel, Load, LoadFn, LoadTable};
 
 use crate::error::ModelError;
@@ -131,7 +133,8 @@ pub(crate) fn check_buffers(n: usize, buffers: &[(&'static str, usize)]) -> Resu
 ///
 /// Only [`dofs`](Model::dofs), [`lumped_mass`](Model::lumped_mass) and
 /// [`internal_force`](Model::internal_force) are required; everything else has a default
-/// (no external force, no damping, no constraints, no extra forces).
+/// (no external force, no damping, no constraints, no extra forces, no hints). The tangent
+/// stiffness, which the implicit integrator needs, is its own trait, [`Tangent`].
 ///
 /// All `out` buffers have length [`dofs`](Model::dofs) and must be *overwritten* (not added to).
 pub trait Model {
@@ -262,16 +265,43 @@ pub trait Model {
         None
     }
 
-    /// A matrix whose stored entries are the fixed sparsity pattern of the tangent stiffness
-    /// (values ignored). Implicit schemes need it, with
-    /// [`tangent_stiffness`](Model::tangent_stiffness). Default: `None`.
-    fn tangent_pattern(&self) -> Option<&CsrMatrix> {
+    /// The damping matrix `C` of a [`Damping::Force`] model whose damping force is `C v` with a
+    /// constant `C`; implicit schemes put it in the iteration matrix. Default: `None` (a damping
+    /// force without a matrix enters the residual only, and Newton's convergence becomes linear).
+    fn damping_matrix(&self) -> Option<&CsrMatrix> {
         None
     }
 
-    /// The tangent stiffness `d f_int / d u` at `(t, u, v)`, written into the values of `out`, whose
-    /// pattern is [`tangent_pattern`](Model::tangent_pattern). Default:
-    /// [`ModelError::NotProvided`].
+    /// Facts about the forces that let the integrators leave out work: whether the internal
+    /// force is linear (and its matrix), whether the model is unloaded. Declared once, checked
+    /// against the forces by [`check_hints`] when an integrator is created in a debug build.
+    /// Default: no claims ([`Hints::default`]).
+    fn hints(&self) -> Hints<'_> {
+        Hints::default()
+    }
+
+    /// Called once for every accepted step, with the time reached: make trial history variables
+    /// permanent. Default: nothing.
+    fn accept_step(&mut self, t: f64) {
+        let _ = t;
+    }
+}
+
+/// The tangent stiffness on a fixed pattern: the capability the implicit integrator
+/// ([`AlphaIntegrator`](crate::implicit::AlphaIntegrator)) requires at compile time, for linear
+/// and nonlinear models alike ([`LinearModel`] has it).
+///
+/// The pattern is fixed for the run; [`check_tangent`](crate::linalg::check_tangent) compares
+/// the values with central differences of the internal force, and
+/// [`CsrMatrix::pattern_from_elements`] with an [`ElementScatter`](crate::linalg::ElementScatter)
+/// builds and fills it from element DOF lists.
+pub trait Tangent: Model {
+    /// A matrix whose stored entries are the fixed sparsity pattern of the tangent stiffness
+    /// (values ignored).
+    fn tangent_pattern(&self) -> &CsrMatrix;
+
+    /// The tangent stiffness `d f_int / d u` at `(t, u, v)`, written into the values of `out`,
+    /// whose pattern is [`tangent_pattern`](Tangent::tangent_pattern).
     ///
     /// # Errors
     /// Whatever the model cannot evaluate.
@@ -281,47 +311,7 @@ pub trait Model {
         u: &[f64],
         v: &[f64],
         out: &mut CsrMatrix,
-    ) -> Result<(), ModelError> {
-        let _ = (t, u, v, out);
-        Err(ModelError::NotProvided("tangent_stiffness"))
-    }
-
-    /// The damping matrix `C` of a [`Damping::Force`] model whose damping force is `C v` with a
-    /// constant `C`; implicit schemes put it in the iteration matrix. Default: `None` (a damping
-    /// force without a matrix enters the residual only, and Newton's convergence becomes linear).
-    fn damping_matrix(&self) -> Option<&CsrMatrix> {
-        None
-    }
-
-    /// True when the internal force is `K u` with a constant `K` and no velocity dependence, and
-    /// there are no extra forces: implicit schemes then solve each step once, with a matrix
-    /// factored once per step size. Default: `false`.
-    fn is_linear(&self) -> bool {
-        false
-    }
-
-    /// The constant stiffness matrix `K` when [`internal_force`](Model::internal_force) is exactly
-    /// `K u`, summed row by row in stored order as [`spmv`](crate::linalg::spmv) does, for every
-    /// `t` and `v`. The explicit scheme then forms `K u` itself, row by row inside its update loop
-    /// (one pass over the vectors instead of two), and does not call `internal_force`; the
-    /// results are bit for bit those of `internal_force`. Default: `None`.
-    fn linear_stiffness(&self) -> Option<&CsrMatrix> {
-        None
-    }
-
-    /// True when [`external_force`](Model::external_force) is zero at every time. The explicit
-    /// scheme then neither calls it nor reads an external-force vector in its update loop.
-    /// Default: `false` (a model that leaves `external_force` at its zero default may return
-    /// `true`).
-    fn is_unloaded(&self) -> bool {
-        false
-    }
-
-    /// Called once for every accepted step, with the time reached: make trial history variables
-    /// permanent. Default: nothing.
-    fn accept_step(&mut self, t: f64) {
-        let _ = t;
-    }
+    ) -> Result<(), ModelError>;
 }
 
 #[cfg(test)]

@@ -2,7 +2,7 @@
 
 use super::{ReferenceProblem, finite, positive, sparse};
 use crate::error::{Error, Result};
-use crate::model::{Constraints, LinearModel, Model, TimeFunction};
+use crate::model::{Constraints, LinearModel, Tangent, TimeFunction};
 use crate::state::State;
 
 /// A uniform elastic bar (unit cross-section) of `elements` two-node elements with row-sum lumped
@@ -188,7 +188,7 @@ impl ReferenceProblem for BarImpact {
         positive("density", self.density)?;
         finite("v0", self.v0)
     }
-    fn model(&self) -> Result<Box<dyn Model + Send>> {
+    fn model(&self) -> Result<Box<dyn Tangent + Send>> {
         self.validate()?;
         let ne = self.elements;
         let n = ne + 1;

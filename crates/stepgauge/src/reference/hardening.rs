@@ -5,7 +5,7 @@ use std::fmt;
 use super::{ReferenceProblem, finite, non_negative, positive};
 use crate::error::{ModelError, Result};
 use crate::linalg::CsrMatrix;
-use crate::model::{Damping, Model, check_buffers};
+use crate::model::{Damping, Model, Tangent, check_buffers};
 use crate::state::State;
 
 /// A hardening oscillator `m u'' + c u' + k u + k3 u^3 = f0 sin(w t)`: one DOF, a cubic spring,
@@ -145,9 +145,21 @@ impl Model for Duffing {
         out[0] = (self.k + 3.0 * self.k3 * u[0] * u[0]) * x[0];
         Ok(())
     }
-    fn tangent_pattern(&self) -> Option<&CsrMatrix> {
-        Some(&self.pattern)
+
+    /// `k u^2 / 2 + k3 u^4 / 4`; `None` for a `u` of a length other than 1.
+    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
+        let &[u] = u else {
+            return None;
+        };
+        Some(0.5 * self.k * u * u + 0.25 * self.k3 * u.powi(4))
     }
+}
+
+impl Tangent for Duffing {
+    fn tangent_pattern(&self) -> &CsrMatrix {
+        &self.pattern
+    }
+
     fn tangent_stiffness(
         &mut self,
         _t: f64,
@@ -164,13 +176,6 @@ impl Model for Duffing {
         }
         out.data_mut()[0] = self.k + 3.0 * self.k3 * u[0] * u[0];
         Ok(())
-    }
-    /// `k u^2 / 2 + k3 u^4 / 4`; `None` for a `u` of a length other than 1.
-    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
-        let &[u] = u else {
-            return None;
-        };
-        Some(0.5 * self.k * u * u + 0.25 * self.k3 * u.powi(4))
     }
 }
 
@@ -353,7 +358,7 @@ impl ReferenceProblem for Hardening {
     fn validate(&self) -> Result<()> {
         Ok(())
     }
-    fn model(&self) -> Result<Box<dyn Model + Send>> {
+    fn model(&self) -> Result<Box<dyn Tangent + Send>> {
         Ok(Box::new(self.model.clone()))
     }
     fn initial_state(&self) -> State {
@@ -470,7 +475,7 @@ mod tests {
         let mut out = [0.0];
         d.internal_force(0.0, &[0.5], &[0.0], &mut out).unwrap();
         assert_eq!(out[0], 0.5 + 5.0 * 0.125);
-        let mut kt = d.tangent_pattern().unwrap().clone();
+        let mut kt = d.tangent_pattern().clone();
         d.tangent_stiffness(0.0, &[0.5], &[0.0], &mut kt).unwrap();
         // Tangent against a central difference of the internal force.
         let (mut fp, mut fm) = ([0.0], [0.0]);

@@ -1,7 +1,7 @@
 //! Reference problems with exact (or tightly tabulated) solutions, shared by the tests, the
 //! benchmarks and the comparison of schemes.
 //!
-//! Every problem implements [`ReferenceProblem`]: it builds its [`Model`], gives the initial
+//! Every problem implements [`ReferenceProblem`]: it builds its [`Model`](crate::model::Model) (with its [`Tangent`]), gives the initial
 //! [`State`], an end time, the DOF it observes and the exact displacement and velocity of that DOF
 //! at any time. A comparison loops over [`all`]:
 //!
@@ -142,7 +142,7 @@ use std::fmt;
 use sprs::{CsMat, TriMat};
 
 use crate::error::{Error, Result};
-use crate::model::Model;
+use crate::model::Tangent;
 use crate::state::State;
 
 /// A problem with a known solution: the model, its start, and the exact motion of one DOF.
@@ -166,11 +166,12 @@ pub trait ReferenceProblem: fmt::Debug + Send + Sync {
     /// [`Error::InvalidParameter`] naming the first parameter out of range.
     fn validate(&self) -> Result<()>;
 
-    /// Builds the model (after [`validate`](ReferenceProblem::validate)).
+    /// Builds the model (after [`validate`](ReferenceProblem::validate)), with its tangent so
+    /// that the explicit and the implicit integrators can step it.
     ///
     /// # Errors
     /// [`Error::InvalidParameter`] for parameters out of range.
-    fn model(&self) -> Result<Box<dyn Model + Send>>;
+    fn model(&self) -> Result<Box<dyn Tangent + Send>>;
 
     /// The state at `t = 0`, acceleration left at zero (the integrators compute it).
     fn initial_state(&self) -> State;

@@ -5,7 +5,7 @@ use std::f64::consts::PI;
 
 use super::{ReferenceProblem, finite, positive, sparse};
 use crate::error::Result;
-use crate::model::{LinearModel, Load, Model, TimeFunction};
+use crate::model::{LinearModel, Load, Tangent, TimeFunction};
 use crate::state::State;
 
 /// Modes of a two-DOF system with diagonal mass, in increasing frequency.
@@ -133,7 +133,7 @@ impl ReferenceProblem for TwoDofStep {
     fn validate(&self) -> Result<()> {
         Ok(())
     }
-    fn model(&self) -> Result<Box<dyn Model + Send>> {
+    fn model(&self) -> Result<Box<dyn Tangent + Send>> {
         let [m1, m2] = Self::MASS;
         let k = Self::STIFFNESS;
         let model = LinearModel::new(
@@ -268,7 +268,7 @@ impl ReferenceProblem for StiffSoft {
         }
         Ok(())
     }
-    fn model(&self) -> Result<Box<dyn Model + Send>> {
+    fn model(&self) -> Result<Box<dyn Tangent + Send>> {
         self.validate()?;
         let k = self.stiffness();
         let model = LinearModel::new(

@@ -5,7 +5,7 @@ use std::f64::consts::PI;
 
 use super::{ReferenceProblem, finite, non_negative, positive, sinc, sparse};
 use crate::error::Result;
-use crate::model::{LinearModel, Load, Model, TimeFunction};
+use crate::model::{LinearModel, Load, Tangent, TimeFunction};
 use crate::state::State;
 
 /// Unit impulse response `(h(t), h'(t))` of `h'' + 2 xi omega h' + omega^2 h = 0`,
@@ -173,7 +173,7 @@ impl ReferenceProblem for SdofFree {
         finite("u0", self.u0)?;
         finite("v0", self.v0)
     }
-    fn model(&self) -> Result<Box<dyn Model + Send>> {
+    fn model(&self) -> Result<Box<dyn Tangent + Send>> {
         self.validate()?;
         Ok(Box::new(sdof_model(self.m, self.k, self.xi, None)?))
     }
@@ -282,7 +282,7 @@ impl ReferenceProblem for SdofHarmonic {
         finite("f0", self.f0)?;
         positive("w", self.w)
     }
-    fn model(&self) -> Result<Box<dyn Model + Send>> {
+    fn model(&self) -> Result<Box<dyn Tangent + Send>> {
         self.validate()?;
         let (f0, w) = (self.f0, self.w);
         let factor = TimeFunction::function(move |t| f0 * (w * t).sin());
@@ -425,7 +425,7 @@ impl ReferenceProblem for SdofHalfSine {
         finite("f0", self.f0)?;
         positive("t_d", self.t_d)
     }
-    fn model(&self) -> Result<Box<dyn Model + Send>> {
+    fn model(&self) -> Result<Box<dyn Tangent + Send>> {
         self.validate()?;
         let (f0, t_d) = (self.f0, self.t_d);
         let factor = TimeFunction::function(move |t| pulse(f0, t_d, t));

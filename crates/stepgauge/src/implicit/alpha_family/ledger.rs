@@ -4,12 +4,12 @@
 use super::{AlphaIntegrator, sum_dot};
 use crate::error::{Error, Result};
 use crate::linalg::global_sums;
-use crate::model::Model;
+use crate::model::Tangent;
 use crate::state::State;
 
 impl AlphaIntegrator {
     /// Books the converged sub-step in the ledger, checks the guards and accepts it.
-    pub(super) fn accept<M: Model + ?Sized>(
+    pub(super) fn accept<M: Tangent + ?Sized>(
         &mut self,
         model: &mut M,
         state: &mut State,
@@ -69,7 +69,7 @@ impl AlphaIntegrator {
     /// Books a converged sub-step whose works `w` (internal, external, damping, constraint: sums
     /// of `du . (f_0 + f_1)`, already complete over all processes) and kinetic energy `ke` are
     /// known, checks the growth guard and accepts it. The extra forces' works are summed here.
-    pub(super) fn book<M: Model + ?Sized>(
+    pub(super) fn book<M: Tangent + ?Sized>(
         &mut self,
         model: &mut M,
         state: &mut State,

@@ -5,7 +5,7 @@ use super::kernels::{FusedRhs, FusedUpdate, fused_sweeps, zero_if_finite};
 use super::{AlphaIntegrator, damping_force};
 use crate::error::{Error, Result};
 use crate::linalg::SparseCholesky;
-use crate::model::{Damping, Model};
+use crate::model::{Damping, Tangent};
 use crate::setup::model_err;
 use crate::state::State;
 use crate::validate::check_finite;
@@ -34,7 +34,7 @@ impl AlphaIntegrator {
     // `x - x` is 0 for a finite `x` and NaN otherwise: the sums' fourth entry detects a
     // non-finite result in the same pass.
     #[allow(clippy::eq_op)]
-    pub(super) fn linear_substep<M: Model + ?Sized>(
+    pub(super) fn linear_substep<M: Tangent + ?Sized>(
         &mut self,
         model: &mut M,
         state: &mut State,
@@ -69,9 +69,7 @@ impl AlphaIntegrator {
             && !damped
             && self.mass.diagonal().is_some()
             && [state.u.len(), state.v.len(), state.a.len()] == [n; 3]
-            && model
-                .linear_stiffness()
-                .is_some_and(|k| k.nrows() == n && k.ncols() == n);
+            && model.hints().stiffness_of_size(n).is_some();
         if fused {
             return self.linear_substep_fused(model, state, h);
         }
@@ -353,7 +351,7 @@ impl AlphaIntegrator {
     }
 
     /// The streamlined linear path of [`linear_substep`](Self::linear_substep) for a diagonal
-    /// mass, no damping and a model that gives its stiffness ([`Model::linear_stiffness`]), in
+    /// mass, no damping and a model that gives its stiffness ([`Linearity::Stiffness`](crate::model::Linearity::Stiffness)), in
     /// two passes around the solve instead of four, with the same arithmetic (bit for bit the
     /// same state, forces and ledger):
     ///
@@ -366,10 +364,10 @@ impl AlphaIntegrator {
     ///    dominated the scalar loop) and then the sums in the same order as before, reading the
     ///    chunk back from cache.
     ///
-    /// An unloaded model ([`Model::is_unloaded`]) is not asked for its external force, and its
+    /// An unloaded model ([`Hints::unloaded`](crate::model::Hints::unloaded)) is not asked for its external force, and its
     /// external-force vectors (zero) are not read.
     #[allow(clippy::eq_op)]
-    fn linear_substep_fused<M: Model + ?Sized>(
+    fn linear_substep_fused<M: Tangent + ?Sized>(
         &mut self,
         model: &mut M,
         state: &mut State,
@@ -386,7 +384,7 @@ impl AlphaIntegrator {
         let n = self.n;
         let par = self.options.execution.parallelism.parallel_for(n);
         let err = model_err(step, t1);
-        let unloaded = model.is_unloaded();
+        let unloaded = model.hints().unloaded;
         if !unloaded {
             model.external_force(t1, &mut self.f_ext1).map_err(&err)?;
         }
@@ -394,7 +392,7 @@ impl AlphaIntegrator {
             unreachable!("the fused linear path is taken for a diagonal mass only")
         };
         let (u0, v0, a0) = (&state.u[..], &state.v[..], &state.a[..]);
-        let Some(k) = model.linear_stiffness() else {
+        let Some(k) = model.hints().stiffness_of_size(n) else {
             unreachable!("the fused linear path is taken for a model with a stiffness only")
         };
         let r = FusedRhs {

@@ -5,13 +5,13 @@ use super::{AlphaIntegrator, damping_force, sum_dot};
 use crate::error::{Error, Result};
 use crate::implicit::{Criterion, NewtonVariant};
 use crate::linalg::{CHUNK, chunk_count, global_sums, sum_partials};
-use crate::model::{Damping, Model, Motion, TimeFunction};
+use crate::model::{Damping, Motion, Tangent, TimeFunction};
 use crate::setup::model_err;
 use crate::state::State;
 use crate::validate::check_finite;
 
 impl AlphaIntegrator {
-    pub(super) fn try_substep<M: Model + ?Sized>(
+    pub(super) fn try_substep<M: Tangent + ?Sized>(
         &mut self,
         model: &mut M,
         state: &mut State,
@@ -278,7 +278,7 @@ impl AlphaIntegrator {
     }
 
     /// Kinematics, forces and residual at the trial `u1`; returns `(||R||, F_ref)` on free DOFs.
-    fn evaluate<M: Model + ?Sized>(
+    fn evaluate<M: Tangent + ?Sized>(
         &mut self,
         model: &mut M,
         state: &State,

@@ -2,7 +2,7 @@
 
 use super::*;
 use crate::linalg::{Execution, SparseCholesky};
-use crate::model::{LinearModel, Load, TimeFunction};
+use crate::model::{LinearModel, Load, Model, TimeFunction};
 use sprs::{CsMat, TriMat};
 
 fn chain(n: usize, consistent: bool) -> (CsMat<f64>, CsMat<f64>) {
@@ -83,8 +83,8 @@ fn fused_linear_path_is_bit_identical() {
                         })
                         .unwrap();
                 }
-                assert_eq!(model.is_unloaded(), !loaded);
-                assert!(model.linear_stiffness().is_some());
+                assert_eq!(model.hints().unloaded, !loaded);
+                assert!(model.hints().stiffness_of_size(n).is_some());
                 let run = |fuse: bool, model: &mut LinearModel| {
                     let u0: Vec<f64> = (0..n).map(|i| (0.3 * i as f64).sin()).collect();
                     let v0: Vec<f64> = (0..n).map(|i| 0.1 * (0.7 * i as f64).cos()).collect();
