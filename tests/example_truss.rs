@@ -2,6 +2,7 @@
 //! residual force, stepped from rest with default options (explicit and implicit), and the
 //! implicit path's reports when Newton cannot converge or the model's force is not finite.
 
+mod common;
 #[path = "../examples/truss/model.rs"]
 #[allow(dead_code)]
 mod model;
@@ -9,7 +10,7 @@ mod model;
 use model::Truss;
 use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
 use stepgauge::implicit::{AlphaIntegrator, Criterion, ImplicitOptions};
-use stepgauge::linalg::{CsrMatrix, SparseCholesky};
+use stepgauge::linalg::SparseCholesky;
 use stepgauge::model::{Constraints, Model, Tangent};
 use stepgauge::params::AlphaParams;
 use stepgauge::run::{Flow, RunOptions, StepControl, run};
@@ -159,21 +160,7 @@ impl Model for NanAfter {
     }
 }
 
-impl Tangent for NanAfter {
-    fn tangent_pattern(&self) -> &CsrMatrix {
-        self.0.tangent_pattern()
-    }
-
-    fn tangent_stiffness(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut CsrMatrix,
-    ) -> Result<(), ModelError> {
-        self.0.tangent_stiffness(t, u, v, out)
-    }
-}
+forward_tangent!(NanAfter);
 
 /// A non-finite force is reported at once with its quantity and DOF, without cut-backs (they
 /// cannot make a model's NaN go away), and the state is the last good one.

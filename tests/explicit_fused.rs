@@ -9,52 +9,11 @@ use stepgauge::explicit::{
     CentralDifference, CentralDifferenceOptions, ForceVelocity, StableLimit,
 };
 use stepgauge::model::{
-    Constraints, Damping, Hints, LinearModel, Linearity, Load, Model, TimeFunction, check_hints,
+    Constraints, Hints, LinearModel, Linearity, Load, Model, TimeFunction, check_hints,
 };
 use stepgauge::{Error, ModelError, State};
 
-/// A [`LinearModel`] seen only through the general [`Model`] methods: no hints (no stiffness,
-/// not unloaded), so the integrator takes the general path.
-struct Opaque(LinearModel);
-
-impl Model for Opaque {
-    fn dofs(&self) -> usize {
-        self.0.dofs()
-    }
-    fn lumped_mass(&self, out: &mut [f64]) {
-        self.0.lumped_mass(out)
-    }
-    fn internal_force(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut [f64],
-    ) -> Result<(), ModelError> {
-        self.0.internal_force(t, u, v, out)
-    }
-    fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), ModelError> {
-        self.0.external_force(t, out)
-    }
-    fn damping(&self) -> Damping {
-        self.0.damping()
-    }
-    fn stiffness_product(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        x: &[f64],
-        out: &mut [f64],
-    ) -> Result<(), ModelError> {
-        self.0.stiffness_product(t, u, x, out)
-    }
-    fn constraints(&self) -> &Constraints {
-        self.0.constraints()
-    }
-    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
-        self.0.stored_energy(u)
-    }
-}
+use common::Opaque;
 
 fn model(n: usize, loaded: bool, damped: bool, constrained: bool) -> LinearModel {
     let masses: Vec<f64> = (0..n).map(|i| 1.0 + 0.1 * (i % 5) as f64).collect();
@@ -127,7 +86,7 @@ fn fused_path_is_bit_identical_to_the_general_path() {
                 let fused = model(n, loaded, damped, constrained);
                 assert!(matches!(fused.hints().linearity, Linearity::Stiffness(_)));
                 assert_eq!(fused.hints().unloaded, !loaded);
-                let general = Opaque(fused.clone());
+                let general = Opaque::new(fused.clone());
                 let ((s1, e1), (s2, e2)) =
                     pool.install(|| (run(fused, n, fv), run(general, n, fv)));
                 let what = format!(
@@ -204,7 +163,7 @@ fn a_stiffness_of_the_wrong_size_is_refused_or_not_used() {
     }
     let (s1, e1) = run(wrong, n, ForceVelocity::Lagged);
     let (s2, e2) = run(
-        Opaque(model(n, false, false, false)),
+        Opaque::new(model(n, false, false, false)),
         n,
         ForceVelocity::Lagged,
     );

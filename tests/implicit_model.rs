@@ -394,21 +394,7 @@ impl stepgauge::model::Model for HiddenDamping {
     }
 }
 
-impl stepgauge::model::Tangent for HiddenDamping {
-    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
-        stepgauge::model::Tangent::tangent_pattern(&self.0)
-    }
-
-    fn tangent_stiffness(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut stepgauge::linalg::CsrMatrix,
-    ) -> Result<(), stepgauge::ModelError> {
-        self.0.tangent_stiffness(t, u, v, out)
-    }
-}
+forward_tangent!(HiddenDamping);
 
 /// A damping force with and without its matrix gives the same solution and damping work: the
 /// model without the matrix is stepped with Newton iterations checked against the residual (the
@@ -550,21 +536,7 @@ impl stepgauge::model::Model for LoadFailsAfter {
     }
 }
 
-impl stepgauge::model::Tangent for LoadFailsAfter {
-    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
-        stepgauge::model::Tangent::tangent_pattern(&self.0)
-    }
-
-    fn tangent_stiffness(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut stepgauge::linalg::CsrMatrix,
-    ) -> Result<(), stepgauge::ModelError> {
-        self.0.tangent_stiffness(t, u, v, out)
-    }
-}
+forward_tangent!(LoadFailsAfter);
 
 #[test]
 fn a_failing_load_on_the_linear_path_names_its_step_and_time() {

@@ -6,7 +6,7 @@ mod common;
 
 use common::Duffing;
 use stepgauge::implicit::{AlphaIntegrator, ImplicitOptions, NewtonOptions, NewtonVariant};
-use stepgauge::model::{Model, Tangent};
+use stepgauge::model::Model;
 use stepgauge::params::AlphaParams;
 use stepgauge::{Error, ModelError, State};
 
@@ -151,21 +151,7 @@ impl Model for CubicAsExtra {
     }
 }
 
-impl Tangent for CubicAsExtra {
-    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
-        self.0.tangent_pattern()
-    }
-
-    fn tangent_stiffness(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut stepgauge::linalg::CsrMatrix,
-    ) -> Result<(), ModelError> {
-        self.0.tangent_stiffness(t, u, v, out)
-    }
-}
+forward_tangent!(CubicAsExtra);
 
 /// The cubic term as an extra force gives the oscillator's solution: against the SciPy reference
 /// (as `hardening_oscillator_matches_the_scipy_reference`, within the Richardson estimate of the
@@ -452,21 +438,7 @@ impl Model for Timed {
     }
 }
 
-impl Tangent for Timed {
-    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
-        self.0.tangent_pattern()
-    }
-
-    fn tangent_stiffness(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut stepgauge::linalg::CsrMatrix,
-    ) -> Result<(), ModelError> {
-        self.0.tangent_stiffness(t, u, v, out)
-    }
-}
+forward_tangent!(Timed);
 
 /// The sub-steps of a cut-back step partition it: every accepted sub-step ends inside the step,
 /// the times increase, the last one is the step's end (to the rounding of `t + (t_end - t)`),
@@ -543,21 +515,7 @@ impl Model for Breaks {
     }
 }
 
-impl Tangent for Breaks {
-    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
-        self.0.tangent_pattern()
-    }
-
-    fn tangent_stiffness(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut stepgauge::linalg::CsrMatrix,
-    ) -> Result<(), ModelError> {
-        self.0.tangent_stiffness(t, u, v, out)
-    }
-}
+forward_tangent!(Breaks);
 
 /// The kept state is a converged one: its acceleration satisfies the (undamped, unloaded)
 /// equation of motion `m a + f_int(u) = 0` to the Newton tolerance (1e-8 relative to the force),
@@ -603,21 +561,7 @@ impl Model for GoesNan {
     }
 }
 
-impl Tangent for GoesNan {
-    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
-        self.0.tangent_pattern()
-    }
-
-    fn tangent_stiffness(
-        &mut self,
-        t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut stepgauge::linalg::CsrMatrix,
-    ) -> Result<(), ModelError> {
-        self.0.tangent_stiffness(t, u, v, out)
-    }
-}
+forward_tangent!(GoesNan);
 
 /// A non-finite internal force is reported at once, as the model's failure at a DOF, not after
 /// the cut-backs (they cannot make a model's NaN go away; before, it cost every cut-back and the

@@ -249,3 +249,101 @@ impl stepgauge::model::Tangent for BareSpring {
         Ok(())
     }
 }
+
+/// A model seen only through the general `Model` methods (forces, damping, stiffness product,
+/// constraints, stored energy) and its `Tangent`: no hints (no stiffness, not unloaded), no
+/// mass matrix, so the integrators take their general paths. With `products` false it does not
+/// give the stiffness product either (the stable step then comes from finite differences).
+pub struct Opaque<M> {
+    pub model: M,
+    pub products: bool,
+}
+
+impl<M> Opaque<M> {
+    /// With the stiffness product.
+    pub fn new(model: M) -> Self {
+        Opaque {
+            model,
+            products: true,
+        }
+    }
+}
+
+impl<M: stepgauge::model::Model> stepgauge::model::Model for Opaque<M> {
+    fn dofs(&self) -> usize {
+        self.model.dofs()
+    }
+    fn lumped_mass(&self, out: &mut [f64]) {
+        self.model.lumped_mass(out)
+    }
+    fn internal_force(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), stepgauge::ModelError> {
+        self.model.internal_force(t, u, v, out)
+    }
+    fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), stepgauge::ModelError> {
+        self.model.external_force(t, out)
+    }
+    fn damping(&self) -> stepgauge::model::Damping {
+        self.model.damping()
+    }
+    fn stiffness_product(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        x: &[f64],
+        out: &mut [f64],
+    ) -> Result<(), stepgauge::ModelError> {
+        if self.products {
+            self.model.stiffness_product(t, u, x, out)
+        } else {
+            Err(stepgauge::ModelError::NotProvided("stiffness_product"))
+        }
+    }
+    fn constraints(&self) -> &stepgauge::model::Constraints {
+        self.model.constraints()
+    }
+    fn stored_energy(&self, u: &[f64]) -> Option<f64> {
+        self.model.stored_energy(u)
+    }
+}
+
+impl<M: stepgauge::model::Tangent> stepgauge::model::Tangent for Opaque<M> {
+    fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
+        self.model.tangent_pattern()
+    }
+    fn tangent_stiffness(
+        &mut self,
+        t: f64,
+        u: &[f64],
+        v: &[f64],
+        out: &mut stepgauge::linalg::CsrMatrix,
+    ) -> Result<(), stepgauge::ModelError> {
+        self.model.tangent_stiffness(t, u, v, out)
+    }
+}
+
+/// `impl Tangent for $wrapper` forwarding both methods to the wrapped model in field `.0`.
+#[macro_export]
+macro_rules! forward_tangent {
+    ($wrapper:ty) => {
+        impl stepgauge::model::Tangent for $wrapper {
+            fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
+                self.0.tangent_pattern()
+            }
+            fn tangent_stiffness(
+                &mut self,
+                t: f64,
+                u: &[f64],
+                v: &[f64],
+                out: &mut stepgauge::linalg::CsrMatrix,
+            ) -> Result<(), stepgauge::ModelError> {
+                self.0.tangent_stiffness(t, u, v, out)
+            }
+        }
+    };
+}
