@@ -128,7 +128,7 @@ impl Model for WithCubic {
     fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), ModelError> {
         self.inner.external_force(t, out)
     }
-    fn damping(&self) -> Damping {
+    fn damping(&self) -> Damping<'_> {
         self.inner.damping()
     }
     fn stiffness_product(

@@ -100,7 +100,7 @@ fn cantilever_matches_beam_theory() {
 }
 
 /// The coarse frame, its roof DOF and Rayleigh damping of 5 % at modes 1 and 3 (as the example).
-fn coarse_frame() -> (model::Assembled, usize, Damping) {
+fn coarse_frame() -> (model::Assembled, usize, Damping<'static>) {
     let (mesh, roof) = FrameLayout::example(2).mesh().unwrap();
     let asm = assemble(&mesh).unwrap();
     let (omegas, _) = modes(&asm.k, &asm.m).unwrap();

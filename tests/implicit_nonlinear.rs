@@ -119,7 +119,7 @@ impl Model for CubicAsExtra {
     fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), ModelError> {
         self.0.external_force(t, out)
     }
-    fn damping(&self) -> stepgauge::model::Damping {
+    fn damping(&self) -> stepgauge::model::Damping<'_> {
         self.0.damping()
     }
     fn damping_force(
@@ -130,9 +130,6 @@ impl Model for CubicAsExtra {
         out: &mut [f64],
     ) -> Result<(), ModelError> {
         self.0.damping_force(t, u, v, out)
-    }
-    fn damping_matrix(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-        self.0.damping_matrix()
     }
 
     fn extra_force_names(&self) -> Vec<String> {
@@ -418,7 +415,7 @@ impl Model for Timed {
         self.0.external_force(t, out)
     }
 
-    fn damping(&self) -> stepgauge::model::Damping {
+    fn damping(&self) -> stepgauge::model::Damping<'_> {
         self.0.damping()
     }
     fn damping_force(
@@ -429,9 +426,6 @@ impl Model for Timed {
         out: &mut [f64],
     ) -> Result<(), ModelError> {
         self.0.damping_force(t, u, v, out)
-    }
-    fn damping_matrix(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
-        self.0.damping_matrix()
     }
     fn accept_step(&mut self, t: f64) {
         self.1.push(t);

@@ -1,7 +1,7 @@
 //! A model's hints (linear, its stiffness, unloaded) are declared once and checked against its
-//! forces on pseudo-random vectors (`check_hints`; the integrators run it when created in a
-//! debug build): a wrong hint is refused with the hint and the DOF, a right one passes even when
-//! the model sums its force in another order than the matrix product. These are checks of the
+//! forces on pseudo-random vectors (`check_hints`; the integrators run it when created): a wrong
+//! hint is refused with the hint and the DOF, a right one passes even when the model sums its
+//! force in another order than the matrix product. These are checks of the
 //! hints' own definitions (common practice for such declarations), not of an outside result.
 
 mod common;
@@ -197,15 +197,27 @@ fn wrong_hints_are_refused_with_the_hint_and_the_dof() {
     let e = check_hints(&mut c, 0.0).unwrap_err();
     assert_eq!(mismatch(&e), ("unloaded", Some(17)));
     assert!(e.to_string().contains("at DOF 17"), "{e}");
+    // A load that starts at t = 1.2 (after the first samples) is still seen.
+    let mut pattern = vec![0.0; N];
+    pattern[5] = 1.0;
+    let late = LinearModel::new(
+        &common::diag(&[1.0; N]),
+        &common::chain_stiffness(N, 5.0, true, true),
+    )
+    .unwrap()
+    .with_load(Load::Pattern {
+        pattern,
+        factor: TimeFunction::function(|t| if t > 1.2 { 1.0 } else { 0.0 }),
+    })
+    .unwrap();
+    let e = check_hints(&mut Claims(late), 0.0).unwrap_err();
+    assert_eq!(mismatch(&e), ("unloaded", Some(5)));
 }
 
-/// In a debug build (the test suite's), both integrators refuse a model whose hints are wrong
-/// when they are created, before any step.
+/// Both integrators refuse a model whose hints are wrong when they are created, before any step
+/// (in every build).
 #[test]
-fn integrators_refuse_wrong_hints_in_debug_builds() {
-    if !cfg!(debug_assertions) {
-        return;
-    }
+fn integrators_refuse_wrong_hints() {
     let mut s = Springs::new(|_| Hints::default().linear());
     s.cubic = 50.0;
     let mut state = State::at_rest(N, 0.0);

@@ -128,8 +128,8 @@ fn explicit_plain_linear_steps_allocate_nothing() {
 /// model with the stable step given: six vectors (lumped mass, its inverse, and the next
 /// displacement, half-step velocity, velocity and acceleration; the force vectors are left out)
 /// plus the constraint mask of creation (a byte per DOF) and per-chunk partial sums. Creation
-/// makes no copy of the state and no scratch vector (a debug build's hint check runs first and
-/// frees its five vectors before the integrator allocates its own).
+/// makes no copy of the state and no scratch vector (the hint check runs first and frees its five
+/// vectors before the integrator allocates its own).
 fn explicit_memory_is_six_vectors() {
     let n = 300_000;
     let mut m = plain_model(n);

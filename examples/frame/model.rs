@@ -636,7 +636,7 @@ pub fn base_excited(
     match damping {
         Damping::None => Ok(model),
         Damping::Rayleigh { a0, a1 } => model.with_rayleigh(a0, a1),
-        Damping::Force => Err(Error::InvalidParameter {
+        Damping::Matrix(_) | Damping::Force => Err(Error::InvalidParameter {
             name: "damping",
             value: f64::NAN,
             expected: "Rayleigh damping or none",

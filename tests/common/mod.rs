@@ -288,7 +288,7 @@ impl<M: stepgauge::model::Model> stepgauge::model::Model for Opaque<M> {
     fn external_force(&mut self, t: f64, out: &mut [f64]) -> Result<(), stepgauge::ModelError> {
         self.model.external_force(t, out)
     }
-    fn damping(&self) -> stepgauge::model::Damping {
+    fn damping(&self) -> stepgauge::model::Damping<'_> {
         self.model.damping()
     }
     fn stiffness_product(

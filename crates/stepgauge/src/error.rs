@@ -135,7 +135,8 @@ pub enum Error {
         "time step {dt} is above the step limit {dt_stable} of the explicit scheme (from an upper \
          bound on the model's highest frequency, with its damping: the largest step stepgauge can \
          vouch for, which may lie a little below the estimated critical step); use dt <= \
-         {dt_stable} (times a safety fraction), or override the check explicitly if you know better"
+         {dt_stable} (times a safety fraction), or override the check explicitly \
+         (StableLimit::Unchecked or StableLimit::Given) if you know better"
     )]
     StepAboveStableLimit {
         /// The step asked for.
@@ -202,9 +203,11 @@ pub enum Error {
     #[error(
         "instability detected in step {step} (t = {t}): kinetic energy {kinetic} exceeds {limit} times the \
          energy put into the model ({energy_in}); the step was rejected and the last good state kept. \
-         Reduce the step below the stable limit; if it is already well below, check that the model's \
-         forces take no energy from nowhere (a sign error in a force, a stiffness that is not \
-         positive)"
+         Reduce the step below the stable limit; a model that stiffens as it deforms needs the limit \
+         re-estimated as it goes (StepControl::Auto with reestimate_every, or \
+         CentralDifference::update_stable_step), since an estimate made at the start may no longer \
+         hold; if the step is well below the current limit, check that the model's forces take no \
+         energy from nowhere (a sign error in a force, a stiffness that is not positive)"
     )]
     Unstable {
         /// The step being attempted.
@@ -588,13 +591,11 @@ pub(crate) fn format_history(history: &[f64]) -> String {
 /// The advice for a non-finite quantity: a force comes from the model, whose routine is then the
 /// cause; a displacement, velocity or acceleration that blows up points to the step.
 fn non_finite_advice(quantity: &str) -> &'static str {
-    let from_model = [
-        "internal force",
-        "external force",
-        "damping force",
-        "extra force",
-    ];
-    if from_model.contains(&quantity) {
+    let from_model = ["internal force", "damping force", "extra force"];
+    if quantity == "external force" {
+        "The model's load returned it: check its external force routine (the load data or \
+         function) at that DOF and time"
+    } else if from_model.contains(&quantity) {
         "The model returned it: check its force routine at that DOF (a material law or an element \
          evaluated outside its range, a division by a zero length)"
     } else {

@@ -9,10 +9,19 @@
 //! in time for models with one to millions of degrees of freedom (DOFs), and tells its users
 //! whether their time-integration settings are stable.
 //!
-//! - [`model`]: the [`Model`](model::Model) trait, the seam for a user's own element loop, and the
-//!   ready [`LinearModel`](model::LinearModel) built from sparse matrices.
+//! - [`model`]: the [`Model`](model::Model) trait, the seam for a user's own element loop (with
+//!   its [`Tangent`](model::Tangent) for implicit schemes, its [`Damping`](model::Damping) and
+//!   [`Hints`](model::Hints)), and the ready [`LinearModel`](model::LinearModel) built from
+//!   sparse matrices.
 //! - [`explicit`]: the central-difference method on a lumped mass and the model's
 //!   [stable step](explicit::stable_step).
+//! - [`implicit`]: the generalised-alpha family (Newmark-beta, HHT-alpha, WBZ-alpha,
+//!   generalised-alpha) with Newton-Raphson; its parameters are
+//!   [`AlphaParams`](params::AlphaParams) (also at `implicit::AlphaParams`).
+//! - [`params`]: every scheme's parameter type, shared by stepping and [`spectral`] analysis.
+//! - [`spectral`]: stability and accuracy of a parameter set and step before a run.
+//! - [`linalg`]: the sparse matrix, linear solvers, eigenvalue estimates, assembly help and
+//!   the execution setting ([`Execution`](linalg::Execution): threads and global sums).
 //! - [`energy`]: the energy ledger that guards a run.
 //! - [`run`]: the time loop, with step control, recording and a progress callback.
 //! - [`io`]: Matrix Market matrices, CSV load tables and initial conditions, CSV histories and

@@ -2,7 +2,7 @@
 //! the same way whichever scheme steps them.
 
 use crate::error::{Error, ModelError, Result};
-use crate::linalg::Execution;
+use crate::linalg::{CsrMatrix, Execution};
 use crate::model::{Damping, Model, Motion};
 use crate::state::State;
 use crate::validate::{check_finite, check_len};
@@ -15,10 +15,47 @@ pub(crate) struct Setup {
     pub mask: Vec<bool>,
     /// The constrained DOFs and their motions, in the model's order.
     pub constraints: Vec<(usize, Motion)>,
-    /// The model's damping (Rayleigh coefficients checked).
-    pub damping: Damping,
+    /// The model's damping (Rayleigh coefficients checked, a matrix checked for size and copied).
+    pub damping: DampingModel,
     /// Names of the extra force contributions.
     pub extra_names: Vec<String>,
+}
+
+/// The model's [`Damping`] as an integrator keeps it (a matrix copied once, at creation).
+#[derive(Debug, Clone)]
+pub(crate) enum DampingModel {
+    /// No viscous damping.
+    None,
+    /// `C = a0 M + a1 K`.
+    Rayleigh { a0: f64, a1: f64 },
+    /// A constant matrix.
+    Matrix(CsrMatrix),
+    /// The model's own force.
+    Force,
+}
+
+impl DampingModel {
+    /// Modal damping ratio at `omega`, as [`Damping::ratio_at`].
+    pub(crate) fn ratio_at(&self, omega: f64) -> Option<f64> {
+        match *self {
+            DampingModel::None => Damping::None.ratio_at(omega),
+            DampingModel::Rayleigh { a0, a1 } => Damping::Rayleigh { a0, a1 }.ratio_at(omega),
+            DampingModel::Matrix(_) | DampingModel::Force => None,
+        }
+    }
+
+    /// The damping matrix, for [`DampingModel::Matrix`].
+    pub(crate) fn matrix(&self) -> Option<&CsrMatrix> {
+        match self {
+            DampingModel::Matrix(c) => Some(c),
+            _ => None,
+        }
+    }
+
+    /// True unless [`DampingModel::None`].
+    pub(crate) fn is_damped(&self) -> bool {
+        !matches!(self, DampingModel::None)
+    }
 }
 
 /// Validates the model's size, constraints and damping and the state's sizes and values.
@@ -40,10 +77,19 @@ pub(crate) fn setup<M: Model + ?Sized>(model: &M, state: &State) -> Result<Setup
         .iter()
         .map(|c| (c.dof, c.motion.clone()))
         .collect();
-    let damping = model.damping();
-    if let Damping::Rayleigh { a0, a1 } = damping {
-        crate::validate::check_rayleigh(a0, a1)?;
-    }
+    let damping = match model.damping() {
+        Damping::None => DampingModel::None,
+        Damping::Rayleigh { a0, a1 } => {
+            crate::validate::check_rayleigh(a0, a1)?;
+            DampingModel::Rayleigh { a0, a1 }
+        }
+        Damping::Matrix(c) => {
+            check_len("damping matrix rows", n, c.nrows())?;
+            check_len("damping matrix columns", n, c.ncols())?;
+            DampingModel::Matrix(c.clone())
+        }
+        Damping::Force => DampingModel::Force,
+    };
     Ok(Setup {
         n,
         mask,

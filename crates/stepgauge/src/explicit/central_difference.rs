@@ -6,10 +6,10 @@ use crate::energy::EnergyLedger;
 use crate::error::{Error, Result};
 use crate::explicit::stable_step::{self, StableStep};
 use crate::linalg::{CHUNK, chunk_count, for_chunks_read, for_chunks2, sum_partials};
-use crate::model::{Damping, Model, Motion};
+use crate::model::{Model, Motion};
 use crate::params::ForceVelocity;
 use crate::run::{Integrator, StepReport};
-use crate::setup::{Setup, model_err, setup};
+use crate::setup::{DampingModel, Setup, model_err, setup};
 use crate::state::State;
 use crate::validate::{
     check_finite, check_growth_limit, check_len, check_lumped_mass, check_step_advances,
@@ -63,7 +63,7 @@ pub struct CentralDifference {
     /// `1/m` on free DOFs, 0 on constrained ones.
     inv_mass: Vec<f64>,
     constraints: Vec<(usize, Motion)>,
-    damping: Damping,
+    damping: DampingModel,
     u_next: Vec<f64>,
     v_half: Vec<f64>,
     /// Velocity given to velocity-dependent forces (used only with `ForceVelocity::Predicted`).
@@ -234,9 +234,8 @@ impl CentralDifference {
         options: CentralDifferenceOptions,
     ) -> Result<Self> {
         let setup = setup(model, state)?;
-        if cfg!(debug_assertions) {
-            crate::model::check_hints(model, state.t)?;
-        }
+        // The hints change paths and results: check them against the forces first.
+        crate::model::check_hints(model, state.t)?;
         let n = setup.n;
         if let StableLimit::Given(dt) = options.stable_limit
             && !(dt.is_finite() && dt > 0.0)
@@ -247,15 +246,7 @@ impl CentralDifference {
                 expected: "a positive, finite step",
             });
         }
-        if let Some(tol) = options.balance_tolerance
-            && !(tol.is_finite() && tol > 0.0)
-        {
-            return Err(Error::InvalidParameter {
-                name: "balance_tolerance",
-                value: tol,
-                expected: "a positive, finite relative tolerance",
-            });
-        }
+        check_balance_tolerance(options.balance_tolerance)?;
         check_growth_limit(options.growth_limit)?;
         let mut mass = vec![0.0; n];
         model.lumped_mass(&mut mass);
@@ -276,6 +267,7 @@ impl CentralDifference {
         let local = if constraints.is_empty() { 0.0 } else { 1.0 };
         let any_constraints = options.execution.reduce.max(local) > 0.0;
         let chunks = chunk_count(n);
+        let damped = damping.is_damped();
         let dt_stable = match options.stable_limit {
             StableLimit::Given(dt) => Some(dt),
             _ => None,
@@ -308,11 +300,7 @@ impl CentralDifference {
             } else {
                 vec![0.0; n]
             },
-            f_damp: if matches!(damping, Damping::None) {
-                Vec::new()
-            } else {
-                vec![0.0; n]
-            },
+            f_damp: if !damped { Vec::new() } else { vec![0.0; n] },
             f_extra: (0..k).map(|_| vec![0.0; n]).collect(),
             partials: vec![[0.0; 10]; chunks],
             partials3: vec![[0.0; 3]; chunks],
@@ -361,6 +349,17 @@ impl CentralDifference {
             StableLimit::Unchecked => None,
             _ => self.dt_stable,
         }
+    }
+
+    /// Sets the relative energy-balance error above which a step is rejected (`None`: reported,
+    /// not enforced); see [`CentralDifferenceOptions::balance_tolerance`].
+    ///
+    /// # Errors
+    /// [`Error::InvalidParameter`] for a tolerance that is not positive and finite.
+    pub fn set_balance_tolerance(&mut self, tolerance: Option<f64>) -> Result<()> {
+        check_balance_tolerance(tolerance)?;
+        self.options.balance_tolerance = tolerance;
+        Ok(())
     }
 
     /// Changes how steps are checked against the stable limit.
@@ -596,9 +595,9 @@ impl CentralDifference {
                 .internal_force(t, u, vf, &mut self.f_int)
                 .map_err(&err)?;
         }
-        let (d0, d1, damped) = match self.damping {
-            Damping::None => (0.0, 0.0, false),
-            Damping::Rayleigh { a0, a1 } => {
+        let (d0, d1, damped) = match &self.damping {
+            DampingModel::None => (0.0, 0.0, false),
+            &DampingModel::Rayleigh { a0, a1 } => {
                 if a1 != 0.0 {
                     model
                         .stiffness_product(t, u, vf, &mut self.f_damp)
@@ -608,7 +607,11 @@ impl CentralDifference {
                 }
                 (a0, a1, true)
             }
-            Damping::Force => {
+            DampingModel::Matrix(c) => {
+                c.mul_vec(vf, &mut self.f_damp, self.options.execution.parallelism);
+                (0.0, 1.0, true)
+            }
+            DampingModel::Force => {
                 model
                     .damping_force(t, u, vf, &mut self.f_damp)
                     .map_err(&err)?;
@@ -803,6 +806,18 @@ impl CentralDifference {
             });
         }
         Ok(())
+    }
+}
+
+/// A balance tolerance is positive and finite when given.
+fn check_balance_tolerance(tolerance: Option<f64>) -> Result<()> {
+    match tolerance {
+        Some(tol) if !(tol.is_finite() && tol > 0.0) => Err(Error::InvalidParameter {
+            name: "balance_tolerance",
+            value: tol,
+            expected: "a positive, finite relative tolerance",
+        }),
+        _ => Ok(()),
     }
 }
 

@@ -33,7 +33,11 @@ pub struct CentralDifferenceOptions {
     /// Reject a step whose relative energy-balance error exceeds this value. Default: `None` (the
     /// balance is reported, not enforced). Values of 0.01 to 0.05 are common practice; note that a
     /// stable run's error can reach `(omega dt)^2 / 4` of the energy held in modes near the
-    /// stability limit.
+    /// stability limit, and that the error includes the scheme's own lag of the integer-step
+    /// kinetic energy, `dt^2/8 (a_n . M a_n - a_0 . M a_0)` (see [`EnergyLedger`](crate::energy::EnergyLedger)),
+    /// which reads exactly 1/4 at the first step of a load ramp from rest: a tolerance below that
+    /// refuses such a start (start with `None` and set it once the run is under way, with
+    /// [`CentralDifference::set_balance_tolerance`](super::CentralDifference::set_balance_tolerance)).
     pub balance_tolerance: Option<f64>,
     /// Reject a step whose kinetic energy exceeds this multiple of all the energy put into the model
     /// (initial kinetic and stored energy plus the absolute work of external and constraint

@@ -58,7 +58,8 @@ use crate::validate::{check_finite, check_len};
 ///   approximations of `2 / omega_max` for distorted or higher-order elements;
 /// * stiffening of nonlinear models between two estimates (the limit is recomputed only every so
 ///   many steps, while contact, hardening or large deformation can raise `omega_max` meanwhile);
-/// * damping that the estimate does not account for (a damping force of unknown type,
+/// * damping that the estimate does not account for (a damping matrix or a damping force of
+///   unknown type, [`Damping::Matrix`](crate::model::Damping::Matrix) and
 ///   [`Damping::Force`](crate::model::Damping::Force)), which lowers the limit by the factor
 ///   `sqrt(1 + xi^2) - xi ~ 1 - xi` for small `xi`.
 ///

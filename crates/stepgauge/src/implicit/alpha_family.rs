@@ -22,10 +22,10 @@ use super::options::ImplicitOptions;
 use crate::energy::EnergyLedger;
 use crate::error::{Error, ModelError, Result};
 use crate::linalg::{CsrMatrix, Execution, LinearSolver, Parallelism, chunk_count};
-use crate::model::{Damping, Motion, Tangent};
+use crate::model::{Motion, Tangent};
 use crate::params::AlphaParams;
 use crate::run::{Integrator, StepReport};
-use crate::setup::{Setup, constrained_start, model_err, setup};
+use crate::setup::{DampingModel, Setup, constrained_start, model_err, setup};
 use crate::state::State;
 use crate::validate::{check_finite, check_len, check_lumped_mass, check_step_advances};
 
@@ -58,9 +58,10 @@ enum Attempt {
 /// model's [`Tangent`] (a requirement checked at compile time). For a linear model
 /// ([`Model::hints`](crate::model::Model::hints), [`Linearity`](crate::model::Linearity)) one
 /// solve per step is exact and `J` is factored once per step size (a new step size refactors
-/// numerically and reuses the symbolic analysis). The tangents of extra forces, and of a damping
-/// force without [`Model::damping_matrix`](crate::model::Model::damping_matrix), are left out of
-/// `J`.
+/// numerically and reuses the symbolic analysis). A constant damping matrix
+/// ([`Damping::Matrix`](crate::model::Damping::Matrix)) is part of `J`; the tangents of extra
+/// forces, and of the model's own damping force
+/// ([`Damping::Force`](crate::model::Damping::Force)), are left out of it.
 ///
 /// **Start.** `M a_0 = f_ext(t_0) - C v_0 - f_int(t_0, u_0, v_0) - sum f_k`, solved with the consistent
 /// or lumped mass.
@@ -94,8 +95,10 @@ pub struct AlphaIntegrator {
     solver: Box<dyn LinearSolver>,
     mass: Mass,
     mass_map: Vec<usize>,
-    damping: Damping,
-    c_matrix: Option<CsrMatrix>,
+    damping: DampingModel,
+    /// The tangent's values for the stiffness part of Rayleigh damping, when the model has no
+    /// stiffness product (decided at creation by asking once).
+    rayleigh_tangent: Option<CsrMatrix>,
     c_map: Vec<usize>,
     k_t: CsrMatrix,
     k_map: Vec<usize>,
@@ -178,7 +181,7 @@ impl AlphaIntegrator {
     /// [`Error::InvalidParameter`] for parameters or options outside their range,
     /// [`Error::EmptyModel`], [`Error::DimensionMismatch`], [`Error::NonFiniteInput`],
     /// [`Error::NonPositiveMass`], constraint errors, [`Error::Model`], [`Error::HintMismatch`]
-    /// (debug builds: see [`check_hints`](crate::model::check_hints)), and the solver's errors.
+    /// (see [`check_hints`](crate::model::check_hints)), and the solver's errors.
     /// On error `state` is unchanged.
     pub fn new<M: Tangent + ?Sized>(
         model: &mut M,
@@ -324,9 +327,8 @@ impl AlphaIntegrator {
             damping,
             extra_names: names,
         } = setup(model, state)?;
-        if cfg!(debug_assertions) {
-            crate::model::check_hints(model, state.t)?;
-        }
+        // The hints change paths and results: check them against the forces first.
+        crate::model::check_hints(model, state.t)?;
         let mass = match model.mass_matrix() {
             Some(m) => {
                 check_len("mass matrix rows", n, m.nrows())?;
@@ -343,24 +345,29 @@ impl AlphaIntegrator {
         let k_t = model.tangent_pattern().clone();
         check_len("tangent rows", n, k_t.nrows())?;
         check_len("tangent columns", n, k_t.ncols())?;
-        let c_matrix = match damping {
-            Damping::Force => model.damping_matrix().cloned(),
+        // Rayleigh's stiffness part: from the stiffness product when the model gives one (asked
+        // once, here), from the tangent otherwise.
+        let rayleigh_tangent = match damping {
+            DampingModel::Rayleigh { a1, .. } if a1 != 0.0 => {
+                let mut out = vec![0.0; n];
+                match model.stiffness_product(state.t, &state.u, &vec![0.0; n], &mut out) {
+                    Err(ModelError::NotProvided(_)) => Some(k_t.clone()),
+                    _ => None,
+                }
+            }
             _ => None,
         };
-        if let Some(c) = &c_matrix {
-            check_len("damping matrix rows", n, c.nrows())?;
-            check_len("damping matrix columns", n, c.ncols())?;
-        }
+        let c_matrix = damping.matrix();
         let m_mat = mass.matrix();
         let eye = CsrMatrix::from_diagonal(&vec![1.0; n]);
         let mut parts: Vec<&CsrMatrix> = vec![&m_mat, &k_t, &eye];
-        if let Some(c) = &c_matrix {
+        if let Some(c) = c_matrix {
             parts.push(c);
         }
         let jac = CsrMatrix::pattern_union(&parts)?;
         let mass_map = m_mat.positions_in(&jac)?;
         let k_map = k_t.positions_in(&jac)?;
-        let c_map = match &c_matrix {
+        let c_map = match c_matrix {
             Some(c) => c.positions_in(&jac)?,
             None => Vec::new(),
         };
@@ -371,10 +378,7 @@ impl AlphaIntegrator {
         // Every term of the residual must be in the iteration matrix for one correction to
         // solve a step exactly: a damping force without its matrix is not (its Newton iterations
         // then converge linearly, with the residual checked as for a nonlinear model).
-        let damping_in_matrix = match damping {
-            Damping::None | Damping::Rayleigh { .. } => true,
-            Damping::Force => c_matrix.is_some(),
-        };
+        let damping_in_matrix = !matches!(damping, DampingModel::Force);
         let linear = model.hints().linearity.is_linear() && k == 0 && damping_in_matrix;
         // The streamlined linear path needs no constraints (the general path handles them).
         let fast_linear = linear && !options.refine_linear && nc == 0;
@@ -387,7 +391,7 @@ impl AlphaIntegrator {
             mass,
             mass_map,
             damping,
-            c_matrix,
+            rayleigh_tangent,
             c_map,
             k_t,
             k_map,
@@ -476,25 +480,34 @@ impl AlphaIntegrator {
             .map_err(&err)?;
         damping_force(
             model,
-            self.damping,
+            &self.damping,
             &self.mass,
             s.t,
             &s.u,
             &s.v,
             &mut self.f_d0,
             &mut self.tmp,
+            self.rayleigh_tangent.as_mut(),
             self.options.execution.parallelism,
         )
         .map_err(&err)?;
         for (k, f) in self.f_x0.iter_mut().enumerate() {
             model.extra_force(k, s.t, &s.u, &s.v, f).map_err(&err)?;
         }
-        for (what, x) in [
+        // As the explicit scheme reports it: the quantity, its DOF, the step and the time.
+        for (quantity, x) in [
             ("external force", &self.f_ext0),
             ("internal force", &self.f_int0),
             ("damping force", &self.f_d0),
         ] {
-            check_finite(what, x)?;
+            if let Some(dof) = x.iter().position(|v| !v.is_finite()) {
+                return Err(Error::NonFiniteState {
+                    quantity,
+                    dof,
+                    step,
+                    t: s.t,
+                });
+            }
         }
         Ok(())
     }
@@ -694,27 +707,36 @@ pub(super) fn sum_dot(execution: &Execution, scratch: &mut [f64], x: &[f64], y: 
     crate::linalg::dot_with(x, y, execution, &mut scratch[..chunk_count(x.len())])
 }
 
-/// The damping force `C v` of the model into `out` (`tmp` is scratch).
+/// The damping force `C v` of the model into `out` (`tmp` is scratch). For Rayleigh damping
+/// `K v` comes from the model's stiffness product, or, when `rayleigh_tangent` is given (the
+/// model has no stiffness product), from its tangent at `(t, u, v)` evaluated into it.
 #[allow(clippy::too_many_arguments)]
 fn damping_force<M: Tangent + ?Sized>(
     model: &mut M,
-    damping: Damping,
+    damping: &DampingModel,
     mass: &Mass,
     t: f64,
     u: &[f64],
     v: &[f64],
     out: &mut [f64],
     tmp: &mut [f64],
+    rayleigh_tangent: Option<&mut CsrMatrix>,
     par: Parallelism,
 ) -> std::result::Result<(), ModelError> {
-    match damping {
-        Damping::None => {
+    match *damping {
+        DampingModel::None => {
             out.fill(0.0);
             Ok(())
         }
-        Damping::Rayleigh { a0, a1 } => {
+        DampingModel::Rayleigh { a0, a1 } => {
             if a1 != 0.0 {
-                model.stiffness_product(t, u, v, out)?;
+                match rayleigh_tangent {
+                    Some(k) => {
+                        model.tangent_stiffness(t, u, v, k)?;
+                        k.mul_vec(v, out, par);
+                    }
+                    None => model.stiffness_product(t, u, v, out)?,
+                }
             } else {
                 out.fill(0.0);
             }
@@ -724,7 +746,11 @@ fn damping_force<M: Tangent + ?Sized>(
             }
             Ok(())
         }
-        Damping::Force => model.damping_force(t, u, v, out),
+        DampingModel::Matrix(ref c) => {
+            c.mul_vec(v, out, par);
+            Ok(())
+        }
+        DampingModel::Force => model.damping_force(t, u, v, out),
     }
 }
 

@@ -6,6 +6,7 @@ mod newton;
 mod options;
 
 pub use crate::error::Criterion;
+pub use crate::params::AlphaParams;
 pub use alpha_family::AlphaIntegrator;
 pub use newton::{NewtonOptions, NewtonReport, NewtonVariant};
 pub use options::ImplicitOptions;

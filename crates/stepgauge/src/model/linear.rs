@@ -338,29 +338,11 @@ impl Model for LinearModel {
         Ok(())
     }
 
-    fn damping(&self) -> Damping {
-        match self.damping {
-            LinearDamping::None => Damping::None,
-            LinearDamping::Rayleigh { a0, a1 } => Damping::Rayleigh { a0, a1 },
-            LinearDamping::Matrix(_) => Damping::Force,
-        }
-    }
-
-    fn damping_force(
-        &mut self,
-        _t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut [f64],
-    ) -> std::result::Result<(), ModelError> {
-        let n = self.dofs();
-        super::check_buffers(n, &[("u", u.len()), ("v", v.len()), ("out", out.len())])?;
+    fn damping(&self) -> Damping<'_> {
         match &self.damping {
-            LinearDamping::Matrix(c) => {
-                c.mul_vec(v, out, self.parallel);
-                Ok(())
-            }
-            _ => Err(ModelError::NotProvided("damping_force")),
+            LinearDamping::None => Damping::None,
+            LinearDamping::Rayleigh { a0, a1 } => Damping::Rayleigh { a0: *a0, a1: *a1 },
+            LinearDamping::Matrix(c) => Damping::Matrix(c),
         }
     }
 
@@ -383,13 +365,6 @@ impl Model for LinearModel {
 
     fn mass_matrix(&self) -> Option<&CsrMatrix> {
         Some(&self.mass)
-    }
-
-    fn damping_matrix(&self) -> Option<&CsrMatrix> {
-        match &self.damping {
-            LinearDamping::Matrix(c) => Some(c),
-            _ => None,
-        }
     }
 
     /// Linear with the stiffness matrix ([`internal_force`](Model::internal_force) is its

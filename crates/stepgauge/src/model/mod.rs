@@ -33,14 +33,15 @@ pub use linear::{LinearModel, Load, LoadFn, LoadTable};
 use crate::error::ModelError;
 use crate::linalg::CsrMatrix;
 
-/// How a model is damped.
+/// How a model is damped: one typed value ([`Model::damping`]).
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
-pub enum Damping {
+pub enum Damping<'a> {
     /// No viscous damping.
     #[default]
     None,
-    /// Rayleigh damping `C = a0 M + a1 K`. The integrator forms `C v` from the lumped mass and
-    /// [`Model::stiffness_product`]. The modal damping ratio is
+    /// Rayleigh damping `C = a0 M + a1 K`. The integrators form `C v` from the mass and `K v`:
+    /// [`Model::stiffness_product`], or, in the implicit scheme, the model's
+    /// [`Tangent`] when it gives no stiffness product. The modal damping ratio is
     /// `xi(omega) = a0 / (2 omega) + a1 omega / 2` (Rayleigh's classical damping; e.g. Chopra,
     /// *Dynamics of Structures*, ch. 11).
     Rayleigh {
@@ -49,18 +50,24 @@ pub enum Damping {
         /// Stiffness-proportional coefficient (s).
         a1: f64,
     },
-    /// The model computes its own damping force in [`Model::damping_force`].
+    /// A constant damping matrix: the integrators form `C v` themselves, and the implicit schemes
+    /// put `C` in the iteration matrix (so a linear model with it is solved once per step).
+    Matrix(&'a CsrMatrix),
+    /// The model computes its own damping force in [`Model::damping_force`] (for example a
+    /// nonlinear one); implicit schemes leave it out of the iteration matrix, so it enters the
+    /// residual only and Newton's convergence becomes linear.
     Force,
 }
 
-impl Damping {
+impl Damping<'_> {
     /// Modal damping ratio at circular frequency `omega`, when the damping type determines it
-    /// (`Some(0)` for no damping, the Rayleigh formula for Rayleigh damping, `None` for a user force).
+    /// (`Some(0)` for no damping, the Rayleigh formula for Rayleigh damping, `None` for a matrix
+    /// or a user force).
     pub fn ratio_at(&self, omega: f64) -> Option<f64> {
         match *self {
             Damping::None => Some(0.0),
             Damping::Rayleigh { a0, a1 } => Some(a0 / (2.0 * omega) + a1 * omega / 2.0),
-            Damping::Force => None,
+            Damping::Matrix(_) | Damping::Force => None,
         }
     }
 
@@ -70,7 +77,12 @@ impl Damping {
     /// # Errors
     /// [`crate::Error::InvalidParameter`] when a frequency is not positive and finite, the two are
     /// equal, a ratio is negative or not finite, or the coefficients overflow.
-    pub fn rayleigh_from_modes(w1: f64, xi1: f64, w2: f64, xi2: f64) -> crate::Result<Damping> {
+    pub fn rayleigh_from_modes(
+        w1: f64,
+        xi1: f64,
+        w2: f64,
+        xi2: f64,
+    ) -> crate::Result<Damping<'static>> {
         for (name, w) in [("omega_1", w1), ("omega_2", w2)] {
             if !(w.is_finite() && w > 0.0) {
                 return Err(crate::Error::InvalidParameter {
@@ -137,6 +149,99 @@ pub(crate) fn check_buffers(n: usize, buffers: &[(&'static str, usize)]) -> Resu
 /// stiffness, which the implicit integrator needs, is its own trait, [`Tangent`].
 ///
 /// All `out` buffers have length [`dofs`](Model::dofs) and must be *overwritten* (not added to).
+///
+/// # Example
+///
+/// Two masses on a hardening spring each (`f = k d + k3 d^3`), the first tied to the ground;
+/// the core methods for the explicit scheme, the [`Tangent`] for the implicit one:
+///
+/// ```
+/// use stepgauge::explicit::{CentralDifference, CentralDifferenceOptions};
+/// use stepgauge::implicit::{AlphaIntegrator, AlphaParams, ImplicitOptions};
+/// use stepgauge::linalg::{CsrMatrix, SparseCholesky};
+/// use stepgauge::model::{Model, Tangent};
+/// use stepgauge::{ModelError, State};
+///
+/// struct Springs {
+///     k: f64,
+///     k3: f64,
+///     pattern: CsrMatrix,
+/// }
+///
+/// impl Springs {
+///     /// Elongations of the ground spring and the spring between the masses.
+///     fn stretch(u: &[f64]) -> [f64; 2] {
+///         [u[0], u[1] - u[0]]
+///     }
+/// }
+///
+/// impl Model for Springs {
+///     fn dofs(&self) -> usize {
+///         2
+///     }
+///     fn lumped_mass(&self, out: &mut [f64]) {
+///         out.fill(1.0);
+///     }
+///     fn internal_force(
+///         &mut self,
+///         _t: f64,
+///         u: &[f64],
+///         _v: &[f64],
+///         out: &mut [f64],
+///     ) -> Result<(), ModelError> {
+///         let [d0, d1] = Self::stretch(u);
+///         let f = |d: f64| self.k * d + self.k3 * d * d * d;
+///         out[0] = f(d0) - f(d1);
+///         out[1] = f(d1);
+///         Ok(())
+///     }
+/// }
+///
+/// impl Tangent for Springs {
+///     fn tangent_pattern(&self) -> &CsrMatrix {
+///         &self.pattern
+///     }
+///     fn tangent_stiffness(
+///         &mut self,
+///         _t: f64,
+///         u: &[f64],
+///         _v: &[f64],
+///         out: &mut CsrMatrix,
+///     ) -> Result<(), ModelError> {
+///         let [d0, d1] = Self::stretch(u);
+///         let (k0, k1) = (self.k + 3.0 * self.k3 * d0 * d0, self.k + 3.0 * self.k3 * d1 * d1);
+///         // Row-major entries of the full 2 x 2 pattern: (0,0), (0,1), (1,0), (1,1).
+///         out.data_mut().copy_from_slice(&[k0 + k1, -k1, -k1, k1]);
+///         Ok(())
+///     }
+/// }
+///
+/// # fn main() -> stepgauge::Result<()> {
+/// let pattern = CsrMatrix::pattern_from_elements(2, &[[0usize, 1]])?;
+/// let mut model = Springs { k: 100.0, k3: 1e4, pattern };
+/// let start = State::new(0.0, vec![0.0, 0.0], vec![0.0, 1.0])?;
+///
+/// let mut state = start.clone();
+/// let mut cd = CentralDifference::new(&mut model, &mut state, CentralDifferenceOptions::default())?;
+/// let dt = 0.5 * cd.stable_limit().unwrap();
+/// for _ in 0..100 {
+///     cd.step(&mut model, &mut state, dt)?;
+/// }
+///
+/// let mut state = start.clone();
+/// let p = AlphaParams::hht(-0.1)?;
+/// let mut it = AlphaIntegrator::new(
+///     &mut model,
+///     &mut state,
+///     p,
+///     Box::new(SparseCholesky::new()),
+///     ImplicitOptions::default(),
+/// )?;
+/// it.step(&mut model, &mut state, 1e-3)?;
+/// assert!(state.u[1] > 0.0);
+/// # Ok(())
+/// # }
+/// ```
 pub trait Model {
     /// Number of degrees of freedom.
     fn dofs(&self) -> usize;
@@ -172,12 +277,13 @@ pub trait Model {
         Ok(())
     }
 
-    /// How the model is damped. Default: [`Damping::None`].
-    fn damping(&self) -> Damping {
+    /// How the model is damped, as one typed value: none, Rayleigh, a constant matrix, or the
+    /// model's own force ([`damping_force`](Model::damping_force)). Default: [`Damping::None`].
+    fn damping(&self) -> Damping<'_> {
         Damping::None
     }
 
-    /// The damping force `C v` when [`damping`](Model::damping) is [`Damping::Force`].
+    /// The model's own damping force when [`damping`](Model::damping) is [`Damping::Force`].
     /// Default: [`ModelError::NotProvided`].
     ///
     /// # Errors
@@ -265,16 +371,9 @@ pub trait Model {
         None
     }
 
-    /// The damping matrix `C` of a [`Damping::Force`] model whose damping force is `C v` with a
-    /// constant `C`; implicit schemes put it in the iteration matrix. Default: `None` (a damping
-    /// force without a matrix enters the residual only, and Newton's convergence becomes linear).
-    fn damping_matrix(&self) -> Option<&CsrMatrix> {
-        None
-    }
-
     /// Facts about the forces that let the integrators leave out work: whether the internal
     /// force is linear (and its matrix), whether the model is unloaded. Declared once, checked
-    /// against the forces by [`check_hints`] when an integrator is created in a debug build.
+    /// against the forces by [`check_hints`] when an integrator is created.
     /// Default: no claims ([`Hints::default`]).
     fn hints(&self) -> Hints<'_> {
         Hints::default()

@@ -9,8 +9,8 @@ use crate::model::{Damping, Model, Tangent, check_buffers};
 use crate::state::State;
 
 /// A hardening oscillator `m u'' + c u' + k u + k3 u^3 = f0 sin(w t)`: one DOF, a cubic spring,
-/// linear viscous damping (as a [`Damping::Force`] with its constant [damping
-/// matrix](Model::damping_matrix)) and the tangent `k + 3 k3 u^2` for implicit schemes.
+/// linear viscous damping (a constant [`Damping::Matrix`]) and the tangent `k + 3 k3 u^2` for
+/// implicit schemes.
 ///
 /// The damping coefficient sits in the damping matrix and is read and changed through
 /// [`c`](Duffing::c) and [`set_c`](Duffing::set_c); the other parameters are plain fields.
@@ -117,22 +117,8 @@ impl Model for Duffing {
         out[0] = self.f0 * (self.w * t).sin();
         Ok(())
     }
-    fn damping(&self) -> Damping {
-        Damping::Force
-    }
-    fn damping_force(
-        &mut self,
-        _t: f64,
-        u: &[f64],
-        v: &[f64],
-        out: &mut [f64],
-    ) -> std::result::Result<(), ModelError> {
-        check_buffers(1, &[("u", u.len()), ("v", v.len()), ("out", out.len())])?;
-        out[0] = self.c() * v[0];
-        Ok(())
-    }
-    fn damping_matrix(&self) -> Option<&CsrMatrix> {
-        Some(&self.damping)
+    fn damping(&self) -> Damping<'_> {
+        Damping::Matrix(&self.damping)
     }
     fn stiffness_product(
         &mut self,
@@ -485,9 +471,10 @@ mod tests {
             .unwrap();
         assert!((kt.data()[0] - (fp[0] - fm[0]) / 2e-6).abs() < 1e-8);
         d.set_c(0.3).unwrap();
-        d.damping_force(0.0, &[0.0], &[2.0], &mut out).unwrap();
-        assert!((out[0] - 0.6).abs() < 1e-15);
-        assert_eq!(d.damping_matrix().unwrap().data(), &[0.3]);
+        match d.damping() {
+            Damping::Matrix(c) => assert_eq!(c.data(), &[0.3]),
+            other => panic!("{other:?}"),
+        }
         assert!(d.set_c(-1.0).is_err());
         assert!(Duffing::new(0.0, 0.1, 1.0, 1.0, 1.0, 1.0).is_err());
     }

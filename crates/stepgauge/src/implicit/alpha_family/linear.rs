@@ -5,7 +5,7 @@ use super::kernels::{FusedRhs, FusedUpdate, fused_sweeps, zero_if_finite};
 use super::{AlphaIntegrator, damping_force};
 use crate::error::{Error, Result};
 use crate::linalg::SparseCholesky;
-use crate::model::{Damping, Tangent};
+use crate::model::Tangent;
 use crate::setup::model_err;
 use crate::state::State;
 use crate::validate::check_finite;
@@ -52,7 +52,7 @@ impl AlphaIntegrator {
         let g = p.gamma;
         let n = self.n;
         let par = self.options.execution.parallelism.parallel_for(n);
-        let damped = !matches!(self.damping, Damping::None);
+        let damped = self.damping.is_damped();
         self.report.residuals.clear();
         let err = model_err(step, t1);
         if self.factored_for != Some(h) {
@@ -106,13 +106,14 @@ impl AlphaIntegrator {
         if damped {
             damping_force(
                 model,
-                self.damping,
+                &self.damping,
                 &self.mass,
                 t1,
                 &self.u1,
                 &self.v1,
                 &mut self.f_d1,
                 &mut self.tmp,
+                self.rayleigh_tangent.as_mut(),
                 self.options.execution.parallelism,
             )
             .map_err(&err)?;
@@ -283,13 +284,14 @@ impl AlphaIntegrator {
             if damped {
                 damping_force(
                     model,
-                    self.damping,
+                    &self.damping,
                     &self.mass,
                     t1,
                     &self.u1,
                     &self.v1,
                     &mut self.f_d1,
                     &mut self.tmp,
+                    self.rayleigh_tangent.as_mut(),
                     self.options.execution.parallelism,
                 )
                 .map_err(&err)?;

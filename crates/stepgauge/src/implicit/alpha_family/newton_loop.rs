@@ -5,8 +5,8 @@ use super::{AlphaIntegrator, damping_force, sum_dot};
 use crate::error::{Error, Result};
 use crate::implicit::{Criterion, NewtonVariant};
 use crate::linalg::{CHUNK, chunk_count, global_sums, sum_partials};
-use crate::model::{Damping, Motion, Tangent, TimeFunction};
-use crate::setup::model_err;
+use crate::model::{Motion, Tangent, TimeFunction};
+use crate::setup::{DampingModel, model_err};
 use crate::state::State;
 use crate::validate::check_finite;
 
@@ -311,13 +311,14 @@ impl AlphaIntegrator {
             .map_err(&err)?;
         damping_force(
             model,
-            self.damping,
+            &self.damping,
             &self.mass,
             t1,
             &self.u1,
             &self.v1,
             &mut self.f_d1,
             &mut self.tmp,
+            self.rayleigh_tangent.as_mut(),
             self.options.execution.parallelism,
         )
         .map_err(&err)?;
@@ -421,7 +422,7 @@ impl AlphaIntegrator {
     pub(super) fn assemble(&mut self, cm: f64, cc: f64) {
         let af = 1.0 - self.params.alpha_f;
         let (mut s_m, mut s_k) = (cm, af);
-        if let Damping::Rayleigh { a0, a1 } = self.damping {
+        if let DampingModel::Rayleigh { a0, a1 } = self.damping {
             s_m += af * cc * a0;
             s_k += af * cc * a1;
         }
@@ -434,7 +435,7 @@ impl AlphaIntegrator {
         for (k, pos) in self.k_map.iter().enumerate() {
             data[*pos] += s_k * self.k_t.data()[k];
         }
-        if let Some(c) = &self.c_matrix {
+        if let Some(c) = self.damping.matrix() {
             for (k, pos) in self.c_map.iter().enumerate() {
                 data[*pos] += af * cc * c.data()[k];
             }
