@@ -701,6 +701,28 @@ fn constrained_positions(a: &CsrMatrix, mask: &[bool]) -> (Vec<usize>, Vec<usize
     (zero, diag)
 }
 
+impl AlphaIntegrator {
+    /// The damping force at the new state `(t1, u1, v1)` into `f_d1`.
+    pub(super) fn damping_at_new<M: Tangent + ?Sized>(
+        &mut self,
+        model: &mut M,
+        t1: f64,
+    ) -> std::result::Result<(), ModelError> {
+        damping_force(
+            model,
+            &self.damping,
+            &self.mass,
+            t1,
+            &self.u1,
+            &self.v1,
+            &mut self.f_d1,
+            &mut self.tmp,
+            self.rayleigh_tangent.as_mut(),
+            self.options.execution.parallelism,
+        )
+    }
+}
+
 /// The global dot product `x . y`, through the reducer, with the integrator's `scratch` for the
 /// chunk partials.
 pub(super) fn sum_dot(execution: &Execution, scratch: &mut [f64], x: &[f64], y: &[f64]) -> f64 {

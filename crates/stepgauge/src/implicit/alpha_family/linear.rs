@@ -1,8 +1,8 @@
 //! The linear path: one solve per sub-step for a linear model without constraints, streamlined
 //! into a few passes over the vectors, and its fused forms (see [`kernels`](super::kernels)).
 
+use super::AlphaIntegrator;
 use super::kernels::{FusedRhs, FusedUpdate, fused_sweeps, zero_if_finite};
-use super::{AlphaIntegrator, damping_force};
 use crate::error::{Error, Result};
 use crate::linalg::SparseCholesky;
 use crate::model::Tangent;
@@ -104,19 +104,7 @@ impl AlphaIntegrator {
             .internal_force(t1, &self.u1, v_force, &mut self.f_int1)
             .map_err(&err)?;
         if damped {
-            damping_force(
-                model,
-                &self.damping,
-                &self.mass,
-                t1,
-                &self.u1,
-                &self.v1,
-                &mut self.f_d1,
-                &mut self.tmp,
-                self.rayleigh_tangent.as_mut(),
-                self.options.execution.parallelism,
-            )
-            .map_err(&err)?;
+            self.damping_at_new(model, t1).map_err(&err)?;
         }
         // 2. Right-hand side -R_p into du, with M a_n.
         let md = self.mass.diagonal();
@@ -282,7 +270,8 @@ impl AlphaIntegrator {
                     .mul(&self.v1, &mut self.res, self.options.execution.parallelism);
             }
             if damped {
-                damping_force(
+                // Field by field (`md` still borrows the mass).
+                super::damping_force(
                     model,
                     &self.damping,
                     &self.mass,

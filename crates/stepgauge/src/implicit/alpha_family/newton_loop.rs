@@ -1,7 +1,7 @@
 //! The Newton-Raphson iterations of one sub-step: the predictor, the constrained DOFs' motion,
 //! the convergence criteria, the evaluation of the residual and the iteration matrix.
 
-use super::{AlphaIntegrator, damping_force, sum_dot};
+use super::{AlphaIntegrator, sum_dot};
 use crate::error::{Error, Result};
 use crate::implicit::{Criterion, NewtonVariant};
 use crate::linalg::{CHUNK, chunk_count, global_sums, sum_partials};
@@ -309,19 +309,7 @@ impl AlphaIntegrator {
         model
             .internal_force(t1, &self.u1, &self.v1, &mut self.f_int1)
             .map_err(&err)?;
-        damping_force(
-            model,
-            &self.damping,
-            &self.mass,
-            t1,
-            &self.u1,
-            &self.v1,
-            &mut self.f_d1,
-            &mut self.tmp,
-            self.rayleigh_tangent.as_mut(),
-            self.options.execution.parallelism,
-        )
-        .map_err(&err)?;
+        self.damping_at_new(model, t1).map_err(&err)?;
         for (k, f) in self.f_x1.iter_mut().enumerate() {
             model
                 .extra_force(k, t1, &self.u1, &self.v1, f)
