@@ -641,3 +641,95 @@ fn rayleigh_stiffness_part_from_the_tangent() {
     // The damping did work (a test of an undamped run would prove nothing).
     assert!(w1.abs() > 1e-6, "{w1}");
 }
+
+/// A model that gives its consistent mass matrix and no lumped mass: the implicit scheme uses the
+/// matrix, the explicit one its row sums (row-sum lumping, common practice); a model that gives
+/// neither is refused with the mass error, which names both ways.
+#[test]
+fn a_consistent_mass_alone_is_enough() {
+    struct MatrixMass {
+        m: stepgauge::linalg::CsrMatrix,
+        k: stepgauge::linalg::CsrMatrix,
+        give_mass: bool,
+    }
+    impl stepgauge::model::Model for MatrixMass {
+        fn dofs(&self) -> usize {
+            self.k.nrows()
+        }
+        fn internal_force(
+            &mut self,
+            _t: f64,
+            u: &[f64],
+            _v: &[f64],
+            out: &mut [f64],
+        ) -> Result<(), stepgauge::ModelError> {
+            self.k
+                .mul_vec(u, out, stepgauge::linalg::Parallelism::serial());
+            Ok(())
+        }
+        fn mass_matrix(&self) -> Option<&stepgauge::linalg::CsrMatrix> {
+            self.give_mass.then_some(&self.m)
+        }
+    }
+    impl stepgauge::model::Tangent for MatrixMass {
+        fn tangent_pattern(&self) -> &stepgauge::linalg::CsrMatrix {
+            &self.k
+        }
+        fn tangent_stiffness(
+            &mut self,
+            _t: f64,
+            _u: &[f64],
+            _v: &[f64],
+            out: &mut stepgauge::linalg::CsrMatrix,
+        ) -> Result<(), stepgauge::ModelError> {
+            out.data_mut().copy_from_slice(self.k.data());
+            Ok(())
+        }
+    }
+    use stepgauge::model::Model;
+    let n = 6;
+    let m = common::dense_band_mass(n);
+    let csr = |a: &sprs::CsMat<f64>| stepgauge::linalg::CsrMatrix::from_sprs("matrix", a).unwrap();
+    let mut model = MatrixMass {
+        m: csr(&m),
+        k: csr(&common::chain_stiffness(n, 50.0, true, true)),
+        give_mass: true,
+    };
+    let mut lumped = vec![0.0; n];
+    model.lumped_mass(&mut lumped);
+    assert_eq!(lumped, model.m.row_sums());
+    let start = State::new(0.0, vec![0.0; n], vec![0.1; n]).unwrap();
+    let mut state = start.clone();
+    let mut it = AlphaIntegrator::new(
+        &mut model,
+        &mut state,
+        AlphaParams::average_acceleration(),
+        common::DenseLu::boxed(),
+        ImplicitOptions::default(),
+    )
+    .unwrap();
+    for _ in 0..20 {
+        it.step(&mut model, &mut state, 0.01).unwrap();
+    }
+    assert!(it.energy().relative_balance_error() < 1e-12);
+    let mut state = start.clone();
+    let mut cd = stepgauge::explicit::CentralDifference::new(
+        &mut model,
+        &mut state,
+        stepgauge::explicit::CentralDifferenceOptions::default(),
+    )
+    .unwrap();
+    let dt = 0.5 * cd.stable_limit().unwrap();
+    cd.step(&mut model, &mut state, dt).unwrap();
+
+    model.give_mass = false;
+    let mut state = start.clone();
+    let e = stepgauge::explicit::CentralDifference::new(
+        &mut model,
+        &mut state,
+        stepgauge::explicit::CentralDifferenceOptions::default(),
+    )
+    .unwrap_err();
+    assert!(matches!(e, Error::NonPositiveMass { dof: 0, .. }), "{e}");
+    assert!(e.to_string().contains("Model::mass_matrix"), "{e}");
+}

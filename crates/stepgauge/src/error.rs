@@ -106,7 +106,9 @@ pub enum Error {
     #[error(
         "lumped mass at DOF {dof} is {value}, but every free DOF needs a positive finite mass; \
          fix or prescribe massless DOFs, and note that row-sum lumping of higher-order elements can give \
-         negative masses (use diagonal-scaling lumping in your element code)"
+         negative masses (use diagonal-scaling lumping in your element code); a model gives its \
+         mass through Model::lumped_mass or Model::mass_matrix, and one that gives neither \
+         reads NaN"
     )]
     NonPositiveMass {
         /// The DOF.

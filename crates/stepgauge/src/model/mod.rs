@@ -143,8 +143,9 @@ pub(crate) fn check_buffers(n: usize, buffers: &[(&'static str, usize)]) -> Resu
 
 /// The user's model: mass, forces, damping and constraints of `M a + C v + f_int = f_ext`.
 ///
-/// Only [`dofs`](Model::dofs), [`lumped_mass`](Model::lumped_mass) and
-/// [`internal_force`](Model::internal_force) are required; everything else has a default
+/// Only [`dofs`](Model::dofs) and [`internal_force`](Model::internal_force) are required, with
+/// the mass as [`lumped_mass`](Model::lumped_mass) or [`mass_matrix`](Model::mass_matrix)
+/// (whose row sums are then the lumped mass); everything else has a default
 /// (no external force, no damping, no constraints, no extra forces, no hints). The tangent
 /// stiffness, which the implicit integrator needs, is its own trait, [`Tangent`].
 ///
@@ -249,8 +250,20 @@ pub trait Model {
     /// The lumped (diagonal) mass, written into `out`.
     ///
     /// Every DOF that is free to move needs a positive, finite mass; constrained DOFs may have zero
-    /// mass.
-    fn lumped_mass(&self, out: &mut [f64]);
+    /// mass. Default: the row sums of [`mass_matrix`](Model::mass_matrix) when the model gives
+    /// one (row-sum lumping, common practice; the explicit scheme steps with it, the implicit
+    /// schemes use the matrix itself), NaN otherwise (which the integrators refuse with
+    /// [`Error::NonPositiveMass`](crate::Error::NonPositiveMass)): a model gives one or the other.
+    fn lumped_mass(&self, out: &mut [f64]) {
+        match self.mass_matrix() {
+            Some(m) if m.nrows() == out.len() => {
+                for (i, o) in out.iter_mut().enumerate() {
+                    *o = m.row(i).map(|(_, v)| v).sum();
+                }
+            }
+            _ => out.fill(f64::NAN),
+        }
+    }
 
     /// Internal force `f_int(t, u, v)`, written into `out`.
     ///
