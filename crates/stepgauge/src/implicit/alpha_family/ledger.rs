@@ -8,6 +8,26 @@ use crate::model::Tangent;
 use crate::state::State;
 
 impl AlphaIntegrator {
+    /// The new state `(u1, v1, a1)` is finite; otherwise [`Error::NonFiniteState`] naming the
+    /// first quantity and DOF that is not.
+    pub(super) fn check_new_state(&self, step: u64, t1: f64) -> Result<()> {
+        for (quantity, x) in [
+            ("displacement", &self.u1),
+            ("velocity", &self.v1),
+            ("acceleration", &self.a1),
+        ] {
+            if let Some(dof) = x.iter().position(|v| !v.is_finite()) {
+                return Err(Error::NonFiniteState {
+                    quantity,
+                    dof,
+                    step,
+                    t: t1,
+                });
+            }
+        }
+        Ok(())
+    }
+
     /// Books the converged sub-step in the ledger, checks the guards and accepts it.
     pub(super) fn accept<M: Tangent + ?Sized>(
         &mut self,
@@ -16,20 +36,7 @@ impl AlphaIntegrator {
         t1: f64,
         step: u64,
     ) -> Result<()> {
-        for (what, x) in [
-            ("displacement", &self.u1),
-            ("velocity", &self.v1),
-            ("acceleration", &self.a1),
-        ] {
-            if let Some(dof) = x.iter().position(|v| !v.is_finite()) {
-                return Err(Error::NonFiniteState {
-                    quantity: what,
-                    dof,
-                    step,
-                    t: t1,
-                });
-            }
-        }
+        self.check_new_state(step, t1)?;
         let a1 = std::mem::take(&mut self.a1);
         self.reactions_into(&a1, false);
         self.a1 = a1;

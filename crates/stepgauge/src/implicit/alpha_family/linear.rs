@@ -3,7 +3,7 @@
 
 use super::AlphaIntegrator;
 use super::kernels::{FusedRhs, FusedUpdate, fused_sweeps, zero_if_finite};
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::linalg::SparseCholesky;
 use crate::model::Tangent;
 use crate::setup::model_err;
@@ -242,20 +242,7 @@ impl AlphaIntegrator {
         let mut sums = crate::linalg::sum_partials(&self.options.execution, &self.partials);
         if !sums[3].is_finite() {
             // Name the DOF.
-            for (what, x) in [
-                ("displacement", &self.u1),
-                ("velocity", &self.v1),
-                ("acceleration", &self.a1),
-            ] {
-                if let Some(dof) = x.iter().position(|v| !v.is_finite()) {
-                    return Err(Error::NonFiniteState {
-                        quantity: what,
-                        dof,
-                        step,
-                        t: t1,
-                    });
-                }
-            }
+            self.check_new_state(step, t1)?;
         }
         let (mut w_int, w_ext, mut ke, mut w_damp) = (sums[0], sums[1], sums[2], 0.0);
         if !lumped_undamped {
@@ -464,20 +451,7 @@ impl AlphaIntegrator {
         }
         let sums = crate::linalg::sum_partials(&self.options.execution, &self.partials);
         if !sums[3].is_finite() {
-            for (what, x) in [
-                ("displacement", &self.u1),
-                ("velocity", &self.v1),
-                ("acceleration", &self.a1),
-            ] {
-                if let Some(dof) = x.iter().position(|v| !v.is_finite()) {
-                    return Err(Error::NonFiniteState {
-                        quantity: what,
-                        dof,
-                        step,
-                        t: t1,
-                    });
-                }
-            }
+            self.check_new_state(step, t1)?;
             check_finite("internal force", &self.f_int1)?;
         }
         // The sums are global already (finished by the reducer).
